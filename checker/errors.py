@@ -1,0 +1,35 @@
+"""One base exception; subclasses carry the file and the place in it.
+
+The CLI prints ``str(error)`` on one line to stderr and exits 2. The message
+always names the file and the place (JSON path, line, rule key), so a user can
+go straight to the bad spot.
+"""
+
+from __future__ import annotations
+
+
+class CouplintError(Exception):
+    """Base of every error couplint reports to a user."""
+
+
+class InputError(CouplintError):
+    """Bad input: ``file: place: what is wrong``."""
+
+    def __init__(self, file: str, place: str | None, message: str) -> None:
+        self.file = file
+        self.place = place
+        self.message = message
+        where = f"{file}: {place}" if place else file
+        super().__init__(f"{where}: {message}")
+
+
+class BoardError(InputError):
+    """A board file (geometry) is missing, malformed or inconsistent."""
+
+
+class RuleError(InputError):
+    """A rule file is missing, malformed or names something unknown."""
+
+
+class UsageError(CouplintError):
+    """The command line itself is wrong."""

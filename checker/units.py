@@ -1,0 +1,79 @@
+"""The one table of units. Convert once, at the edge.
+
+Inside couplint, geometry is in millimetres and physics in SI units (F, V,
+ohm, Hz, s). A quantity in a rule file is a string ``"<number> <unit>"`` (or a
+bare number, read in the quantity's default unit); ``parse_quantity`` turns it
+into the internal unit and rejects unknown units with a message that lists
+the accepted ones.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+
+#: kind -> {unit: factor to the internal unit}; internal units are mm for
+#: length, F for capacitance, V for voltage, Hz, s, ohm and degrees.
+UNITS: dict[str, dict[str, float]] = {
+    "length": {"mm": 1.0, "um": 1e-3, "mil": 0.0254, "in": 25.4},
+    "capacitance": {"pF": 1e-12, "fF": 1e-15, "nF": 1e-9},
+    "voltage": {"V": 1.0, "mV": 1e-3},
+    "frequency": {"Hz": 1.0, "kHz": 1e3, "MHz": 1e6, "GHz": 1e9},
+    "time": {"s": 1.0, "ns": 1e-9, "ps": 1e-12},
+    "resistance": {"ohm": 1.0, "kohm": 1e3, "Mohm": 1e6},
+    "angle": {"deg": 1.0},
+    "ratio": {"": 1.0},
+}
+
+#: The unit a bare number is read in, per kind (what a user would expect).
+DEFAULT_UNIT: dict[str, str] = {
+    "length": "mm",
+    "capacitance": "pF",
+    "voltage": "V",
+    "frequency": "MHz",
+    "time": "ns",
+    "resistance": "ohm",
+    "angle": "deg",
+    "ratio": "",
+}
+
+_QUANTITY = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([A-Za-z]*)\s*$")
+
+
+class UnitError(ValueError):
+    """A quantity string that cannot be read; the message says why."""
+
+
+def parse_quantity(value: object, kind: str) -> float:
+    """Return ``value`` in the internal unit of ``kind``.
+
+    >>> parse_quantity("10 mil", "length")
+    0.254
+    >>> parse_quantity("100 kohm", "resistance")
+    100000.0
+    >>> parse_quantity(2, "length")
+    2.0
+    """
+    table = UNITS[kind]
+    if isinstance(value, bool):
+        raise UnitError(f"expected a {kind}, got {value!r}")
+    if isinstance(value, (int, float)):
+        number, unit = float(value), DEFAULT_UNIT[kind]
+    elif isinstance(value, str):
+        m = _QUANTITY.match(value)
+        if not m:
+            raise UnitError(f"expected a {kind} like '{_example(kind)}', got {value!r}")
+        number, unit = float(m.group(1)), m.group(2) or DEFAULT_UNIT[kind]
+    else:
+        raise UnitError(f"expected a {kind} like '{_example(kind)}', got {value!r}")
+    if unit not in table:
+        accepted = ", ".join(u for u in table if u) or "no unit"
+        raise UnitError(f"unknown {kind} unit {unit!r} (accepted: {accepted})")
+    if not math.isfinite(number):
+        raise UnitError(f"{kind} must be a finite number, got {value!r}")
+    return round(number * table[unit], 15) if kind == "length" else number * table[unit]
+
+
+def _example(kind: str) -> str:
+    unit = DEFAULT_UNIT[kind]
+    return f"1 {unit}".strip()
