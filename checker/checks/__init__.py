@@ -2,7 +2,8 @@
 
 Every module has ``KIND`` (the name used in rule files), ``SCOPE`` (what it
 looks at: ``broadside`` runs, ``edge`` runs, ``net-pair`` totals or
-``victim`` totals), ``OPTIONS`` (its option schema, see
+``victim`` totals; ``run`` for rules that may look at either kind of
+run), ``OPTIONS`` (its option schema, see
 :class:`checker.checks.options.Option`) and ``check(rule, ctx)``, a generator
 of findings. Its docstring is the user documentation of the kind.
 """

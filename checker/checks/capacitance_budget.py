@@ -14,6 +14,8 @@ budget. Passes: 0.1 pF.
 
 from __future__ import annotations
 
+import numpy as np
+
 from .options import Option
 
 KIND = "capacitance-budget"
@@ -22,3 +24,28 @@ OPTIONS = {
     "max_c12": Option("capacitance", required=True, minimum=0.0, exclusive_minimum=True,
                       help="largest total mutual capacitance per net pair"),
 }
+
+
+def check(rule, ctx):
+    """Yield a finding per net pair whose total C12 exceeds ``max_c12``."""
+    from .common import make_finding, run_place
+
+    np_ = ctx.net_pairs
+    c = ctx.couplings
+    limit_pf = rule.options["max_c12"] * 1e12
+    applies, aggressor = ctx.orient(rule, np_.net_a, np_.net_b)
+    for k in np.flatnonzero(applies & (np_.c12_pf > limit_pf)):
+        rows = np.flatnonzero(np_.row_pair == k)
+        worst = int(rows[np.argmax(c.c12_pf[rows])])
+        bbox, at, layers = run_place(ctx, rows, worst)
+        agg = int(aggressor[k])
+        victim = int(np_.net_b[k] if np_.net_a[k] == agg else np_.net_a[k])
+        total = float(np_.c12_pf[k])
+        yield make_finding(
+            ctx, rule, aggressor=agg, victim=victim, layers=layers, bbox=bbox, at=at,
+            value=total, limit=limit_pf, unit="pF", excess=total / limit_pf,
+            message=(f"{ctx.net_name(agg)} and {ctx.net_name(victim)} couple through {total:.3g} pF "
+                     f"on {'/'.join(layers)} (budget {limit_pf:.3g} pF)"),
+            length_mm=float(c.length_mm[rows].sum()), area_mm2=float(c.overlap_mm2[rows].sum()),
+            c12_pf=total,
+        )

@@ -17,6 +17,8 @@ down. Passes: the same clock crossing the sensor trace at 90 degrees.
 
 from __future__ import annotations
 
+import numpy as np
+
 from .options import Option
 
 KIND = "crossing-angle"
@@ -27,3 +29,30 @@ OPTIONS = {
     "max_length": Option("length", default=2.0, minimum=0.0,
                          help="longest overlapped run allowed below min_angle"),
 }
+
+
+def check(rule, ctx):
+    """Yield a finding per overlapped broadside run below ``min_angle`` that
+    is longer than ``max_length``."""
+    from ..analysis import BROADSIDE
+    from .common import applicable_rows, iter_runs, make_finding, ratio_over, run_place
+
+    c = ctx.couplings
+    min_angle, max_length = rule.options["min_angle"], rule.options["max_length"]
+    mask = (c.kind == BROADSIDE) & (c.overlap_mm2 > 0) & (c.angle_deg < min_angle)
+    rows, aggressor = applicable_rows(ctx, rule, mask)
+    for run in iter_runs(ctx, rows, aggressor):
+        length = float(c.length_mm[run.rows].sum())
+        if length <= max_length:
+            continue
+        worst = int(run.rows[np.argmax(c.length_mm[run.rows])])
+        bbox, at, layers = run_place(ctx, run.rows, worst)
+        angle = float(np.average(c.angle_deg[run.rows], weights=c.length_mm[run.rows]))
+        yield make_finding(
+            ctx, rule, aggressor=run.aggressor, victim=run.victim, layers=layers, bbox=bbox, at=at,
+            value=length, limit=max_length, unit="mm", excess=ratio_over(length, max_length),
+            message=(f"{ctx.net_name(run.aggressor)} overlaps {ctx.net_name(run.victim)} for {length:.2f} mm "
+                     f"on {'/'.join(layers)} at {angle:.0f} deg (allowed {max_length:g} mm below {min_angle:g} deg)"),
+            length_mm=length, area_mm2=float(c.overlap_mm2[run.rows].sum()),
+            c12_pf=float(c.c12_pf[run.rows].sum()),
+        )

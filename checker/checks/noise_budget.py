@@ -18,6 +18,8 @@ Fails: 40 mV on a 100 kohm sensor input with a 10 mV budget.
 
 from __future__ import annotations
 
+import numpy as np
+
 from .options import Option
 
 KIND = "noise-budget"
@@ -28,3 +30,41 @@ OPTIONS = {
     "model": Option("choice", default="full", choices=("full", "small-r"),
                     help="full lumped model or its small-R limit"),
 }
+
+
+def check(rule, ctx):
+    """Yield a finding per victim whose summed coupled noise exceeds ``max_noise``."""
+    from .common import make_finding, run_place
+
+    np_ = ctx.net_pairs
+    c = ctx.couplings
+    limit = rule.options["max_noise"]
+    small_r = rule.options["model"] == "small-r"
+    agg_ok, vic_ok = ctx.class_mask(rule.aggressor), ctx.class_mask(rule.victim)
+    # both directions of every coupled net pair, as (aggressor, victim, noise, pair)
+    aggressors = np.concatenate([np_.net_a, np_.net_b])
+    victims = np.concatenate([np_.net_b, np_.net_a])
+    noise = np.concatenate([np_.noise_small_r_ab_v, np_.noise_small_r_ba_v] if small_r
+                           else [np_.noise_ab_v, np_.noise_ba_v])
+    pair = np.concatenate([np.arange(len(np_)), np.arange(len(np_))])
+    use = agg_ok[aggressors] & vic_ok[victims] & np.isfinite(noise)
+    aggressors, victims, noise, pair = aggressors[use], victims[use], noise[use], pair[use]
+    for victim in np.unique(victims):
+        mine = np.flatnonzero(victims == victim)
+        total = float(noise[mine].sum())
+        if total <= limit:
+            continue
+        order = mine[np.argsort(-noise[mine], kind="stable")]
+        main = int(aggressors[order[0]])
+        rows = np.flatnonzero(np.isin(np_.row_pair, pair[mine]))
+        worst = int(rows[np.argmax(c.c12_pf[rows])])
+        bbox, at, layers = run_place(ctx, rows, worst)
+        others = len(order) - 1
+        names = ctx.net_name(main) + (f" and {others} more" if others else "")
+        yield make_finding(
+            ctx, rule, aggressor=main, victim=int(victim), layers=layers,
+            bbox=bbox, at=at, value=total * 1e3, limit=limit * 1e3, unit="mV", excess=total / limit,
+            message=(f"{ctx.net_name(int(victim))} picks up {total * 1e3:.3g} mV from {names} "
+                     f"({'small-R limit' if small_r else 'lumped model'}; budget {limit * 1e3:.3g} mV)"),
+            c12_pf=float(np_.c12_pf[pair[mine]].sum()), noise_mv=total * 1e3,
+        )

@@ -1,0 +1,314 @@
+"""From a board and a rule set to coupled pairs, capacitances and noise.
+
+This module joins the layers: the finder (pure geometry) gives coupled piece
+pairs, the physics turns them into mutual capacitance and the capacitance of
+each net to ground, and the net classes of the rule set give the electrical
+attributes that turn capacitance into coupled noise. The checks then read the
+resulting :class:`Analysis`; they never search geometry themselves.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .finder.pairs import PairTable, find_broadside, find_edge
+from .finder.runs import run_labels
+from .model import NO_NET, Board
+from .physics import capacitance, crosstalk
+from .physics.broadside import BroadsideModel, broadside_c12_pf
+from .ruleset import NetClass, Rule, RuleSet
+from .stackup import broadside_pairs, reference_of
+
+BROADSIDE, EDGE = 0, 1
+KIND_NAMES = ("broadside", "edge")
+
+
+@dataclass
+class Couplings:
+    """Every coupled piece pair of a board as parallel arrays.
+
+    Rows are canonical: ``net_a < net_b`` (the piece on side a belongs to
+    the lower net index). ``kind`` is ``BROADSIDE`` or ``EDGE``.
+    """
+
+    kind: np.ndarray
+    a: np.ndarray
+    b: np.ndarray
+    net_a: np.ndarray
+    net_b: np.ndarray
+    layer_a: np.ndarray
+    layer_b: np.ndarray
+    angle_deg: np.ndarray
+    parallel: np.ndarray
+    length_mm: np.ndarray
+    offset_mm: np.ndarray
+    gap_mm: np.ndarray
+    overlap_mm2: np.ndarray
+    x: np.ndarray
+    y: np.ndarray
+    c12_pf: np.ndarray
+
+    def __len__(self) -> int:
+        return int(self.a.shape[0])
+
+    def take(self, index: np.ndarray) -> "Couplings":
+        return Couplings(*(getattr(self, n)[index] for n in self.__dataclass_fields__))
+
+
+@dataclass
+class NetElectrical:
+    """Electrical attributes per net (arrays indexed by net), from the first
+    net class that gives each attribute; NaN where no class gives it."""
+
+    swing_v: np.ndarray
+    frequency_hz: np.ndarray
+    resistance_ohm: np.ndarray
+    node_capacitance_f: np.ndarray
+
+
+@dataclass
+class NetPairs:
+    """Per coupled net pair (``net_a < net_b``): totals over every run."""
+
+    net_a: np.ndarray
+    net_b: np.ndarray
+    broadside_length_mm: np.ndarray
+    edge_length_mm: np.ndarray
+    area_mm2: np.ndarray
+    c12_pf: np.ndarray
+    #: coupled noise (V) with net_a as aggressor onto net_b, and the reverse;
+    #: NaN where the classes do not give the attributes the model needs
+    noise_ab_v: np.ndarray
+    noise_ba_v: np.ndarray
+    noise_small_r_ab_v: np.ndarray
+    noise_small_r_ba_v: np.ndarray
+    #: index of each coupled pair row's net pair (into these arrays)
+    row_pair: np.ndarray = field(repr=False, default_factory=lambda: np.zeros(0, np.int64))
+
+    def __len__(self) -> int:
+        return int(self.net_a.shape[0])
+
+
+@dataclass
+class Analysis:
+    """Everything the checks and the reports read about one board."""
+
+    board: Board
+    ruleset: RuleSet
+    couplings: Couplings
+    net_pairs: NetPairs
+    electrical: NetElectrical
+    c2g_pf: np.ndarray  # per net: traces to reference plane + node capacitance
+    classes: list[tuple[str, ...]]  # per net: names of the classes it belongs to
+    notes: list[str]
+    layer_pairs: list[tuple[int, int]]
+    pairs_examined: int
+
+    # --- helpers the checks share -------------------------------------
+    def class_mask(self, names: tuple[str, ...]) -> np.ndarray:
+        """Per net: True where the net is in one of ``names`` (empty = any)."""
+        if not names:
+            return np.ones(len(self.board.nets), dtype=bool)
+        wanted = set(names)
+        return np.array([bool(wanted.intersection(c)) for c in self.classes], dtype=bool)
+
+    def orient(self, rule: Rule, net_a: np.ndarray, net_b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """For rows of (net_a, net_b): whether ``rule`` applies, and which net
+        is the aggressor. Where both orientations match, net_a is taken as
+        the aggressor (the finding is the same either way)."""
+        agg = self.class_mask(rule.aggressor)
+        vic = self.class_mask(rule.victim)
+        ab = agg[net_a] & vic[net_b]
+        ba = agg[net_b] & vic[net_a]
+        aggressor = np.where(ab, net_a, net_b)
+        return ab | ba, aggressor
+
+    def runs(self, rows: np.ndarray) -> np.ndarray:
+        """Run label per coupled row in ``rows`` (index array): rows whose
+        pieces touch along a polyline or share a piece, for one net pair."""
+        c = self.couplings
+        return run_labels(self.board.pieces, c.a[rows], c.b[rows], c.net_b[rows], c.net_a[rows])
+
+    def net_name(self, index: int) -> str:
+        return self.board.nets[index].name
+
+    def layer_name(self, index: int) -> str:
+        return self.board.stackup.layers[index].name
+
+
+def electrical_attributes(board: Board, ruleset: RuleSet, classes: list[tuple[str, ...]]) -> NetElectrical:
+    """Per-net electrical attributes from the net classes (first class wins
+    per attribute, in rule-file order)."""
+    n = len(board.nets)
+    out = NetElectrical(np.full(n, np.nan), np.full(n, np.nan), np.full(n, np.nan), np.zeros(n))
+    by_name: dict[str, NetClass] = {c.name: c for c in ruleset.classes}
+    factor = ruleset.settings.bandwidth_factor
+    for i, names in enumerate(classes):
+        node_c = None
+        for name in names:
+            cls = by_name[name]
+            if np.isnan(out.swing_v[i]) and cls.swing_v is not None:
+                out.swing_v[i] = cls.swing_v
+            f = cls.aggressor_frequency_hz(factor)
+            if np.isnan(out.frequency_hz[i]) and f is not None:
+                out.frequency_hz[i] = f
+            if np.isnan(out.resistance_ohm[i]) and cls.resistance_ohm is not None:
+                out.resistance_ohm[i] = cls.resistance_ohm
+            if node_c is None and cls.node_capacitance_f:
+                node_c = cls.node_capacitance_f
+        out.node_capacitance_f[i] = node_c or 0.0
+    return out
+
+
+def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=None) -> tuple[Couplings, list[tuple[int, int]], int]:
+    """Search every neighbouring layer pair (broadside) and every layer (edge)."""
+    s = ruleset.settings
+    pieces = board.pieces
+    stackup = board.stackup
+    layer_pairs = broadside_pairs(stackup, s.planes_shield)
+    present = np.unique(pieces.layer) if len(pieces) else np.zeros(0, np.int32)
+    edge_layers = [int(k) for k in present]
+    tasks = [("broadside", u, l) for u, l in layer_pairs] + [("edge", k, k) for k in edge_layers]
+    tables: list[tuple[int, PairTable, np.ndarray]] = []
+    for kind, u, l in tasks:
+        if progress is not None:
+            progress(f"{kind} {stackup.layers[u].name}" + (f"/{stackup.layers[l].name}" if u != l else ""))
+        if kind == "broadside":
+            t = find_broadside(pieces, u, l, s.broadside_search_mm, s.parallel_angle_deg)
+            c12 = _broadside_c12(board, t, u, l, s.broadside_search_mm)
+            tables.append((BROADSIDE, t, c12))
+        else:
+            t = find_edge(pieces, u, s.edge_search_mm, s.parallel_angle_deg)
+            c12 = _edge_c12(board, t, u, notes)
+            tables.append((EDGE, t, c12))
+    examined = sum(len(t) for _, t, _ in tables)
+    couplings = _assemble(board, tables)
+    return couplings, layer_pairs, examined
+
+
+def _broadside_c12(board: Board, t: PairTable, upper: int, lower: int, search_mm: float) -> np.ndarray:
+    if len(t) == 0:
+        return np.zeros(0)
+    p = board.pieces
+    wa, wb = p.width[t.a], p.width[t.b]
+    model = BroadsideModel(board.stackup, upper, lower, wa, wb,
+                           max_offset_mm=search_mm + float(max(wa.max(), wb.max())))
+    return broadside_c12_pf(model, wa, wb, t.offset_mm, t.length_mm, t.angle_deg, t.parallel)
+
+
+def _edge_c12(board: Board, t: PairTable, layer: int, notes: list[str]) -> np.ndarray:
+    if len(t) == 0:
+        return np.zeros(0)
+    p = board.pieces
+    ref = reference_of(board.stackup, layer)
+    thickness = board.stackup.layers[layer].thickness_mm
+    gap = np.maximum(t.gap_mm, 0.0)
+    per_m, in_range = capacitance.edge_c12_per_m(ref, p.width[t.a], p.width[t.b], gap, thickness)
+    outside = int(np.count_nonzero(~in_range))
+    if outside:
+        notes.append(
+            f"edge coupling on {board.stackup.layers[layer].name}: {outside} of {len(t)} piece pairs lie "
+            f"outside the validity range of the {ref.kind} closed form; their C12 is extrapolated")
+    return per_m * t.length_mm * 1e-3 * 1e12
+
+
+def _assemble(board: Board, tables: list[tuple[int, PairTable, np.ndarray]]) -> Couplings:
+    net = board.pieces.net
+    partner = board.partner_of()
+    cols: dict[str, list[np.ndarray]] = {name: [] for name in Couplings.__dataclass_fields__}
+    for kind, t, c12 in tables:
+        n = len(t)
+        a, b = t.a.astype(np.int64), t.b.astype(np.int64)
+        la = np.full(n, t.layer_a, np.int32)
+        lb = np.full(n, t.layer_b, np.int32)
+        swap = net[a] > net[b]
+        a2, b2 = np.where(swap, b, a), np.where(swap, a, b)
+        la2, lb2 = np.where(swap, lb, la), np.where(swap, la, lb)
+        values = dict(kind=np.full(n, kind, np.int8), a=a2, b=b2, net_a=net[a2].astype(np.int64),
+                      net_b=net[b2].astype(np.int64), layer_a=la2, layer_b=lb2, angle_deg=t.angle_deg,
+                      parallel=t.parallel, length_mm=t.length_mm, offset_mm=t.offset_mm, gap_mm=t.gap_mm,
+                      overlap_mm2=t.overlap_mm2, x=t.x, y=t.y, c12_pf=c12)
+        for name, v in values.items():
+            cols[name].append(np.asarray(v))
+    if not tables:
+        empty = {name: np.zeros(0) for name in cols}
+        for name in ("a", "b", "net_a", "net_b"):
+            empty[name] = np.zeros(0, np.int64)
+        empty["parallel"] = np.zeros(0, bool)
+        return Couplings(**empty)
+    c = Couplings(**{name: np.concatenate(v) for name, v in cols.items()})
+    # declared differential-pair partners are exempt from each other's checks
+    keep = (partner[c.net_a] != c.net_b) & (c.net_a != NO_NET) & (c.net_b != NO_NET)
+    return c.take(np.flatnonzero(keep))
+
+
+def net_capacitance_to_ground_pf(board: Board, electrical: NetElectrical, notes: list[str]) -> np.ndarray:
+    """Per net: sum over its pieces of C'(to reference plane) x length, plus
+    the node capacitance from its class (pF)."""
+    p = board.pieces
+    total = np.zeros(len(board.nets))
+    for layer in (np.unique(p.layer) if len(p) else []):
+        on = np.flatnonzero((p.layer == layer) & (p.net != NO_NET))
+        if on.size == 0:
+            continue
+        ref = reference_of(board.stackup, int(layer))
+        thickness = board.stackup.layers[int(layer)].thickness_mm
+        per_m, in_range = capacitance.c2g_per_m(ref, p.width[on], thickness)
+        outside = int(np.count_nonzero(~in_range))
+        if ref.kind == "none":
+            notes.append(f"layer {board.stackup.layers[int(layer)].name} has no reference plane: "
+                         "its traces add nothing to a victim's capacitance to ground")
+        elif outside:
+            notes.append(f"capacitance to plane on {board.stackup.layers[int(layer)].name}: {outside} of "
+                         f"{on.size} pieces lie outside the {ref.kind} formula's validity range")
+        pf = per_m * p.length[on] * 1e-3 * 1e12
+        total += np.bincount(p.net[on], weights=pf, minlength=len(board.nets))
+    return total + electrical.node_capacitance_f * 1e12
+
+
+def aggregate_net_pairs(board: Board, c: Couplings, electrical: NetElectrical, c2g_pf: np.ndarray) -> NetPairs:
+    """Totals per net pair and the lumped-model noise both ways."""
+    n_nets = max(len(board.nets), 1)
+    key = c.net_a * n_nets + c.net_b
+    uniq, inv = np.unique(key, return_inverse=True)
+    m = uniq.shape[0]
+
+    def total(weights: np.ndarray) -> np.ndarray:
+        return np.bincount(inv, weights=weights, minlength=m)
+
+    net_a, net_b = uniq // n_nets, uniq % n_nets
+    c12 = total(c.c12_pf)
+    pairs = NetPairs(
+        net_a=net_a, net_b=net_b,
+        broadside_length_mm=total(np.where(c.kind == BROADSIDE, c.length_mm, 0.0)),
+        edge_length_mm=total(np.where(c.kind == EDGE, c.length_mm, 0.0)),
+        area_mm2=total(c.overlap_mm2), c12_pf=c12,
+        noise_ab_v=_noise(electrical, net_a, net_b, c12, c2g_pf, crosstalk.lumped_noise_v),
+        noise_ba_v=_noise(electrical, net_b, net_a, c12, c2g_pf, crosstalk.lumped_noise_v),
+        noise_small_r_ab_v=_noise(electrical, net_a, net_b, c12, c2g_pf, crosstalk.lumped_noise_small_r_v),
+        noise_small_r_ba_v=_noise(electrical, net_b, net_a, c12, c2g_pf, crosstalk.lumped_noise_small_r_v),
+        row_pair=inv.astype(np.int64),
+    )
+    return pairs
+
+
+def _noise(e: NetElectrical, aggressor: np.ndarray, victim: np.ndarray, c12_pf: np.ndarray,
+           c2g_pf: np.ndarray, model) -> np.ndarray:
+    """Noise (V) on ``victim`` from ``aggressor``; NaN where an attribute is missing."""
+    return model(e.resistance_ohm[victim], c12_pf * 1e-12, c2g_pf[victim] * 1e-12,
+                 e.swing_v[aggressor], e.frequency_hz[aggressor])
+
+
+def analyse(board: Board, ruleset: RuleSet, progress=None) -> Analysis:
+    """Run the whole physical analysis of ``board`` under ``ruleset``'s settings."""
+    notes: list[str] = []
+    names = [net.name for net in board.nets]
+    classes = ruleset.classify(names)
+    electrical = electrical_attributes(board, ruleset, classes)
+    couplings, layer_pairs, examined = find_couplings(board, ruleset, notes, progress)
+    c2g = net_capacitance_to_ground_pf(board, electrical, notes)
+    net_pairs = aggregate_net_pairs(board, couplings, electrical, c2g)
+    return Analysis(board, ruleset, couplings, net_pairs, electrical, c2g, classes, notes,
+                    layer_pairs, examined)

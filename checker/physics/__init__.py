@@ -1,0 +1,1 @@
+"""Numbers from geometry: field solutions and closed forms, each with its source in the docstring."""

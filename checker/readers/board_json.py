@@ -1,0 +1,844 @@
+"""Reader for the neutral board JSON format (``docs/board-format.md``).
+
+``load_board(path)`` reads a file, ``read_board_dict(data, file)`` a dict
+already in memory; both return a :class:`checker.model.Board` or raise one
+:class:`checker.errors.BoardError` that names the file and the JSON path of
+the first problem (``board.json: tracks[12].width: must be > 0``).
+
+Checking comes in stages, each stopping at the first problem:
+
+1. the file itself: missing, unreadable, not UTF-8, not JSON (line and
+   column), not an object, a ``format`` / ``version`` that is not ours;
+2. the shipped JSON Schema (``board.schema.json``, draft 2020-12). A quick
+   yes/no check compiled from that schema passes good files fast; only a
+   file it refuses is walked for non-finite numbers (Python's ``json``
+   accepts ``NaN`` and ``Infinity``), repeated keys and absurd nesting, and
+   then handed to ``jsonschema``, whose best-matching error is reported;
+3. what a schema cannot say: names that must exist or be unique, stackup
+   order, polygon validity, coordinates more than 10 m from the origin,
+   collinear three-point arcs, via layer order, an empty board.
+
+Lengths are converted to millimetres once, here; the input is never
+modified.
+"""
+
+from __future__ import annotations
+
+import functools
+import importlib.resources
+import json
+import math
+import os
+import re
+from pathlib import Path
+from typing import Any, Callable, NoReturn
+
+import jsonschema
+import jsonschema.exceptions
+import numpy as np
+import shapely
+from shapely.geometry.polygon import orient
+
+from ..errors import BoardError
+from ..model import (
+    ARC_CHORD_TOLERANCE_MM,
+    NO_NET,
+    Board,
+    CopperLayer,
+    Dielectric,
+    Net,
+    Pieces,
+    Region,
+    Stackup,
+    Vias,
+)
+from ..units import UNITS
+
+FORMAT = "couplint-board"
+VERSION = 1
+
+#: A coordinate farther than this from the origin (10 m) is taken as a units
+#: mistake rather than a board.
+MAX_COORDINATE_MM = 10_000.0
+
+#: Pieces shorter than this (mm) are dropped as zero-length (repeated points).
+MIN_PIECE_LENGTH_MM = 1e-9
+
+#: Deepest nesting the format uses is 5 (regions[i].holes[j][k][0]); far
+#: deeper input is rejected before anything recursive looks at it.
+MAX_DEPTH = 16
+
+_JSON_TYPES = {
+    "object": "an object",
+    "array": "an array",
+    "string": "a string",
+    "number": "a number",
+    "integer": "an integer",
+    "boolean": "true or false",
+    "null": "null",
+}
+
+
+# --------------------------------------------------------------------------- entry points
+
+
+def load_board(path: str | os.PathLike[str]) -> Board:
+    """Read a board file in the neutral JSON format.
+
+    Raises :class:`BoardError` (file, JSON path, message) for anything wrong
+    with the file, from a missing file to a self-intersecting region.
+    """
+    file = os.fspath(path)
+    try:
+        raw = Path(file).read_bytes()
+    except FileNotFoundError:
+        raise BoardError(file, None, "no such file") from None
+    except IsADirectoryError:
+        raise BoardError(file, None, "is a folder, not a board file") from None
+    except OSError as exc:
+        raise BoardError(file, None, f"cannot read the file: {exc.strerror or exc}") from None
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise BoardError(file, None, f"not UTF-8 text (bad byte at offset {exc.start})") from None
+    if not text.strip():
+        raise BoardError(file, None, "the file is empty")
+    data, duplicates = _parse_json(text, file)
+    return _read(data, file, suspect=duplicates)
+
+
+def read_board_dict(data: Any, file: str) -> Board:
+    """Build a :class:`Board` from parsed board JSON; ``file`` is used in
+    messages, as ``Board.path`` and (its stem) as the default board name.
+    ``data`` is not modified."""
+    return _read(data, file, suspect=False)
+
+
+def _read(data: Any, file: str, suspect: bool) -> Board:
+    if not isinstance(data, dict):
+        raise BoardError(file, None, f"must be a JSON object {{...}}, got {_describe(data)}")
+    _check_header(data, file)
+    if suspect or not _fast_schema_check()(data):
+        # Something is off: find it, slowly, with the path and a good message.
+        _check_raw(data, file)
+        _check_schema(data, file)
+        # Nothing found: the quick check is stricter than it need be (a
+        # number type other than int or float, say); the data is valid.
+    return _Builder(data, file).build()
+
+
+# --------------------------------------------------------------------------- pass 1: raw data
+
+
+class _DuplicateKeys(dict):
+    """A JSON object in which a key appeared more than once."""
+
+    duplicate: str = ""
+
+
+def _parse_json(text: str, file: str) -> tuple[Any, bool]:
+    """The parsed data, and whether any object repeated a key."""
+    duplicates: list[str] = []
+
+    def pairs(items: list[tuple[str, Any]]) -> dict:
+        out = dict(items)
+        if len(out) == len(items):
+            return out
+        seen: set[str] = set()
+        dup = next(k for k, _ in items if k in seen or seen.add(k))
+        flagged = _DuplicateKeys(out)
+        flagged.duplicate = dup
+        duplicates.append(dup)
+        return flagged
+
+    try:
+        data = json.loads(text, object_pairs_hook=pairs)
+    except json.JSONDecodeError as exc:
+        raise BoardError(file, f"line {exc.lineno}, column {exc.colno}", f"invalid JSON: {exc.msg}") from None
+    except RecursionError:
+        raise BoardError(file, None, "invalid JSON: nested far too deeply") from None
+    except ValueError as exc:  # e.g. an integer with thousands of digits
+        raise BoardError(file, None, f"invalid JSON: {exc}") from None
+    return data, bool(duplicates)
+
+
+def _check_raw(data: Any, file: str) -> None:
+    """Reject non-finite numbers, duplicate keys and absurd nesting, in
+    document order, with the JSON path. Iterative, so no depth blows it up."""
+    stack: list[tuple[Any, tuple]] = [(data, ())]
+    while stack:
+        value, path = stack.pop()
+        if len(path) > MAX_DEPTH:
+            raise BoardError(file, format_path(path), "nested far deeper than the board format allows")
+        if isinstance(value, bool) or value is None or isinstance(value, str):
+            continue
+        if isinstance(value, float):
+            if not math.isfinite(value):
+                shown = "NaN" if math.isnan(value) else ("Infinity" if value > 0 else "-Infinity")
+                raise BoardError(file, format_path(path), f"must be a finite number, got {shown}")
+        elif isinstance(value, int):
+            if abs(value) > 1e300:
+                raise BoardError(file, format_path(path), "number far too large")
+        elif isinstance(value, dict):
+            if isinstance(value, _DuplicateKeys):
+                raise BoardError(file, format_path(path), f"key {value.duplicate!r} appears more than once")
+            for key, item in reversed(list(value.items())):
+                if not isinstance(key, str):
+                    raise BoardError(file, format_path(path), f"keys must be strings, got {key!r}")
+                stack.append((item, path + (key,)))
+        elif isinstance(value, (list, tuple)):
+            for i in range(len(value) - 1, -1, -1):
+                stack.append((value[i], path + (i,)))
+        else:
+            raise BoardError(file, format_path(path), f"not a JSON value: {type(value).__name__}")
+
+
+def format_path(parts: Any) -> str | None:
+    """``("tracks", 12, "width")`` -> ``"tracks[12].width"``; ``None`` for the root."""
+    out = ""
+    for part in parts:
+        if isinstance(part, int):
+            out += f"[{part}]"
+        elif re.fullmatch(r"[A-Za-z_][A-Za-z0-9_]*", part):
+            out += f".{part}" if out else part
+        else:
+            out += f"[{json.dumps(part)}]"
+    return out or None
+
+
+def _describe(value: Any) -> str:
+    if value is None:
+        return "null"
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, (int, float)):
+        return f"{value!r}"
+    if isinstance(value, str):
+        return json.dumps(value if len(value) <= 40 else value[:37] + "...")
+    if isinstance(value, list):
+        return "an array"
+    if isinstance(value, dict):
+        return "an object"
+    return type(value).__name__
+
+
+# --------------------------------------------------------------------------- pass 2: schema
+
+
+@functools.lru_cache(maxsize=1)
+def board_schema() -> dict:
+    """The shipped JSON Schema of the board format (draft 2020-12)."""
+    text = importlib.resources.files(__package__).joinpath("board.schema.json").read_text(encoding="utf-8")
+    return json.loads(text)
+
+
+@functools.lru_cache(maxsize=1)
+def _validator() -> jsonschema.Draft202012Validator:
+    schema = board_schema()
+    jsonschema.Draft202012Validator.check_schema(schema)
+    return jsonschema.Draft202012Validator(schema)
+
+
+#: Schema keywords that only annotate; the quick check skips them.
+_ANNOTATIONS = frozenset({"$schema", "$id", "$defs", "$comment", "title", "description", "x-message", "x-messages"})
+
+
+@functools.lru_cache(maxsize=1)
+def _fast_schema_check() -> Callable[[Any], bool]:
+    """A yes/no check compiled from the shipped schema itself.
+
+    ``jsonschema`` walks a board of 50 000 tracks in tens of seconds; this
+    predicate does it in about a second. It is at least as strict as the
+    schema (it also refuses non-finite numbers and duplicate keys), so a
+    board it accepts is schema-valid; a board it refuses goes through the raw
+    walk and ``jsonschema`` for the message. It supports exactly the
+    keywords the schema uses and refuses to compile anything else, so the
+    schema cannot silently outgrow it.
+    """
+    schema = board_schema()
+    defs = schema.get("$defs", {})
+    compiled: dict[str, Callable[[Any], bool]] = {}
+
+    def ref(target: str) -> Callable[[Any], bool]:
+        name = target.removeprefix("#/$defs/")
+        if name not in compiled:
+            if name not in defs:
+                raise ValueError(f"board schema: unresolvable $ref {target!r}")
+            compiled[name] = lambda x: compiled[name](x)  # placeholder while compiling
+            compiled[name] = build(defs[name])
+        return compiled[name]
+
+    def build(node: Any) -> Callable[[Any], bool]:
+        if node is True:
+            return lambda x: True
+        if node is False:
+            return lambda x: False
+        checks: list[Callable[[Any], bool]] = []
+        done = set(_ANNOTATIONS) | {"then", "else", "properties", "additionalProperties", "required"}
+        if node.get("type") == "array":  # the hot path: points and lists of points
+            done |= {"type", "items", "minItems", "maxItems"}
+            lo, hi = node.get("minItems", 0), node.get("maxItems", math.inf)
+            item = build(node.get("items", True))
+
+            def array(x: Any, lo=lo, hi=hi, item=item) -> bool:
+                return isinstance(x, list) and lo <= len(x) <= hi and all(map(item, x))
+
+            checks.append(array)
+        for key, value in node.items():
+            if key in done:
+                continue
+            if key == "type":
+                kinds = (value,) if isinstance(value, str) else tuple(value)
+                tests = tuple(_TYPE_TESTS[k] for k in kinds)
+                checks.append(tests[0] if len(tests) == 1 else lambda x, tests=tests: any(t(x) for t in tests))
+            elif key == "$ref":
+                checks.append(ref(value))
+            elif key == "enum":
+                checks.append(lambda x, value=value: any(_same(x, v) for v in value))
+            elif key == "const":
+                checks.append(lambda x, value=value: _same(x, value))
+            elif key in _BOUNDS:
+                checks.append(lambda x, test=_BOUNDS[key], value=value: not _is_number(x) or test(x, value))
+            elif key == "minLength":
+                checks.append(lambda x, value=value: not isinstance(x, str) or len(x) >= value)
+            elif key == "minItems":
+                checks.append(lambda x, value=value: not isinstance(x, list) or len(x) >= value)
+            elif key == "maxItems":
+                checks.append(lambda x, value=value: not isinstance(x, list) or len(x) <= value)
+            elif key == "items":
+                item = build(value)
+                checks.append(lambda x, item=item: not isinstance(x, list) or all(map(item, x)))
+            elif key == "if":
+                if set(value) - {"required"}:
+                    # Refusing non-finite numbers makes the quick check
+                    # stricter than the schema; under "if" that could make
+                    # it laxer, so conditions may only test for keys.
+                    raise ValueError("board schema: an 'if' may only use 'required'")
+                test, then = build(value), build(node.get("then", True))
+                other = build(node.get("else", True))
+                checks.append(lambda x, test=test, then=then, other=other: then(x) if test(x) else other(x))
+            else:
+                raise ValueError(f"board schema: keyword {key!r} is not supported by the quick check")
+        if {"properties", "additionalProperties", "required"} & node.keys():
+            props = {k: build(v) for k, v in node.get("properties", {}).items()}
+            extra = build(node.get("additionalProperties", True))
+            required = tuple(node.get("required", ()))
+
+            def obj(x: Any) -> bool:
+                if not isinstance(x, dict):
+                    return True
+                for k in required:
+                    if k not in x:
+                        return False
+                for k, v in x.items():
+                    if not props.get(k, extra)(v):
+                        return False
+                return True
+
+            checks.append(obj)
+        if not checks:
+            return lambda x: True
+        if len(checks) == 1:
+            return checks[0]
+
+        def every(x: Any, checks: tuple = tuple(checks)) -> bool:
+            for check in checks:
+                if not check(x):
+                    return False
+            return True
+
+        return every
+
+    return build(schema)
+
+
+def _is_number(x: Any) -> bool:
+    return type(x) is int or (type(x) is float and math.isfinite(x))
+
+
+def _same(x: Any, value: Any) -> bool:
+    """JSON equality (``true`` is not ``1``; ``1.0`` is ``1``)."""
+    if isinstance(x, bool) or isinstance(value, bool):
+        return type(x) is type(value) and x == value
+    if _is_number(value):
+        return _is_number(x) and x == value
+    return type(x) is type(value) and x == value
+
+
+_TYPE_TESTS: dict[str, Callable[[Any], bool]] = {
+    "object": lambda x: isinstance(x, dict),
+    "array": lambda x: isinstance(x, list),
+    "string": lambda x: isinstance(x, str),
+    "number": _is_number,
+    "integer": lambda x: type(x) is int or (type(x) is float and math.isfinite(x) and x.is_integer()),
+    "boolean": lambda x: type(x) is bool,
+    "null": lambda x: x is None,
+}
+
+_BOUNDS: dict[str, Callable[[Any, Any], bool]] = {
+    "minimum": lambda x, v: x >= v,
+    "maximum": lambda x, v: x <= v,
+    "exclusiveMinimum": lambda x, v: x > v,
+    "exclusiveMaximum": lambda x, v: x < v,
+}
+
+
+def _check_header(data: dict, file: str) -> None:
+    """``format`` and ``version`` first: for some other JSON file, or a future
+    version, they explain more than any other error would."""
+    fmt = data.get("format")
+    if fmt != FORMAT:
+        got = "missing" if "format" not in data else f"got {_describe(fmt)}"
+        raise BoardError(file, "format", f'must be "{FORMAT}" ({got}; is this a couplint board file?)')
+    version = data.get("version")
+    if isinstance(version, bool) or version != VERSION:
+        got = "missing" if "version" not in data else f"got {_describe(version)}"
+        raise BoardError(file, "version", f"must be {VERSION} ({got}; this couplint reads board format version {VERSION})")
+
+
+class _Later:
+    """Orders JSON paths backwards, so that of two sibling errors the one
+    earlier in the file ranks higher."""
+
+    def __init__(self, path: Any) -> None:
+        self.path = path
+
+    def __lt__(self, other: "_Later") -> bool:
+        return other.path < self.path
+
+    def __eq__(self, other: object) -> bool:
+        return isinstance(other, _Later) and other.path == self.path
+
+
+def _relevance(error: jsonschema.exceptions.ValidationError) -> tuple:
+    """jsonschema's own ranking (shallowest error first), except that among
+    siblings the first in the file wins: that is where a reader starts."""
+    shallow, path, *rest = jsonschema.exceptions.relevance(error)
+    return (shallow, _Later(path), *rest)
+
+
+def _check_schema(data: dict, file: str) -> None:
+    error = jsonschema.exceptions.best_match(_validator().iter_errors(data), key=_relevance)
+    if error is not None:
+        raise BoardError(file, format_path(error.absolute_path), _schema_message(error))
+
+
+def _schema_message(error: jsonschema.exceptions.ValidationError) -> str:
+    """One plain sentence for a schema error (the path is reported apart)."""
+    schema = error.schema if isinstance(error.schema, dict) else {}
+    instance = error.instance
+    custom = schema.get("x-messages", {}).get(error.validator) or schema.get("x-message")
+    if custom:
+        if error.validator == "type":
+            return f"{custom}, got {_describe(instance)}"
+        return custom
+    v, value = error.validator, error.validator_value
+    if v == "type":
+        kinds = [value] if isinstance(value, str) else list(value)
+        return f"must be {' or '.join(_JSON_TYPES.get(k, k) for k in kinds)}, got {_describe(instance)}"
+    if v == "required":
+        missing = [k for k in value if k not in instance]
+        return f"missing required key {missing[0]!r}" if missing else error.message
+    if v == "additionalProperties":
+        allowed = list(schema.get("properties", {}))
+        extra = [k for k in instance if k not in allowed]
+        return f"unknown key {extra[0]!r} (allowed here: {', '.join(allowed)})" if extra else error.message
+    if v == "exclusiveMinimum":
+        return f"must be > {value:g}, got {_describe(instance)}"
+    if v == "minimum":
+        return f"must be >= {value:g}, got {_describe(instance)}"
+    if v == "maximum":
+        return f"must be <= {value:g}, got {_describe(instance)}"
+    if v == "exclusiveMaximum":
+        return f"must be < {value:g}, got {_describe(instance)}"
+    if v == "enum":
+        return f"must be one of {', '.join(json.dumps(x) for x in value)}, got {_describe(instance)}"
+    if v == "const":
+        return f"must be {json.dumps(value)}, got {_describe(instance)}"
+    if v == "minLength":
+        return "must not be empty"
+    if v == "minItems":
+        return f"needs at least {value} entries, got {len(instance)}"
+    if v == "maxItems":
+        return f"may have at most {value} entries, got {len(instance)}"
+    return error.message
+
+
+# --------------------------------------------------------------------------- pass 3: meaning
+
+
+class _Builder:
+    """Checks what the schema cannot, and converts to the model (in mm).
+
+    Runs only on schema-valid data, so every key and type is as the schema
+    says. Tracks and vias are handled as whole arrays (boards have many);
+    arcs and regions one by one.
+    """
+
+    def __init__(self, data: dict, file: str) -> None:
+        self.data = data
+        self.file = file
+        self.units: str = data.get("units", "mm")
+        self.scale: float = UNITS["length"][self.units]
+        self.sources: list[str] = []
+        self.columns: list[list[np.ndarray]] = []
+
+    def fail(self, path: tuple, message: str) -> NoReturn:
+        raise BoardError(self.file, format_path(path), message)
+
+    def build(self) -> Board:
+        # A huge number times the unit may overflow to inf; the 10 m checks
+        # then report it, so numpy need not warn.
+        with np.errstate(over="ignore"):
+            return self._build()
+
+    def _build(self) -> Board:
+        data = self.data
+        stackup = self.stackup()
+        self.layer_index = {layer.name: i for i, layer in enumerate(stackup.layers)}
+        self.dielectric_names = {d.name for d in stackup.dielectrics if d.name}
+        nets = self.nets()
+        self.net_index: dict[str | None, int] = {net.name: i for i, net in enumerate(nets)}
+        self.net_index[None] = NO_NET
+        self.tracks(data.get("tracks", []))
+        for i, arc in enumerate(data.get("arcs", [])):
+            self.arc(i, arc)
+        regions = tuple(self.region(i, r) for i, r in enumerate(data.get("regions", [])))
+        vias = self.vias(data.get("vias", []))
+        outline = self.polygon(("outline",), data["outline"], (), []) if "outline" in data else None
+        if not self.sources and not regions:
+            self.fail((), "the board has no copper: tracks, arcs and regions are all missing or empty")
+        if self.columns:
+            pieces = Pieces.from_columns(*(np.concatenate(c) for c in zip(*self.columns)))
+        else:
+            pieces = Pieces.empty()
+        return Board(
+            name=data.get("name") or Path(self.file).stem,
+            path=self.file,
+            stackup=stackup,
+            nets=nets,
+            pieces=pieces,
+            sources=tuple(self.sources),
+            regions=regions,
+            vias=vias,
+            outline=outline,
+        )
+
+    # ---- stackup and nets
+
+    def stackup(self) -> Stackup:
+        layers: list[CopperLayer] = []
+        dielectrics: list[Dielectric] = []
+        seen: dict[str, int] = {}
+        entries = self.data["stackup"]
+        for i, entry in enumerate(entries):
+            if i % 2 == 0:
+                if "copper" not in entry:
+                    where = "the stackup starts with copper" if i == 0 else "a dielectric is followed by copper"
+                    self.fail(("stackup", i), f"expected a copper layer here ({where}): the stackup lists "
+                              "copper and dielectric alternately, top to bottom, starting and ending with copper")
+                name = entry["copper"]
+                if name in seen:
+                    self.fail(("stackup", i, "copper"), f"layer name {name!r} is already used by stackup[{seen[name]}]")
+                seen[name] = i
+                thickness = self.length(("stackup", i, "thickness"), entry["thickness"])
+                layers.append(CopperLayer(name, entry["role"], thickness))
+            else:
+                if "dielectric" not in entry:
+                    self.fail(("stackup", i), "expected a dielectric here: two copper layers need a "
+                              "dielectric between them")
+                tan_d = entry.get("loss_tangent")
+                dielectrics.append(Dielectric(
+                    thickness_mm=self.length(("stackup", i, "thickness"), entry["thickness"]),
+                    er=float(entry["er"]),
+                    loss_tangent=None if tan_d is None else float(tan_d),
+                    name=entry.get("dielectric"),
+                ))
+        if len(entries) % 2 == 0:
+            self.fail(("stackup", len(entries) - 1), "the stackup must end with a copper layer, not a dielectric")
+        return Stackup(tuple(layers), tuple(dielectrics))
+
+    def nets(self) -> tuple[Net, ...]:
+        entries = self.data["nets"]
+        seen: dict[str, int] = {}
+        for i, entry in enumerate(entries):
+            name = entry["name"]
+            if name in seen:
+                self.fail(("nets", i, "name"), f"net {name!r} is already declared at nets[{seen[name]}]")
+            seen[name] = i
+        partner: dict[str, str] = {}
+        for i, entry in enumerate(entries):
+            name, pair = entry["name"], entry.get("pair")
+            if pair is None:
+                continue
+            where = ("nets", i, "pair")
+            if pair == name:
+                self.fail(where, f"net {name!r} cannot be its own differential partner")
+            if pair not in seen:
+                self.fail(where, f"unknown net {pair!r}: a pair partner must be declared in nets")
+            for a, b in ((name, pair), (pair, name)):
+                if partner.get(a, b) != b:
+                    self.fail(where, f"conflicting differential pairs: {a!r} is already paired with {partner[a]!r}")
+            partner[name], partner[pair] = pair, name
+        return tuple(Net(e["name"], partner.get(e["name"])) for e in entries)
+
+    # ---- names and coordinates
+
+    def layer(self, path: tuple, name: str) -> int:
+        index = self.layer_index.get(name)
+        if index is None:
+            if name in self.dielectric_names:
+                self.fail(path, f"{name!r} is a dielectric, not a copper layer")
+            self.fail(path, f"unknown layer {name!r} (copper layers: {', '.join(self.layer_index)})")
+        return index
+
+    def net(self, path: tuple, name: str | None) -> int:
+        index = self.net_index.get(name)
+        if index is None:
+            self.fail(path, f"unknown net {name!r}: every net must be declared in nets")
+        return index
+
+    def lookup(self, kind: str, items: list, key: str, table: dict, find: Callable) -> np.ndarray:
+        """The index of ``items[i][key]`` in ``table`` for every i, as an
+        array; on an unknown name, ``find``'s message for the first."""
+        ids = [table.get(item.get(key), -9) for item in items]
+        out = np.asarray(ids, dtype=np.int32)
+        bad = np.flatnonzero(out == -9)
+        if len(bad):
+            i = int(bad[0])
+            find((kind, i, key), items[i].get(key))
+        return out
+
+    def length(self, path: tuple, value: float) -> float:
+        """A width, thickness, drill or pad in mm, refused above 10 m."""
+        mm = float(value) * self.scale
+        if mm > MAX_COORDINATE_MM:
+            self.fail(path, f"{value:g} {self.units} is more than 10 m "
+                      f'(wrong "units"? the file says {self.units})')
+        return mm
+
+    def too_far(self, path: tuple, value: float) -> NoReturn:
+        self.fail(path, f"coordinate {value:g} {self.units} is more than 10 m from the origin "
+                  f'(wrong "units"? the file says {self.units})')
+
+    def point(self, path: tuple, xy: list) -> np.ndarray:
+        """One point in mm, refused if more than 10 m from the origin."""
+        x, y = float(xy[0]) * self.scale, float(xy[1]) * self.scale
+        if max(abs(x), abs(y)) > MAX_COORDINATE_MM:
+            self.too_far(path, max(xy, key=abs))
+        return np.array([x, y])
+
+    def far_points(self, xy: np.ndarray) -> np.ndarray:
+        return np.flatnonzero(np.abs(xy).max(axis=1) > MAX_COORDINATE_MM) if len(xy) else np.zeros(0, int)
+
+    # ---- tracks and arcs -> pieces
+
+    def tracks(self, tracks: list) -> None:
+        """All tracks at once: one array of points, pieces between
+        consecutive points of the same track, zero-length ones dropped."""
+        t = len(tracks)
+        if not t:
+            return
+        layer = self.lookup("tracks", tracks, "layer", self.layer_index, self.layer)
+        net = self.lookup("tracks", tracks, "net", self.net_index, self.net)
+        counts = np.fromiter((len(tr["points"]) for tr in tracks), dtype=np.int64, count=t)
+        first = np.concatenate(([0], np.cumsum(counts)[:-1]))
+        xy = np.array([p for tr in tracks for p in tr["points"]], dtype=np.float64).reshape(-1, 2) * self.scale
+        far = self.far_points(xy)
+        if len(far):
+            k = int(far[0])
+            i = int(np.searchsorted(first, k, side="right") - 1)
+            j = k - int(first[i])
+            self.too_far(("tracks", i, "points", j), max(tracks[i]["points"][j], key=abs))
+        # piece s joins point s and s + 1 unless s is the last point of a track
+        not_first = np.ones(len(xy), dtype=bool)
+        not_first[first] = False
+        joins = np.flatnonzero(not_first[1:])  # s such that s + 1 is not a track's first point
+        owner = np.repeat(np.arange(t), counts - 1)
+        a, b = xy[joins], xy[joins + 1]
+        keep = np.hypot(*(b - a).T) > MIN_PIECE_LENGTH_MM
+        kept_per_track = np.bincount(owner[keep], minlength=t)
+        empty = np.flatnonzero(kept_per_track == 0)
+        if len(empty):
+            self.fail(("tracks", int(empty[0]), "points"), "the track has no length: all its points coincide")
+        owner, a, b = owner[keep], a[keep], b[keep]
+        before = np.concatenate(([0], np.cumsum(kept_per_track)[:-1]))
+        ordinal = np.arange(len(owner)) - before[owner]
+        width = np.fromiter((tr["width"] for tr in tracks), dtype=np.float64, count=t) * self.scale
+        wide = np.flatnonzero(width > MAX_COORDINATE_MM)
+        if len(wide):
+            self.length(("tracks", int(wide[0]), "width"), tracks[int(wide[0])]["width"])
+        base = len(self.sources)
+        self.sources.extend(f"tracks[{i}]" for i in range(t))
+        self.columns.append([a[:, 0], a[:, 1], b[:, 0], b[:, 1], width[owner], net[owner], layer[owner],
+                             owner + base, ordinal])
+
+    def arc(self, i: int, a: dict) -> None:
+        here = ("arcs", i)
+        layer = self.layer(here + ("layer",), a["layer"])
+        net = self.net(here + ("net",), a["net"])
+        if "center" in a:
+            c = self.point(here + ("center",), a["center"])
+            r = float(a["radius"]) * self.scale
+            if np.abs(c).max() + r > MAX_COORDINATE_MM:
+                self.fail(here + ("radius",), "the arc reaches more than 10 m from the origin "
+                          f'(wrong "units"? the file says {self.units})')
+            a0, a1 = float(a["start_angle"]), float(a["end_angle"])
+            if a0 == a1:
+                self.fail(here + ("end_angle",), "equals start_angle: the arc sweeps nothing "
+                          "(write start_angle + 360 for a full circle)")
+            sweep = (a1 - a0) % 360.0 or 360.0
+            xy = arc_polyline(c[0], c[1], r, math.radians(a0), math.radians(sweep))
+            # the last point from end_angle itself, as the file gives it
+            xy[-1] = c + r * np.array([math.cos(math.radians(a1)), math.sin(math.radians(a1))])
+        else:
+            p = [self.point(here + (k,), a[k]) for k in ("start", "mid", "end")]
+            try:
+                cx, cy, r, a0, sweep = circle_through(*p)
+            except ValueError as exc:
+                self.fail(here, f"start, mid and end {exc}: no arc passes through them")
+            if max(abs(cx), abs(cy)) + r > MAX_COORDINATE_MM:
+                self.fail(here, "start, mid and end are almost collinear: the circle through them "
+                          "reaches more than 10 m from the origin")
+            xy = arc_polyline(cx, cy, r, a0, sweep)
+            xy[0], xy[-1] = p[0], p[2]  # exactly the file's end points
+        n = len(xy) - 1
+        self.columns.append([xy[:-1, 0], xy[:-1, 1], xy[1:, 0], xy[1:, 1],
+                             np.full(n, self.length(here + ("width",), a["width"])), np.full(n, net), np.full(n, layer),
+                             np.full(n, len(self.sources)), np.arange(n)])
+        self.sources.append(f"arcs[{i}]")
+
+    # ---- polygons
+
+    def ring(self, path: tuple, points: list) -> np.ndarray:
+        """One polygon ring in file units, checked to be a simple polygon
+        (repeated corners and a closing corner equal to the first dropped)."""
+        arr = np.asarray(points, dtype=np.float64)
+        far = self.far_points(arr * self.scale)
+        if len(far):
+            k = int(far[0])
+            self.too_far(path + (k,), max(points[k], key=abs))
+        keep = np.ones(len(arr), dtype=bool)
+        keep[1:] = np.any(arr[1:] != arr[:-1], axis=1)
+        arr = arr[keep]
+        if len(arr) > 1 and np.array_equal(arr[0], arr[-1]):
+            arr = arr[:-1]
+        if len(arr) < 3:
+            self.fail(path, "degenerate polygon: fewer than 3 distinct corners")
+        poly = shapely.Polygon(arr)
+        if not poly.area > 0:
+            self.fail(path, f"degenerate polygon: its corners enclose no area ({shapely.is_valid_reason(poly)})")
+        if not poly.is_valid:
+            self.fail(path, f"not a valid polygon: {shapely.is_valid_reason(poly)}")
+        return arr
+
+    def polygon(self, shell_path: tuple, outline: list, holes_path: tuple, holes: list) -> shapely.Polygon:
+        """Validated in file units (so messages quote the file's numbers),
+        returned in mm, exterior counter-clockwise."""
+        shell = self.ring(shell_path, outline)
+        shell_poly = shapely.Polygon(shell)
+        inner = []
+        for j, hole in enumerate(holes):
+            ring = self.ring(holes_path + (j,), hole)
+            if not shapely.within(shapely.Polygon(ring), shell_poly):
+                self.fail(holes_path + (j,), "the hole lies (partly) outside the region's outline")
+            inner.append(ring)
+        if inner:
+            poly = shapely.Polygon(shell, inner)
+            if not poly.is_valid:
+                self.fail(holes_path, f"the holes make an invalid polygon: {shapely.is_valid_reason(poly)} "
+                          "(holes must not overlap each other or run along the outline)")
+        return orient(shapely.Polygon(shell * self.scale, [h * self.scale for h in inner]), 1.0)
+
+    def region(self, i: int, r: dict) -> Region:
+        here = ("regions", i)
+        layer = self.layer(here + ("layer",), r["layer"])
+        net = self.net(here + ("net",), r.get("net"))
+        polygon = self.polygon(here + ("outline",), r["outline"], here + ("holes",), r.get("holes", []))
+        return Region(layer=layer, net=net, polygon=polygon, source=f"regions[{i}]")
+
+    # ---- vias
+
+    def vias(self, vias: list) -> Vias:
+        n = len(vias)
+        if not n:
+            return Vias.empty()
+        xy = np.array([v["at"] for v in vias], dtype=np.float64).reshape(-1, 2) * self.scale
+        far = self.far_points(xy)
+        if len(far):
+            k = int(far[0])
+            self.too_far(("vias", k, "at"), max(vias[k]["at"], key=abs))
+        drill = np.fromiter((v["drill"] for v in vias), dtype=np.float64, count=n)
+        pad = np.fromiter((v["pad"] for v in vias), dtype=np.float64, count=n)
+        big = np.flatnonzero(pad * self.scale > MAX_COORDINATE_MM)  # pad > drill is checked next
+        if len(big):
+            self.length(("vias", int(big[0]), "pad"), vias[int(big[0])]["pad"])
+        small = np.flatnonzero(pad <= drill)
+        if len(small):
+            k = int(small[0])
+            drill_k, pad_k = vias[k]["drill"], vias[k]["pad"]
+            self.fail(("vias", k, "pad"), f"must be larger than the drill ({drill_k:g}), got {pad_k:g}")
+        first = self.lookup("vias", vias, "from", self.layer_index, self.layer)
+        last = self.lookup("vias", vias, "to", self.layer_index, self.layer)
+        wrong = np.flatnonzero(first >= last)
+        if len(wrong):
+            k = int(wrong[0])
+            v = vias[k]
+            if first[k] == last[k]:
+                self.fail(("vias", k, "to"), f"a via joins at least two layers; from and to are both {v['to']!r}")
+            self.fail(("vias", k), f"the from layer {v['from']!r} lies below the to layer {v['to']!r}: "
+                      "give the upper layer as from and the lower as to")
+        net = self.lookup("vias", vias, "net", self.net_index, self.net)
+        return Vias(xy[:, 0].copy(), xy[:, 1].copy(), drill * self.scale, pad * self.scale, first, last, net)
+
+
+# --------------------------------------------------------------------------- arcs
+
+
+def chord_count(radius: float, sweep: float, tolerance: float = ARC_CHORD_TOLERANCE_MM) -> int:
+    """Fewest equal chords for an arc of ``radius`` and ``sweep`` (radians)
+    whose sagitta ``r (1 - cos(step / 2))`` stays within ``tolerance``:
+    ``n = ceil(sweep / (2 acos(1 - tol / r)))``, and at least one chord per
+    90 degrees (which only binds for radii under 7 um, where the formula
+    would allow a single chord across a whole circle)."""
+    sweep = abs(sweep)
+    step = 2.0 * math.acos(max(-1.0, 1.0 - tolerance / radius))
+    n = max(1, math.ceil(sweep / step), math.ceil(sweep / (math.pi / 2) - 1e-9))
+    while radius * (1.0 - math.cos(sweep / (2 * n))) > tolerance:  # guard against rounding
+        n += 1
+    return n
+
+
+def arc_polyline(cx: float, cy: float, radius: float, start: float, sweep: float,
+                 tolerance: float = ARC_CHORD_TOLERANCE_MM) -> np.ndarray:
+    """Chord endpoints (n + 1, 2) of the arc from angle ``start`` through
+    ``sweep`` radians (positive: counter-clockwise). Every point lies on the
+    circle; the chords stay within ``tolerance`` of it."""
+    n = chord_count(radius, sweep, tolerance)
+    t = start + sweep * np.arange(n + 1) / n
+    return np.column_stack((cx + radius * np.cos(t), cy + radius * np.sin(t)))
+
+
+def circle_through(p0, p1, p2) -> tuple[float, float, float, float, float]:
+    """Circle through three points, as (cx, cy, r, start angle, signed sweep)
+    of the arc from ``p0`` through ``p1`` to ``p2`` (radians; positive sweep
+    is counter-clockwise). ``ValueError`` if the points are collinear."""
+    (ax, ay), (bx, by), (qx, qy) = p0, p1, p2
+    bx, by, qx, qy = bx - ax, by - ay, qx - ax, qy - ay
+    cross = bx * qy - by * qx
+    scale = max(bx * bx + by * by, qx * qx + qy * qy, (qx - bx) ** 2 + (qy - by) ** 2)
+    if scale == 0 or abs(cross) <= 1e-12 * scale:
+        raise ValueError("are collinear or coincide")
+    d = 2.0 * cross
+    b2, q2 = bx * bx + by * by, qx * qx + qy * qy
+    ux = (qy * b2 - by * q2) / d
+    uy = (bx * q2 - qx * b2) / d
+    cx, cy = ax + ux, ay + uy
+    r = math.hypot(ux, uy)
+    a0 = math.atan2(ay - cy, ax - cx)
+    a2 = math.atan2(p2[1] - cy, p2[0] - cx)
+    if cross > 0:  # p0 -> p1 -> p2 turns left: counter-clockwise
+        sweep = (a2 - a0) % (2 * math.pi)
+    else:
+        sweep = -((a0 - a2) % (2 * math.pi))
+    return cx, cy, r, a0, sweep

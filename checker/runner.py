@@ -1,0 +1,49 @@
+"""Run every rule of a rule set over an analysed board."""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass
+
+from .analysis import Analysis, analyse
+from .checks import REGISTRY
+from .errors import CouplintError
+from .findings import Finding, sort_findings
+from .model import Board
+from .ruleset import RuleSet
+
+
+class CheckCrash(CouplintError):
+    """A rule kind failed on a board: names the rule and the board."""
+
+
+@dataclass
+class Result:
+    """One board's findings with the analysis they came from."""
+
+    analysis: Analysis
+    findings: list[Finding]
+    seconds: float
+
+
+def run_checks(analysis: Analysis) -> list[Finding]:
+    """Every rule's findings, worst first."""
+    findings: list[Finding] = []
+    for rule in analysis.ruleset.rules:
+        module = REGISTRY[rule.kind]
+        try:
+            findings.extend(module.check(rule, analysis))
+        except CouplintError:
+            raise
+        except Exception as exc:  # a crashing rule is reported with its name, not a traceback
+            raise CheckCrash(f"{analysis.board.path}: rule {rule.name!r} ({rule.kind}) failed: "
+                             f"{type(exc).__name__}: {exc}") from exc
+    return sort_findings(findings)
+
+
+def check_board(board: Board, ruleset: RuleSet, progress=None) -> Result:
+    """Analyse ``board`` and apply ``ruleset``."""
+    start = time.perf_counter()
+    analysis = analyse(board, ruleset, progress)
+    findings = run_checks(analysis)
+    return Result(analysis, findings, time.perf_counter() - start)

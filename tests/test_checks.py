@@ -1,0 +1,214 @@
+"""Each rule kind on small hand-built boards.
+
+Geometry values are hand-computed (the arithmetic is beside each check);
+noise is checked against the lumped model evaluated independently here from
+the reported C12 and capacitance to ground (the model's own correctness is
+tested against hand calculations in tests/test_crosstalk.py).
+"""
+
+from __future__ import annotations
+
+import math
+import textwrap
+
+import pytest
+
+from checker.readers.board_json import read_board_dict
+from checker.ruleset import load_ruleset
+from checker.runner import check_board
+
+STACKUP = [
+    {"copper": "TOP", "role": "signal", "thickness": 0.035},
+    {"dielectric": "pp1", "thickness": 0.2, "er": 4.2},
+    {"copper": "IN1", "role": "signal", "thickness": 0.035},
+    {"dielectric": "pp2", "thickness": 0.2, "er": 4.2},
+    {"copper": "GND", "role": "plane", "thickness": 0.035},
+]
+
+CLASSES = textwrap.dedent("""
+    version: 1
+    net_classes:
+      fast:
+        nets: ["CLK*"]
+        swing: 3.3 V
+        frequency: 10 MHz
+      quiet:
+        nets: ["SENSE*", "AIN*"]
+        resistance: 10 kohm
+        node_capacitance: 10 pF
+    rules:
+""")
+
+
+def board(tracks, nets=None):
+    names = nets or sorted({t["net"] for t in tracks})
+    return read_board_dict({
+        "format": "couplint-board", "version": 1, "name": "t",
+        "stackup": STACKUP,
+        "nets": [n if isinstance(n, dict) else {"name": n} for n in names],
+        "tracks": tracks,
+    }, "t.json")
+
+
+def track(layer, net, points, width=0.15):
+    return {"layer": layer, "net": net, "width": width, "points": points}
+
+
+def rules(tmp_path, body):
+    path = tmp_path / "rules.yaml"
+    path.write_text(CLASSES + textwrap.indent(textwrap.dedent(body), "  "))
+    return load_ruleset(path)
+
+
+CROSSING = """
+- name: cross
+  kind: crossing-angle
+  aggressor: fast
+  victim: quiet
+  min_angle: 60 deg
+  max_length: {max_length}
+"""
+
+
+def test_crossing_angle_flags_overlapped_parallel_run(tmp_path):
+    b = board([track("TOP", "CLK", [[0, 0], [10, 0]]), track("IN1", "SENSE", [[0, 0], [10, 0]])])
+    result = check_board(b, rules(tmp_path, CROSSING.format(max_length="2 mm")))
+    assert len(result.findings) == 1
+    f = result.findings[0]
+    # hand: centrelines [0, 10] and [0, 10] overlap over 10 mm; area 10 * 0.15 = 1.5 mm2
+    assert f.value == pytest.approx(10.0)
+    assert f.area_mm2 == pytest.approx(1.5)
+    assert (f.aggressor, f.victim, f.layers) == ("CLK", "SENSE", ("TOP", "IN1"))
+    assert f.c12_pf > 0
+
+
+def test_crossing_angle_passes_orthogonal_crossing(tmp_path):
+    b = board([track("TOP", "CLK", [[0, 0], [10, 0]]), track("IN1", "SENSE", [[5, -5], [5, 5]])])
+    result = check_board(b, rules(tmp_path, CROSSING.format(max_length="0.1 mm")))
+    # hand: an orthogonal crossing couples over max(wa, wb) = 0.15 mm, but at 90 deg >= 60 deg it passes
+    assert result.findings == []
+
+
+def test_crossing_angle_30_degrees(tmp_path):
+    s30 = math.sin(math.radians(30))
+    b = board([track("TOP", "CLK", [[-10, 0], [10, 0]]),
+               track("IN1", "SENSE", [[-10 * math.cos(math.radians(30)), -10 * s30],
+                                      [10 * math.cos(math.radians(30)), 10 * s30]])])
+    result = check_board(b, rules(tmp_path, CROSSING.format(max_length="0.2 mm")))
+    assert len(result.findings) == 1
+    # hand: coupled length of a 30 deg interior crossing = w / sin 30 = 0.15 / 0.5 = 0.3 mm;
+    # overlap area = wa * wb / sin 30 = 0.0225 / 0.5 = 0.045 mm2
+    assert result.findings[0].value == pytest.approx(0.3, rel=1e-6)
+    assert result.findings[0].area_mm2 == pytest.approx(0.045, rel=1e-6)
+    assert check_board(b, rules(tmp_path, CROSSING.format(max_length="0.35 mm"))).findings == []
+
+
+SPACING = """
+- name: three-w
+  kind: spacing-ratio
+  aggressor: fast
+  victim: quiet
+  measure: centre/width
+  min_ratio: 3
+  min_length: 1 mm
+"""
+
+
+@pytest.mark.parametrize("centre, expected", [(0.30, 2.0), (0.45, None), (0.40, 0.40 / 0.15)])
+def test_spacing_ratio_three_w(tmp_path, centre, expected):
+    b = board([track("TOP", "CLK", [[0, 0], [10, 0]]), track("TOP", "SENSE", [[0, centre], [10, centre]])])
+    result = check_board(b, rules(tmp_path, SPACING))
+    # hand: ratio = centre spacing / width = centre / 0.15; fails below 3 (0.45 mm gives exactly 3)
+    if expected is None:
+        assert result.findings == []
+    else:
+        assert len(result.findings) == 1
+        assert result.findings[0].value == pytest.approx(expected)
+        assert result.findings[0].length_mm == pytest.approx(10.0)
+
+
+def test_spacing_ratio_ignores_short_runs(tmp_path):
+    b = board([track("TOP", "CLK", [[0, 0], [0.8, 0]]), track("TOP", "SENSE", [[0, 0.3], [10, 0.3]])])
+    # hand: side by side over 0.8 mm only, shorter than min_length 1 mm
+    assert check_board(b, rules(tmp_path, SPACING)).findings == []
+
+
+PARALLEL = """
+- name: run-length
+  kind: parallel-length
+  aggressor: fast
+  victim: quiet
+  coupling: edge
+  table:
+    - {gap: 0.2 mm, max_length: 5 mm}
+    - {gap: 0.5 mm, max_length: 20 mm}
+"""
+
+
+def test_parallel_length_sums_a_polyline_run(tmp_path):
+    # victim is a two-piece polyline beside a straight aggressor: one run of 4 + 4 = 8 mm
+    b = board([track("TOP", "CLK", [[0, 0], [10, 0]]),
+               track("TOP", "AIN1", [[1, 0.3], [5, 0.3], [9, 0.3]])])
+    result = check_board(b, rules(tmp_path, PARALLEL))
+    assert len(result.findings) == 1
+    f = result.findings[0]
+    # hand: gap = 0.3 - 0.15 = 0.15 mm <= 0.2 mm row; run 8 mm > 5 mm -> excess 8 / 5 = 1.6
+    assert f.value == pytest.approx(8.0)
+    assert f.limit == pytest.approx(5.0)
+    assert f.excess == pytest.approx(1.6)
+
+
+def test_parallel_length_wide_gap_row(tmp_path):
+    b = board([track("TOP", "CLK", [[0, 0], [30, 0]]), track("TOP", "AIN1", [[0, 0.6], [30, 0.6]])])
+    result = check_board(b, rules(tmp_path, PARALLEL))
+    # hand: gap = 0.6 - 0.15 = 0.45 mm: only the 0.5 mm row applies; 30 mm > 20 mm
+    assert [(f.value, f.limit) for f in result.findings] == [(pytest.approx(30.0), pytest.approx(20.0))]
+
+
+def test_capacitance_budget_compares_total(tmp_path):
+    b = board([track("TOP", "CLK", [[0, 0], [10, 0]]), track("IN1", "SENSE", [[0, 0], [10, 0]]),
+               track("TOP", "CLK", [[0, 5], [10, 5]]), track("IN1", "SENSE", [[0, 5], [10, 5]])],
+              nets=["CLK", "SENSE"])
+    probe = check_board(b, rules(tmp_path, "- {name: c, kind: capacitance-budget, max_c12: 1000 pF}\n"))
+    total = float(probe.analysis.net_pairs.c12_pf.sum())
+    # two identical 10 mm overlapped runs: the net pair's total is the sum of both
+    per_row = probe.analysis.couplings.c12_pf
+    assert total == pytest.approx(per_row.sum())
+    assert total > 0
+    low = check_board(b, rules(tmp_path, f"- {{name: c, kind: capacitance-budget, max_c12: {total * 0.99} pF}}\n"))
+    high = check_board(b, rules(tmp_path, f"- {{name: c, kind: capacitance-budget, max_c12: {total * 1.01} pF}}\n"))
+    assert len(low.findings) == 1 and low.findings[0].value == pytest.approx(total, rel=1e-9)
+    assert high.findings == []
+
+
+def test_noise_budget_matches_lumped_model(tmp_path):
+    b = board([track("TOP", "CLK", [[0, 0], [10, 0]]), track("IN1", "SENSE", [[0, 0], [10, 0]])])
+    result = check_board(b, rules(tmp_path, "- {name: n, kind: noise-budget, aggressor: fast, victim: quiet, max_noise: 0.001 mV}\n"))
+    a = result.analysis
+    c12 = float(a.net_pairs.c12_pf[0]) * 1e-12
+    sense = a.board.net_index()["SENSE"]
+    c2g = float(a.c2g_pf[sense]) * 1e-12
+    # lumped model, KCL at the victim node: |Vn| = w R C12 V1 / sqrt(1 + (w R (C12 + C2G))^2)
+    w = 2 * math.pi * 10e6
+    expected = w * 1e4 * c12 * 3.3 / math.sqrt(1 + (w * 1e4 * (c12 + c2g)) ** 2)
+    assert len(result.findings) == 1
+    assert result.findings[0].value == pytest.approx(expected * 1e3, rel=1e-9)
+    # the victim's capacitance to ground includes its 10 pF node capacitance
+    assert c2g > 10e-12
+
+
+def test_differential_partners_are_exempt(tmp_path):
+    b = board([track("IN1", "SENSE_P", [[0, 0], [10, 0]]), track("IN1", "SENSE_N", [[0, 0.3], [10, 0.3]])],
+              nets=[{"name": "SENSE_P", "pair": "SENSE_N"}, {"name": "SENSE_N"}])
+    body = SPACING.replace("aggressor: fast", "aggressor: any").replace("victim: quiet", "victim: any")
+    result = check_board(b, rules(tmp_path, body))
+    assert result.findings == []
+    assert len(result.analysis.couplings) == 0
+
+
+def test_finding_ids_survive_tiny_coordinate_changes(tmp_path):
+    r = rules(tmp_path, CROSSING.format(max_length="2 mm"))
+    one = check_board(board([track("TOP", "CLK", [[0, 0], [10, 0]]), track("IN1", "SENSE", [[0, 0], [10, 0]])]), r)
+    two = check_board(board([track("TOP", "CLK", [[0.001, 0], [10.001, 0]]),
+                             track("IN1", "SENSE", [[0, 0.001], [10, 0.001]])]), r)
+    assert one.findings[0].id == two.findings[0].id
