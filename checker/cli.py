@@ -105,7 +105,10 @@ def _check(board_path: str, args: argparse.Namespace) -> int:
         terminal.render(result, Console(file=buffer, width=140, color_system=None, soft_wrap=True))
         text = buffer.getvalue()
     else:
-        terminal.render(result, Console())
+        console = Console()
+        if not console.is_terminal:  # piped or captured: room for the whole table
+            console = Console(width=max(console.width, 132))
+        terminal.render(result, console)
         text = None
     if text is not None:
         if args.out:

@@ -98,18 +98,20 @@ against the cross-section and short against a wavelength.
 Speed and accuracy
 ------------------
 Measured on a 2-core machine shared with other jobs, against exact
-conformal-mapping values (stripline, edge-coupled stripline) or resolution 6
-(broadside pairs with 35 um copper, coupled microstrip); the error is always
-positive (see the upper-bound property above):
+conformal-mapping values (stripline, edge-coupled stripline), resolution 6
+(broadside pairs with 35 um copper) or scikit-rf's Hammerstad-Jensen
+microstrip. The solver read high in every case measured (self-capacitances
+must, by the upper-bound property above):
 
-=====================  ==================  ==================
-case                   ``FAST`` (r = 1)    ``FINE`` (r = 3)
-=====================  ==================  ==================
-time, two traces       10-30 ms            0.3-1.5 s
-broadside C12, C11     0.6-1.0 %           0.05-0.08 %
-stripline C (t = 0)    1.3 %               0.14 %
-edge-coupled C12       2.1-2.6 %           0.2-0.3 %
-=====================  ==================  ==================
+============================  ================  ================
+case                          ``FAST`` (r = 1)  ``FINE`` (r = 3)
+============================  ================  ================
+time, two traces              10-30 ms          0.1-0.8 s
+broadside C12, C11 (35 um)    0.6-1.0 %         0.04-0.08 %
+stripline C (t = 0)           0.3-1.9 %         0.04-0.22 %
+edge-coupled C12 (t = 0)      2.1-2.6 %         0.17-0.27 %
+microstrip C vs H-J           1.0-2.8 %         0.13-0.41 %
+============================  ================  ================
 
 ``solve(..., richardson=True)`` solves at *r* and *2r* and returns the finer
 result with an error estimate and an extrapolated value (on the stripline at
@@ -149,10 +151,10 @@ from scipy.sparse.linalg import splu
 #: Net number of a grounded conductor.
 GROUND = -1
 
-#: ``resolution`` for tables: 0.6-2.6 % high on two-trace cross-sections,
-#: 10-30 ms.
+#: ``resolution`` for quick values: 0.3-2.8 % high on two-trace
+#: cross-sections, 10-30 ms (module docstring table).
 FAST = 1.0
-#: ``resolution`` for single accurate values: 0.05-0.3 % high, under 2 s.
+#: ``resolution`` for single accurate values: 0.04-0.4 % high, under 1 s.
 FINE = 3.0
 
 #: Default distance from the structure to the far grounded box, in multiples

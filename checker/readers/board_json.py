@@ -24,6 +24,7 @@ modified.
 
 from __future__ import annotations
 
+import copy
 import functools
 import importlib.resources
 import json
@@ -33,6 +34,7 @@ import re
 from pathlib import Path
 from typing import Any, Callable, NoReturn
 
+import fastjsonschema
 import jsonschema
 import jsonschema.exceptions
 import numpy as np
@@ -111,6 +113,8 @@ def read_board_dict(data: Any, file: str) -> Board:
     """Build a :class:`Board` from parsed board JSON; ``file`` is used in
     messages, as ``Board.path`` and (its stem) as the default board name.
     ``data`` is not modified."""
+    if isinstance(data, dict):
+        _check_raw(data, file)
     return _read(data, file, suspect=False)
 
 
@@ -137,8 +141,14 @@ class _DuplicateKeys(dict):
 
 
 def _parse_json(text: str, file: str) -> tuple[Any, bool]:
-    """The parsed data, and whether any object repeated a key."""
+    """The parsed data, and whether it is suspect: an object repeated a key,
+    or a NaN / Infinity appeared (both are reported with their path by
+    :func:`_check_raw`)."""
     duplicates: list[str] = []
+
+    def non_finite(name: str) -> float:
+        duplicates.append(name)  # not a duplicate, but as suspect: the slow path names the place
+        return float(name)
 
     def pairs(items: list[tuple[str, Any]]) -> dict:
         out = dict(items)
@@ -152,7 +162,7 @@ def _parse_json(text: str, file: str) -> tuple[Any, bool]:
         return flagged
 
     try:
-        data = json.loads(text, object_pairs_hook=pairs)
+        data = json.loads(text, object_pairs_hook=pairs, parse_constant=non_finite)
     except json.JSONDecodeError as exc:
         raise BoardError(file, f"line {exc.lineno}, column {exc.colno}", f"invalid JSON: {exc.msg}") from None
     except RecursionError:
@@ -239,148 +249,26 @@ def _validator() -> jsonschema.Draft202012Validator:
     return jsonschema.Draft202012Validator(schema)
 
 
-#: Schema keywords that only annotate; the quick check skips them.
-_ANNOTATIONS = frozenset({"$schema", "$id", "$defs", "$comment", "title", "description", "x-message", "x-messages"})
-
-
 @functools.lru_cache(maxsize=1)
 def _fast_schema_check() -> Callable[[Any], bool]:
-    """A yes/no check compiled from the shipped schema itself.
+    """A yes/no check of the shipped schema, compiled by ``fastjsonschema``.
 
-    ``jsonschema`` walks a board of 50 000 tracks in tens of seconds; this
-    predicate does it in about a second. It is at least as strict as the
-    schema (it also refuses non-finite numbers and duplicate keys), so a
-    board it accepts is schema-valid; a board it refuses goes through the raw
-    walk and ``jsonschema`` for the message. It supports exactly the
-    keywords the schema uses and refuses to compile anything else, so the
-    schema cannot silently outgrow it.
+    ``jsonschema`` walks a board of 50 000 tracks in tens of seconds; the
+    compiled check does it in about a second. A board it accepts is
+    schema-valid; a board it refuses goes through the raw walk and
+    ``jsonschema`` for a message with the path. (Non-finite numbers are
+    caught while parsing, see :func:`_parse_json`.)
     """
-    schema = board_schema()
-    defs = schema.get("$defs", {})
-    compiled: dict[str, Callable[[Any], bool]] = {}
+    check = fastjsonschema.compile(copy.deepcopy(board_schema()))
 
-    def ref(target: str) -> Callable[[Any], bool]:
-        name = target.removeprefix("#/$defs/")
-        if name not in compiled:
-            if name not in defs:
-                raise ValueError(f"board schema: unresolvable $ref {target!r}")
-            compiled[name] = lambda x: compiled[name](x)  # placeholder while compiling
-            compiled[name] = build(defs[name])
-        return compiled[name]
+    def valid(data: Any) -> bool:
+        try:
+            check(data)
+        except fastjsonschema.JsonSchemaException:
+            return False
+        return True
 
-    def build(node: Any) -> Callable[[Any], bool]:
-        if node is True:
-            return lambda x: True
-        if node is False:
-            return lambda x: False
-        checks: list[Callable[[Any], bool]] = []
-        done = set(_ANNOTATIONS) | {"then", "else", "properties", "additionalProperties", "required"}
-        if node.get("type") == "array":  # the hot path: points and lists of points
-            done |= {"type", "items", "minItems", "maxItems"}
-            lo, hi = node.get("minItems", 0), node.get("maxItems", math.inf)
-            item = build(node.get("items", True))
-
-            def array(x: Any, lo=lo, hi=hi, item=item) -> bool:
-                return isinstance(x, list) and lo <= len(x) <= hi and all(map(item, x))
-
-            checks.append(array)
-        for key, value in node.items():
-            if key in done:
-                continue
-            if key == "type":
-                kinds = (value,) if isinstance(value, str) else tuple(value)
-                tests = tuple(_TYPE_TESTS[k] for k in kinds)
-                checks.append(tests[0] if len(tests) == 1 else lambda x, tests=tests: any(t(x) for t in tests))
-            elif key == "$ref":
-                checks.append(ref(value))
-            elif key == "enum":
-                checks.append(lambda x, value=value: any(_same(x, v) for v in value))
-            elif key == "const":
-                checks.append(lambda x, value=value: _same(x, value))
-            elif key in _BOUNDS:
-                checks.append(lambda x, test=_BOUNDS[key], value=value: not _is_number(x) or test(x, value))
-            elif key == "minLength":
-                checks.append(lambda x, value=value: not isinstance(x, str) or len(x) >= value)
-            elif key == "minItems":
-                checks.append(lambda x, value=value: not isinstance(x, list) or len(x) >= value)
-            elif key == "maxItems":
-                checks.append(lambda x, value=value: not isinstance(x, list) or len(x) <= value)
-            elif key == "items":
-                item = build(value)
-                checks.append(lambda x, item=item: not isinstance(x, list) or all(map(item, x)))
-            elif key == "if":
-                if set(value) - {"required"}:
-                    # Refusing non-finite numbers makes the quick check
-                    # stricter than the schema; under "if" that could make
-                    # it laxer, so conditions may only test for keys.
-                    raise ValueError("board schema: an 'if' may only use 'required'")
-                test, then = build(value), build(node.get("then", True))
-                other = build(node.get("else", True))
-                checks.append(lambda x, test=test, then=then, other=other: then(x) if test(x) else other(x))
-            else:
-                raise ValueError(f"board schema: keyword {key!r} is not supported by the quick check")
-        if {"properties", "additionalProperties", "required"} & node.keys():
-            props = {k: build(v) for k, v in node.get("properties", {}).items()}
-            extra = build(node.get("additionalProperties", True))
-            required = tuple(node.get("required", ()))
-
-            def obj(x: Any) -> bool:
-                if not isinstance(x, dict):
-                    return True
-                for k in required:
-                    if k not in x:
-                        return False
-                for k, v in x.items():
-                    if not props.get(k, extra)(v):
-                        return False
-                return True
-
-            checks.append(obj)
-        if not checks:
-            return lambda x: True
-        if len(checks) == 1:
-            return checks[0]
-
-        def every(x: Any, checks: tuple = tuple(checks)) -> bool:
-            for check in checks:
-                if not check(x):
-                    return False
-            return True
-
-        return every
-
-    return build(schema)
-
-
-def _is_number(x: Any) -> bool:
-    return type(x) is int or (type(x) is float and math.isfinite(x))
-
-
-def _same(x: Any, value: Any) -> bool:
-    """JSON equality (``true`` is not ``1``; ``1.0`` is ``1``)."""
-    if isinstance(x, bool) or isinstance(value, bool):
-        return type(x) is type(value) and x == value
-    if _is_number(value):
-        return _is_number(x) and x == value
-    return type(x) is type(value) and x == value
-
-
-_TYPE_TESTS: dict[str, Callable[[Any], bool]] = {
-    "object": lambda x: isinstance(x, dict),
-    "array": lambda x: isinstance(x, list),
-    "string": lambda x: isinstance(x, str),
-    "number": _is_number,
-    "integer": lambda x: type(x) is int or (type(x) is float and math.isfinite(x) and x.is_integer()),
-    "boolean": lambda x: type(x) is bool,
-    "null": lambda x: x is None,
-}
-
-_BOUNDS: dict[str, Callable[[Any, Any], bool]] = {
-    "minimum": lambda x, v: x >= v,
-    "maximum": lambda x, v: x <= v,
-    "exclusiveMinimum": lambda x, v: x > v,
-    "exclusiveMaximum": lambda x, v: x < v,
-}
+    return valid
 
 
 def _check_header(data: dict, file: str) -> None:

@@ -22,22 +22,24 @@ def render(result: Result, console: Console) -> None:
     a = result.analysis
     title = f"{a.board.name} ({a.board.path})"
     if result.findings:
-        table = Table(title=title, title_justify="left", show_lines=False, expand=False)
-        for name, kw in (("#", {"justify": "right"}), ("severity", {}), ("rule", {}),
-                         ("aggressor -> victim", {}), ("layers", {}), ("value", {"justify": "right"}),
-                         ("limit", {"justify": "right"}), ("at x, y (mm)", {"justify": "right"}),
-                         ("id", {})):
-            table.add_column(name, **kw)
+        table = Table(title=title, title_justify="left", expand=False)
+        table.add_column("#", justify="right")
+        table.add_column("severity")
+        table.add_column("rule", overflow="fold")
+        table.add_column("aggressor -> victim", overflow="fold")
+        table.add_column("layers", overflow="fold")
+        table.add_column("value / limit", justify="right")
+        table.add_column("at (mm)", justify="right")
         for i, f in enumerate(result.findings, 1):
+            limit = _value(f.limit, f.unit) if f.unit in ("mm", "pF", "mV") else f"{f.limit:g} ({f.unit})"
             table.add_row(
                 str(i), f"[{SEVERITY_STYLE[f.severity]}]{f.severity}[/]", f.rule,
-                f"{f.aggressor} -> {f.victim}", "/".join(f.layers), _value(f.value, f.unit),
-                _value(f.limit, f.unit) if f.unit in ("mm", "pF", "mV") else f"{f.limit:g} {f.unit}",
-                f"{f.at[0]:.2f}, {f.at[1]:.2f}", f.id,
+                f"{f.aggressor} -> {f.victim}", "/".join(f.layers),
+                f"{_value(f.value, f.unit)} / {limit}", f"{f.at[0]:.2f}, {f.at[1]:.2f}",
             )
         console.print(table)
         for i, f in enumerate(result.findings, 1):
-            console.print(f"  {i}. {f.message}", highlight=False, markup=False)
+            console.print(f"{i:>3}. [{f.id}] {f.message}", highlight=False, markup=False)
     else:
         console.print(f"{title}: no findings", highlight=False)
     for note in sorted(set(a.notes)):
