@@ -132,10 +132,10 @@ def scaled(data: dict, mm_per_unit: float, unit: str) -> dict:
 def assert_same_board(a: Board, b: Board) -> None:
     assert a.stackup.names == b.stackup.names
     for la, lb in zip(a.stackup.layers, b.stackup.layers):
-        assert la.role == lb.role and la.thickness_mm == pytest.approx(lb.thickness_mm, rel=1e-12)
+        assert la.role == lb.role and la.thickness_mm == pytest.approx(lb.thickness_mm, rel=1e-12, abs=0)
     for da, db in zip(a.stackup.dielectrics, b.stackup.dielectrics):
         assert (da.er, da.loss_tangent, da.name) == (db.er, db.loss_tangent, db.name)
-        assert da.thickness_mm == pytest.approx(db.thickness_mm, rel=1e-12)
+        assert da.thickness_mm == pytest.approx(db.thickness_mm, rel=1e-12, abs=0)
     assert a.nets == b.nets and a.sources == b.sources
     assert len(a.pieces) == len(b.pieces)
     for col in ("x1", "y1", "x2", "y2", "width"):

@@ -258,13 +258,23 @@ def test_crossing_exceeds_parallel_plate_area_for_narrow_traces(six_model):
     assert pf[2] == approx(2 * pf[0], 1e-9)
 
 
-def test_crossing_capped_by_overlapped_parallel_run(six_model):
+def test_crossing_cap_from_coupled_length(six_model):
+    """An interior crossing (L = max(wa, wb)/sin, as the finder reports it)
+    is not changed by the cap; a piece ending inside the crossing (shorter
+    L) is capped at C12'(wa, wb, 0) (L + 2 Delta/sin)."""
     m = six_model
-    pf = broadside_c12_pf(m, 0.1, 0.127, 0.0, 0.3, [5.0, 0.0], False)
-    cap = m.c12_per_m(0.1, 0.127, 0.0) * 0.3 * 1e-3 * 1e12
-    assert pf == approx([cap, cap], 1e-12)
+    wa, wb, ang = 0.1, 0.127, 60.0
+    s = np.sin(np.radians(ang))
+    free = broadside_c12_pf(m, wa, wb, 0.0, 0.0, ang, False)
+    interior = broadside_c12_pf(m, wa, wb, 0.0, max(wa, wb) / s, ang, False)
+    assert interior == approx(free, 1e-9)
+    short = 0.3 * max(wa, wb) / s
+    delta = m.effective_extension_mm(wa, wb)
+    capped = broadside_c12_pf(m, wa, wb, 0.0, short, ang, False)
+    assert capped == approx(m.c12_per_m(wa, wb, 0.0) * (short + 2 * delta / s) * 1e-3 * 1e12, 1e-12)
+    assert capped < free
     with pytest.raises(ValueError):
-        broadside_c12_pf(m, 0.1, 0.127, 0.0, 0.0, 0.0, False)
+        broadside_c12_pf(m, 0.1, 0.127, 0.0, 1.0, 0.0, False)
 
 
 def test_two_layer_board_without_planes_builds():

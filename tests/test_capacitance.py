@@ -29,13 +29,13 @@ ETA0 = const.mu_0 * const.c
 def test_constants_are_codata():
     # scipy.constants (CODATA): eps0, c, mu0; eta0 = mu0 c.
     assert cap.EPS0 == const.epsilon_0
-    assert cap.ETA0 == pytest.approx(const.mu_0 * const.c, rel=1e-15)
-    assert cap.ETA0 == pytest.approx(376.730313, rel=1e-8)  # CODATA 2018 Z0
+    assert cap.ETA0 == pytest.approx(const.mu_0 * const.c, rel=1e-15, abs=0)
+    assert cap.ETA0 == pytest.approx(376.730313, rel=1e-8, abs=0)  # CODATA 2018 Z0
 
 
 def test_parallel_plate_is_eps_w_over_d():
     # C' = eps0 er w / d (any electromagnetics text); eps0 from scipy.
-    assert cap.parallel_plate_per_m(1.0, 1.0, 1.0) == pytest.approx(EPS0, rel=1e-15)
+    assert cap.parallel_plate_per_m(1.0, 1.0, 1.0) == pytest.approx(EPS0, rel=1e-15, abs=0)
     got = cap.parallel_plate_per_m([2.0, 0.2], [0.5, 0.1], [4.0, 3.0])
     np.testing.assert_allclose(got, [16 * EPS0, 6 * EPS0], rtol=1e-15)
 
@@ -79,11 +79,11 @@ def test_microstrip_matches_scikit_rf(er, t_over_h):
     line = cap.hammerstad_jensen(widths, h, t, er)
     for i, w in enumerate(widths):
         z_ref, e_ref = _skrf_mline(w * 1e-3, h * 1e-3, (t * 1e-3) if t > 0 else None, er)
-        assert line.z0_ohm[i] == pytest.approx(z_ref, rel=1e-9)
-        assert line.er_eff[i] == pytest.approx(e_ref, rel=1e-9)
+        assert line.z0_ohm[i] == pytest.approx(z_ref, rel=1e-9, abs=0)
+        assert line.er_eff[i] == pytest.approx(e_ref, rel=1e-9, abs=0)
         c_ref = math.sqrt(e_ref) / (C0 * z_ref)  # C' = sqrt(eps_eff) / (c0 Z0)
         est = cap.microstrip_c_per_m(w, h, t, er)
-        assert float(est.value) == pytest.approx(c_ref, rel=1e-9)
+        assert float(est.value) == pytest.approx(c_ref, rel=1e-9, abs=0)
 
 
 def test_microstrip_textbook_case():
@@ -91,8 +91,8 @@ def test_microstrip_textbook_case():
     # er = 2.20, d = 0.127 cm, 50 ohm -> W = 0.391 cm, eps_e = 1.87, using
     # Pozar's simpler design formulas (~1 %) -> tolerance 1 %.
     line = cap.hammerstad_jensen(3.91, 1.27, 0.0, 2.20)
-    assert float(line.z0_ohm) == pytest.approx(50.0, rel=0.01)
-    assert float(line.er_eff) == pytest.approx(1.87, rel=0.01)
+    assert float(line.z0_ohm) == pytest.approx(50.0, rel=0.01, abs=0)
+    assert float(line.er_eff) == pytest.approx(1.87, rel=0.01, abs=0)
 
 
 def test_microstrip_exceeds_parallel_plate_and_flags_range():
@@ -133,7 +133,7 @@ def test_cohn_stripline_textbook_case():
     # curve-fit formula (stated ~1 %) -> tolerance 1.5 %.
     c = float(cap.stripline_c_per_m(2.66, 3.2, 0.0, 2.20).value)
     z0 = math.sqrt(2.20) / (C0 * c)
-    assert z0 == pytest.approx(50.0, rel=0.015)
+    assert z0 == pytest.approx(50.0, rel=0.015, abs=0)
 
 
 def test_cohn_stripline_wide_strip_limit():
@@ -145,7 +145,7 @@ def test_cohn_stripline_wide_strip_limit():
     for w_over_b in (3.0, 5.0, 10.0, 100.0, 1e4):
         c = float(cap.stripline_c_per_m(w_over_b, 1.0, 0.0, 3.0).value)
         limit = 2 * eps * w_over_b / 0.5 + 8 * math.log(2) / math.pi * eps
-        assert c == pytest.approx(limit, rel=2e-4)
+        assert c == pytest.approx(limit, rel=2e-4, abs=0)
 
 
 def test_wheeler_thickness_formula_reproduces_cohn_at_zero_thickness():
@@ -198,7 +198,7 @@ def test_off_centre_stripline_combination():
     # (any EM text); fringing is a fixed few eps, < 1 % at w = 500 b.
     h1, h2 = 0.2, b - t - 0.2
     wide = float(cap.stripline_c_per_m(500.0, b, t, er, h1_mm=h1).value)
-    assert wide == pytest.approx(EPS0 * er * 500.0 * (1 / h1 + 1 / h2), rel=0.01)
+    assert wide == pytest.approx(EPS0 * er * 500.0 * (1 / h1 + 1 / h2), rel=0.01, abs=0)
     assert not cap.stripline_c_per_m(0.2, b, t, er, h1_mm=0.99).in_range
 
 
@@ -233,8 +233,8 @@ def test_cohn_coupled_stripline_case():
     # ellipk evaluation of Cohn (1955); odd below single below even.
     ze, zo = _cohn_coupled_z_ellipk(0.5, 0.2, 1.0, 1.0)
     m = cap.coupled_stripline_modes(0.5, 0.2, 1.0, 1.0)
-    assert float(m.z_even_ohm) == pytest.approx(float(ze), rel=1e-10)
-    assert float(m.z_odd_ohm) == pytest.approx(float(zo), rel=1e-10)
+    assert float(m.z_even_ohm) == pytest.approx(float(ze), rel=1e-10, abs=0)
+    assert float(m.z_odd_ohm) == pytest.approx(float(zo), rel=1e-10, abs=0)
     z_single = float(_cohn_z0_ellipk(0.5, 1.0, 1.0))
     assert float(zo) < z_single < float(ze)
 
@@ -245,14 +245,14 @@ def test_cohn_coupled_stripline_limits():
     # Large gap: k_e, k_o -> tanh(pi w/2b), both modes -> single strip
     # (Cohn 1954); the residual falls as exp(-pi s/b).
     far = cap.coupled_stripline_modes(w, 8.0, b, er)
-    assert float(far.c_even_per_m) == pytest.approx(single, rel=1e-9)
-    assert float(far.c_odd_per_m) == pytest.approx(single, rel=1e-9)
+    assert float(far.c_even_per_m) == pytest.approx(single, rel=1e-9, abs=0)
+    assert float(far.c_odd_per_m) == pytest.approx(single, rel=1e-9, abs=0)
     # Gap -> 0: even mode per strip = half a strip of width 2w, by Landen's
     # transformation K(k1')/K(k1) = 2 K(k')/K(k), k1 = (1-k')/(1+k')
     # (Abramowitz & Stegun 17.5), here k1 = tanh^2(a), k = tanh(2a).
     near = cap.coupled_stripline_modes(w, 1e-9, b, er)
     double = float(cap.stripline_c_per_m(2 * w, b, 0.0, er).value)
-    assert float(near.c_even_per_m) == pytest.approx(double / 2, rel=1e-6)
+    assert float(near.c_even_per_m) == pytest.approx(double / 2, rel=1e-6, abs=0)
 
 
 def test_coupled_stripline_mutual_capacitance_behaviour():
@@ -304,8 +304,8 @@ def test_coupled_microstrip_agrees_with_garg_bahl(er):
         for g in (0.1, 0.3, 1.0, 2.0):
             m = cap.coupled_microstrip_modes(u, g, 1.0, er)
             ce, co = _garg_bahl(u, g, er)
-            assert float(m.c_even_per_m) / EPS0 == pytest.approx(ce, rel=0.04), (u, g)
-            assert float(m.c_odd_per_m) / EPS0 == pytest.approx(co, rel=0.08), (u, g)
+            assert float(m.c_even_per_m) / EPS0 == pytest.approx(ce, rel=0.04, abs=0), (u, g)
+            assert float(m.c_odd_per_m) / EPS0 == pytest.approx(co, rel=0.08, abs=0), (u, g)
 
 
 @pytest.mark.parametrize("er", [1.0, 2.2, 4.4])
@@ -315,8 +315,8 @@ def test_coupled_microstrip_large_gap_tends_to_single_line(er):
     for u in (0.2, 1.0, 3.0):
         single = float(cap.microstrip_c_per_m(u, 1.0, 0.0, er).value)
         m = cap.coupled_microstrip_modes(u, 10.0, 1.0, er)
-        assert float(m.c_even_per_m) == pytest.approx(single, rel=0.02)
-        assert float(m.c_odd_per_m) == pytest.approx(single, rel=0.02)
+        assert float(m.c_even_per_m) == pytest.approx(single, rel=0.02, abs=0)
+        assert float(m.c_odd_per_m) == pytest.approx(single, rel=0.02, abs=0)
 
 
 def test_coupled_microstrip_even_mode_permittivity_at_zero_gap():
@@ -325,7 +325,7 @@ def test_coupled_microstrip_even_mode_permittivity_at_zero_gap():
     # (Hammerstad & Jensen eps_eff of width 2w).
     m = cap.coupled_microstrip_modes(0.7, 1e-6, 1.0, 4.4)
     merged = float(cap.hammerstad_jensen(1.4, 1.0, 0.0, 4.4).er_eff)
-    assert float(m.er_eff_even) == pytest.approx(merged, rel=1e-5)
+    assert float(m.er_eff_even) == pytest.approx(merged, rel=1e-5, abs=0)
 
 
 @pytest.mark.parametrize("er", [2.2, 3.5, 4.4])
@@ -360,7 +360,7 @@ def test_coplanar_strips_symmetric_case():
     # C' = eps (Gupta et al. 1996, coplanar strips, exact).
     w = 1.0
     s = 2 * w / (math.sqrt(2) - 1)
-    assert float(cap.coplanar_strips_c12_per_m(w, s, 2.5)) == pytest.approx(2.5 * EPS0, rel=1e-12)
+    assert float(cap.coplanar_strips_c12_per_m(w, s, 2.5)) == pytest.approx(2.5 * EPS0, rel=1e-12, abs=0)
 
 
 def test_c2g_dispatch():
@@ -384,14 +384,14 @@ def test_edge_c12_dispatch_and_mean_width():
     sl = Reference("stripline", 0.5, 4.0, 0.2325)  # centred: (0.5 - 0.035)/2
     est = cap.edge_c12_per_m(sl, 0.1, 0.2, 0.15, 0.035)
     ref = cap.coupled_stripline_modes(0.15, 0.15, 0.5, 4.0, 0.035, h1_mm=0.2325)
-    assert float(est.value) == pytest.approx(float(ref.c12_per_m), rel=1e-12)
+    assert float(est.value) == pytest.approx(float(ref.c12_per_m), rel=1e-12, abs=0)
     assert bool(est.in_range)
     ms = Reference("microstrip", 0.2, 4.4)
     est = cap.edge_c12_per_m(ms, [0.2, 0.2], [0.2, 0.2], [0.2, 3.0], 0.0)
     ref = cap.coupled_microstrip_modes(0.2, [0.2, 3.0], 0.2, 4.4)
-    assert float(est.value[0]) == pytest.approx(float(ref.c12_per_m[0]), rel=1e-12)
+    assert float(est.value[0]) == pytest.approx(float(ref.c12_per_m[0]), rel=1e-12, abs=0)
     assert est.in_range.tolist() == [True, False]
     assert np.all(est.value >= 0)
     none = cap.edge_c12_per_m(Reference("none", 0.0, 1.0), 0.2, 0.2, 0.2, 0.035)
-    assert float(none.value) == pytest.approx(float(cap.coplanar_strips_c12_per_m(0.2, 0.2, 1.0)))
+    assert float(none.value) == pytest.approx(float(cap.coplanar_strips_c12_per_m(0.2, 0.2, 1.0)), rel=1e-12, abs=0)
     assert not none.in_range

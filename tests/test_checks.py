@@ -98,8 +98,8 @@ def test_crossing_angle_30_degrees(tmp_path):
     assert len(result.findings) == 1
     # hand: coupled length of a 30 deg interior crossing = w / sin 30 = 0.15 / 0.5 = 0.3 mm;
     # overlap area = wa * wb / sin 30 = 0.0225 / 0.5 = 0.045 mm2
-    assert result.findings[0].value == pytest.approx(0.3, rel=1e-6)
-    assert result.findings[0].area_mm2 == pytest.approx(0.045, rel=1e-6)
+    assert result.findings[0].value == pytest.approx(0.3, rel=1e-6, abs=0)
+    assert result.findings[0].area_mm2 == pytest.approx(0.045, rel=1e-6, abs=0)
     assert check_board(b, rules(tmp_path, CROSSING.format(max_length="0.35 mm"))).findings == []
 
 
@@ -177,7 +177,7 @@ def test_capacitance_budget_compares_total(tmp_path):
     assert total > 0
     low = check_board(b, rules(tmp_path, f"- {{name: c, kind: capacitance-budget, max_c12: {total * 0.99} pF}}\n"))
     high = check_board(b, rules(tmp_path, f"- {{name: c, kind: capacitance-budget, max_c12: {total * 1.01} pF}}\n"))
-    assert len(low.findings) == 1 and low.findings[0].value == pytest.approx(total, rel=1e-9)
+    assert len(low.findings) == 1 and low.findings[0].value == pytest.approx(total, rel=1e-9, abs=0)
     assert high.findings == []
 
 
@@ -192,7 +192,7 @@ def test_noise_budget_matches_lumped_model(tmp_path):
     w = 2 * math.pi * 10e6
     expected = w * 1e4 * c12 * 3.3 / math.sqrt(1 + (w * 1e4 * (c12 + c2g)) ** 2)
     assert len(result.findings) == 1
-    assert result.findings[0].value == pytest.approx(expected * 1e3, rel=1e-9)
+    assert result.findings[0].value == pytest.approx(expected * 1e3, rel=1e-9, abs=0)
     # the victim's capacitance to ground includes its 10 pF node capacitance
     assert c2g > 10e-12
 

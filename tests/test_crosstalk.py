@@ -21,10 +21,10 @@ def test_hand_calculation():
     #   |Vn| = 3.141593e-3 * 3.3 / 1.000597 = 1.036726e-2 / 1.000597
     #        = 1.036107e-2 V  (10.361 mV)
     vn = xt.lumped_noise_v(50.0, 1e-12, 10e-12, 3.3, 10e6)
-    assert float(vn) == pytest.approx(1.036107e-2, rel=2e-6)
+    assert float(vn) == pytest.approx(1.036107e-2, rel=2e-6, abs=0)
     # small-R form: omega R C12 V1 = 3.141593e-3 * 3.3 = 1.036726e-2 V
     small = xt.lumped_noise_small_r_v(50.0, 1e-12, 10e-12, 3.3, 10e6)
-    assert float(small) == pytest.approx(1.036726e-2, rel=2e-6)
+    assert float(small) == pytest.approx(1.036726e-2, rel=2e-6, abs=0)
 
 
 def test_small_r_limit_agrees():
@@ -42,8 +42,8 @@ def test_small_r_limit_agrees():
 def test_high_r_limit_is_the_capacitive_divider():
     # R -> infinity: |Vn| -> V1 C12 / (C12 + C2G) = 3.3 * 1/11 = 0.3 V.
     ceiling = xt.divider_ceiling_v(1e-12, 10e-12, 3.3)
-    assert float(ceiling) == pytest.approx(0.3, rel=1e-12)
-    assert float(xt.lumped_noise_v(1e12, 1e-12, 10e-12, 3.3, 10e6)) == pytest.approx(0.3, rel=1e-9)
+    assert float(ceiling) == pytest.approx(0.3, rel=1e-12, abs=0)
+    assert float(xt.lumped_noise_v(1e12, 1e-12, 10e-12, 3.3, 10e6)) == pytest.approx(0.3, rel=1e-9, abs=0)
     # and the noise never exceeds it, for any R
     R = np.geomspace(1e-3, 1e9, 200)
     vn = xt.lumped_noise_v(R, 1e-12, 10e-12, 3.3, 10e6)
@@ -53,7 +53,7 @@ def test_high_r_limit_is_the_capacitive_divider():
 
 def test_small_r_overread_threshold_is_0_46():
     # small / full = sqrt(1 + x^2) = 1.1  ->  x = sqrt(0.21) = 0.4583.
-    assert xt.SMALL_R_LIMIT == pytest.approx(math.sqrt(0.21), rel=1e-12)
+    assert xt.SMALL_R_LIMIT == pytest.approx(math.sqrt(0.21), rel=1e-12, abs=0)
     c12, c2g, f = 1e-12, 10e-12, 10e6
     w = 2 * math.pi * f
     for x, over in ((0.45, False), (0.46, True)):
@@ -80,13 +80,13 @@ def test_single_pole_rise_time_bandwidth_product():
         return 20 * math.log10(abs(h[0])) + 10 * math.log10(2)
 
     f3 = optimize.brentq(gain_db_plus_3, 1e6, 1e10, xtol=1e-3)
-    assert tr * f3 == pytest.approx(math.log(9) / (2 * math.pi), rel=1e-4)
+    assert tr * f3 == pytest.approx(math.log(9) / (2 * math.pi), rel=1e-4, abs=0)
     # the module's default factor is that product, rounded to 0.35
-    assert float(xt.edge_frequency_hz(tr)) == pytest.approx(f3, rel=0.002)
+    assert float(xt.edge_frequency_hz(tr)) == pytest.approx(f3, rel=0.002, abs=0)
 
 
 def test_edge_frequency_factors():
     # 0.35 / 1 ns = 350 MHz (single pole); Johnson & Graham knee 0.5 / 1 ns.
-    assert float(xt.edge_frequency_hz(1e-9)) == pytest.approx(350e6, rel=1e-12)
-    assert float(xt.edge_frequency_hz(1e-9, factor=xt.KNEE_FACTOR)) == pytest.approx(500e6, rel=1e-12)
+    assert float(xt.edge_frequency_hz(1e-9)) == pytest.approx(350e6, rel=1e-12, abs=0)
+    assert float(xt.edge_frequency_hz(1e-9, factor=xt.KNEE_FACTOR)) == pytest.approx(500e6, rel=1e-12, abs=0)
     np.testing.assert_allclose(xt.edge_frequency_hz([1e-9, 2e-9, 5e-10]), [350e6, 175e6, 700e6], rtol=1e-12)

@@ -90,9 +90,17 @@ i.e. Delta is the edge extension that makes the parallel-plate formula
 reproduce the solved C12' of the same two traces overlapped and parallel
 (the overlap of two parallel strips is the narrower width). *d* is
 ``checker.stackup.separation_mm`` and er_eff ``checker.stackup.effective_er``
-(series permittivity). The crossing value is capped at C12'(wa, wb, 0) times
-``length_mm`` when that is positive and finite (a crossing cannot couple
-more than the same pieces overlapped and parallel over that length).
+(series permittivity). For wa <= wb this is C12'(wa, wb, 0) times
+(wb + 2 Delta)/|sin theta|: the parallel value over the length of a's
+centreline inside b's band widened by the fringing reach Delta on each side.
+
+Where a piece ends inside the crossing that length is shorter, so the value
+is capped at C12'(wa, wb, 0) (L + 2 Delta/|sin theta|), with L =
+``length_mm`` the coupled centreline length as ``checker.finder.pairs``
+reports it (the longer of the two centrelines clipped to the other piece's
+band and to both pieces' ends; max(wa, wb)/|sin theta| for an interior
+crossing, where the cap equals the formula and changes nothing). The cap is
+skipped when ``length_mm`` is not positive and finite.
 
 References
 ----------
@@ -379,8 +387,8 @@ def broadside_c12_pf(model: BroadsideModel, wa, wb, offset_mm, length_mm, angle_
         crossings).
     length_mm : array_like
         Parallel pairs: the coupled (overlapping) run length, mm. Crossings:
-        an upper bound on the coupled length (cap), ignored when <= 0 or
-        not finite.
+        the coupled centreline length L (mm) used for the cap described in
+        the module docstring; ignored when <= 0 or not finite.
     angle_deg : array_like
         Angle between the pieces, degrees (crossings only).
     parallel : array_like of bool
@@ -391,8 +399,8 @@ def broadside_c12_pf(model: BroadsideModel, wa, wb, offset_mm, length_mm, angle_
     numpy.ndarray
         pF per pair. Parallel: C12'(wa, wb, offset) x length. Crossing:
         eps0 er_eff we_a we_b / (d |sin(angle)|) (module docstring), capped
-        as described. A crossing at angle 0 or 180 with no cap raises
-        ValueError.
+        as described there. A crossing at angle 0 or 180 raises ValueError
+        (mark it parallel).
     """
     wa, wb, off, length, angle, par = np.broadcast_arrays(
         np.asarray(wa, float), np.asarray(wb, float), np.asarray(offset_mm, float),
@@ -410,12 +418,11 @@ def broadside_c12_pf(model: BroadsideModel, wa, wb, offset_mm, length_mm, angle_
         we_a = np.maximum(a + 2 * delta, 0.0)
         we_b = np.maximum(b + 2 * delta, 0.0)
         s = np.abs(np.sin(np.radians(angle[cross])))
-        cap_len = length[cross]
-        capped = np.isfinite(cap_len) & (cap_len > 0)
-        if np.any((s < 1e-12) & ~capped):
-            raise ValueError("a crossing at 0 or 180 degrees needs a positive length_mm cap; mark it parallel instead")
-        with np.errstate(divide="ignore", invalid="ignore"):
-            c = epsilon_0 * model.er_eff * we_a * we_b / (d * s) * 1e-3  # mm^2/mm -> m: F
-        cap = c_overlap * np.where(capped, cap_len, np.inf) * 1e-3
-        out[cross] = np.minimum(c, cap) * 1e12
+        if np.any(s < 1e-9):
+            raise ValueError("a crossing at 0 or 180 degrees has no finite overlap; mark it parallel instead")
+        c = epsilon_0 * model.er_eff * we_a * we_b / (d * s) * 1e-3  # mm^2/mm -> m: F
+        length_c = length[cross]
+        capped = np.isfinite(length_c) & (length_c > 0)
+        reach = np.where(capped, length_c, np.inf) + 2 * np.maximum(delta, 0.0) / s  # mm
+        out[cross] = np.minimum(c, c_overlap * reach * 1e-3) * 1e12
     return out
