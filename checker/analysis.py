@@ -22,6 +22,11 @@ from .ruleset import NetClass, Rule, RuleSet
 from .stackup import broadside_pairs, reference_of
 
 BROADSIDE, EDGE = 0, 1
+
+#: Smallest edge-to-edge gap (mm) the edge-coupling closed forms are asked
+#: about. Copper of two nets closer than this on one layer is a short or a
+#: clearance error for the design-rule check, not a coupling estimate.
+EDGE_GAP_FLOOR_MM = 0.01
 KIND_NAMES = ("broadside", "edge")
 
 
@@ -105,6 +110,7 @@ class Analysis:
     notes: list[str]
     layer_pairs: list[tuple[int, int]]
     pairs_examined: int
+    _pair_groups: tuple[np.ndarray, np.ndarray] | None = field(default=None, repr=False)
 
     # --- helpers the checks share -------------------------------------
     def class_mask(self, names: tuple[str, ...]) -> np.ndarray:
@@ -130,6 +136,17 @@ class Analysis:
         pieces touch along a polyline or share a piece, for one net pair."""
         c = self.couplings
         return run_labels(self.board.pieces, c.a[rows], c.b[rows], c.net_b[rows], c.net_a[rows])
+
+    def rows_of_pairs(self, pairs: np.ndarray) -> np.ndarray:
+        """Indices of the coupled rows of the net pairs ``pairs``, via a
+        grouping by net pair computed once (no scan per call)."""
+        if self._pair_groups is None:
+            order = np.argsort(self.net_pairs.row_pair, kind="stable")
+            starts = np.searchsorted(self.net_pairs.row_pair[order], np.arange(len(self.net_pairs) + 1))
+            self._pair_groups = (order, starts)
+        order, starts = self._pair_groups
+        pairs = np.atleast_1d(pairs)
+        return np.concatenate([order[starts[k]:starts[k + 1]] for k in pairs]) if pairs.size else order[:0]
 
     def net_name(self, index: int) -> str:
         return self.board.nets[index].name
@@ -204,7 +221,12 @@ def _edge_c12(board: Board, t: PairTable, layer: int, notes: list[str]) -> np.nd
     p = board.pieces
     ref = reference_of(board.stackup, layer)
     thickness = board.stackup.layers[layer].thickness_mm
-    gap = np.maximum(t.gap_mm, 0.0)
+    touching = int(np.count_nonzero(t.gap_mm < EDGE_GAP_FLOOR_MM))
+    if touching:
+        notes.append(
+            f"{board.stackup.layers[layer].name}: {touching} piece pairs of different nets are closer than "
+            f"{EDGE_GAP_FLOOR_MM} mm or touch (a clearance error); their C12 is taken at {EDGE_GAP_FLOOR_MM} mm")
+    gap = np.maximum(t.gap_mm, EDGE_GAP_FLOOR_MM)
     per_m, in_range = capacitance.edge_c12_per_m(ref, p.width[t.a], p.width[t.b], gap, thickness)
     outside = int(np.count_nonzero(~in_range))
     if outside:

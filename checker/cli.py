@@ -7,7 +7,6 @@ findings only), 2 bad input or usage, 3 an internal error.
 from __future__ import annotations
 
 import argparse
-import io
 import os
 import sys
 import tempfile
@@ -99,27 +98,24 @@ def _check(board_path: str, args: argparse.Namespace) -> int:
         result = check_board(board, ruleset)
 
     if args.format == "json":
-        text = json_report.render(result)
+        emit = lambda handle: json_report.write(result, handle)  # noqa: E731
     elif args.out:
-        buffer = io.StringIO()
-        terminal.render(result, Console(file=buffer, width=140, color_system=None, soft_wrap=True))
-        text = buffer.getvalue()
+        emit = lambda handle: terminal.render(  # noqa: E731
+            result, Console(file=handle, width=140, color_system=None, soft_wrap=True))
     else:
         console = Console()
         if not console.is_terminal:  # piped or captured: room for the whole table
             console = Console(width=max(console.width, 132))
-        terminal.render(result, console)
-        text = None
-    if text is not None:
-        if args.out:
-            write_atomically(args.out, text)
-        else:
-            sys.stdout.write(text)
+        emit = lambda handle: terminal.render(result, console)  # noqa: E731
+    if args.out:
+        write_atomically(args.out, emit)
+    else:
+        emit(sys.stdout)
     failing = [f for f in result.findings if args.fail_on == "warning" or f.severity == "error"]
     return EXIT_FINDINGS if failing else EXIT_CLEAN
 
 
-def write_atomically(path: str, text: str) -> None:
+def write_atomically(path: str, emit) -> None:
     """Write to a temporary file beside ``path`` and rename it into place,
     so an interrupted run never leaves a half-written report."""
     target = Path(path)
@@ -129,7 +125,7 @@ def write_atomically(path: str, text: str) -> None:
     fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=directory)
     try:
         with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as handle:
-            handle.write(text)
+            emit(handle)
         os.replace(tmp, target)
     except BaseException:
         if os.path.exists(tmp):

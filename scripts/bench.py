@@ -74,13 +74,16 @@ def one(n: int, seed: int) -> dict:
     cpu0 = time.process_time()
     result = check_board(board, ruleset)
     t_check = time.perf_counter() - t0
-    text = json_report.render(result)
+    check_peak_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    with tempfile.TemporaryFile("w+", encoding="utf-8") as handle:
+        json_report.write(result, handle)
+        report_mb = handle.tell() / 2**20
     total = time.perf_counter() - t0
     return {
         "n": n, "pieces": len(board.pieces), "seconds": total, "check_seconds": t_check,
         "report_seconds": total - t_check, "cpu_seconds": time.process_time() - cpu0,
         "pairs_examined": result.analysis.pairs_examined, "net_pairs": len(result.analysis.net_pairs),
-        "findings": len(result.findings), "report_mb": len(text) / 2**20,
+        "findings": len(result.findings), "report_mb": report_mb, "check_peak_mb": check_peak_mb,
         "peak_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024, "base_mb": base_mb,
     }
 
@@ -97,13 +100,16 @@ def main(argv: list[str] | None = None) -> None:
     prev = None
     for n in args.sizes:
         proc = subprocess.run([sys.executable, __file__, "--one", str(n), "--seed", str(args.seed)],
-                              capture_output=True, text=True, check=True)
+                              capture_output=True, text=True)
+        if proc.returncode:
+            sys.exit(f"size {n} failed:\n{proc.stderr}")
         r = json.loads(proc.stdout.strip().splitlines()[-1])
         print(f"{n:>9,} pieces/layer: {r['seconds']:6.2f} s wall ({r['check_seconds']:.2f} check + "
               f"{r['report_seconds']:.2f} report, cpu {r['cpu_seconds']:.2f} s), "
               f"{r['pieces'] / r['seconds']:,.0f} pieces/s, {r['pairs_examined']:,} pairs, "
               f"{r['net_pairs']:,} net pairs, {r['findings']:,} findings, "
-              f"peak RSS {r['peak_mb']:,.0f} MB (board alone {r['base_mb']:,.0f} MB)")
+              f"JSON report {r['report_mb']:,.0f} MB, peak RSS {r['peak_mb']:,.0f} MB "
+              f"(board alone {r['base_mb']:,.0f} MB, after the check {r['check_peak_mb']:,.0f} MB)")
         if prev is not None:
             print(f"    x{n / prev['n']:.0f} pieces -> x{r['seconds'] / prev['seconds']:.1f} time")
         prev = r

@@ -35,7 +35,7 @@ def check(rule, ctx):
     limit_pf = rule.options["max_c12"] * 1e12
     applies, aggressor = ctx.orient(rule, np_.net_a, np_.net_b)
     for k in np.flatnonzero(applies & (np_.c12_pf > limit_pf)):
-        rows = np.flatnonzero(np_.row_pair == k)
+        rows = ctx.rows_of_pairs(k)
         worst = int(rows[np.argmax(c.c12_pf[rows])])
         bbox, at, layers = run_place(ctx, rows, worst)
         agg = int(aggressor[k])

@@ -49,14 +49,15 @@ def check(rule, ctx):
     pair = np.concatenate([np.arange(len(np_)), np.arange(len(np_))])
     use = agg_ok[aggressors] & vic_ok[victims] & np.isfinite(noise)
     aggressors, victims, noise, pair = aggressors[use], victims[use], noise[use], pair[use]
-    for victim in np.unique(victims):
-        mine = np.flatnonzero(victims == victim)
-        total = float(noise[mine].sum())
-        if total <= limit:
-            continue
+    totals = np.bincount(victims, weights=noise, minlength=len(ctx.board.nets))
+    by_victim = np.argsort(victims, kind="stable")
+    starts = np.searchsorted(victims[by_victim], np.arange(len(ctx.board.nets) + 1))
+    for victim in np.flatnonzero(totals > limit):
+        mine = by_victim[starts[victim]:starts[victim + 1]]
+        total = float(totals[victim])
         order = mine[np.argsort(-noise[mine], kind="stable")]
         main = int(aggressors[order[0]])
-        rows = np.flatnonzero(np.isin(np_.row_pair, pair[mine]))
+        rows = ctx.rows_of_pairs(pair[mine])
         worst = int(rows[np.argmax(c.c12_pf[rows])])
         bbox, at, layers = run_place(ctx, rows, worst)
         others = len(order) - 1

@@ -6,13 +6,14 @@ to six significant digits.
 
 from __future__ import annotations
 
+import io
 import json
 import math
+from typing import Iterator, TextIO
 
 import numpy as np
 
 from .. import __version__
-from ..findings import _round_sig
 from ..runner import Result
 from . import CAUTION
 
@@ -42,31 +43,40 @@ def summary(result: Result) -> dict:
     }
 
 
-def _num(value: float) -> float | None:
-    value = float(value)
-    return None if not math.isfinite(value) else _round_sig(value)
+def _fmt(values: np.ndarray) -> list[str]:
+    """JSON numbers to six significant digits; ``null`` where not finite."""
+    return [f"{v:.6g}" if math.isfinite(v) else "null" for v in values.tolist()]
 
 
-def net_pair_rows(result: Result) -> list[dict]:
-    """Every coupled net pair, worst noise first, then largest C12."""
+def net_pair_lines(result: Result, chunk: int = 50_000) -> Iterator[list[str]]:
+    """Every coupled net pair as one compact JSON object per line, in chunks,
+    worst noise first, then largest C12, then net order.
+
+    ``noise_mv_on`` maps each net of the pair to the noise the other couples
+    onto it (``null`` where the net classes lack the model's inputs).
+    Formatted with f-strings over arrays, a chunk at a time: a large board
+    has millions of pairs, and the standard encoder with indentation is far
+    too slow and a whole list of lines too big.
+    """
     a = result.analysis
     p = a.net_pairs
-    rows = []
-    for k in range(len(p)):
-        na, nb = a.net_name(int(p.net_a[k])), a.net_name(int(p.net_b[k]))
-        noise = {f"{na} -> {nb}": _num(p.noise_ab_v[k] * 1e3), f"{nb} -> {na}": _num(p.noise_ba_v[k] * 1e3)}
-        worst = np.nanmax([p.noise_ab_v[k], p.noise_ba_v[k]]) if not (
-            np.isnan(p.noise_ab_v[k]) and np.isnan(p.noise_ba_v[k])) else -1.0
-        rows.append((-float(worst), -float(p.c12_pf[k]), na, nb, {
-            "nets": [na, nb],
-            "broadside_length_mm": _num(p.broadside_length_mm[k]),
-            "edge_length_mm": _num(p.edge_length_mm[k]),
-            "overlap_area_mm2": _num(p.area_mm2[k]),
-            "c12_pf": _num(p.c12_pf[k]),
-            "noise_mv": noise,
-        }))
-    rows.sort(key=lambda r: r[:4])
-    return [r[4] for r in rows]
+    if len(p) == 0:
+        return
+    worst = np.fmax(p.noise_ab_v, p.noise_ba_v)
+    worst = np.where(np.isnan(worst), -1.0, worst)
+    order = np.lexsort((p.net_b, p.net_a, -p.c12_pf, -worst))
+    names = [json.dumps(n.name, ensure_ascii=False) for n in a.board.nets]
+    columns = (p.broadside_length_mm, p.edge_length_mm, p.area_mm2, p.c12_pf, p.noise_ab_v * 1e3,
+               p.noise_ba_v * 1e3)
+    for start in range(0, order.size, chunk):
+        part = order[start:start + chunk]
+        na, nb = p.net_a[part].tolist(), p.net_b[part].tolist()
+        cols = [_fmt(v[part]) for v in columns]
+        yield [
+            f'{{"nets": [{names[i]}, {names[j]}], "broadside_length_mm": {bl}, "edge_length_mm": {el}, '
+            f'"overlap_area_mm2": {ar}, "c12_pf": {c}, "noise_mv_on": {{{names[j]}: {ab}, {names[i]}: {ba}}}}}'
+            for i, j, bl, el, ar, c, ab, ba in zip(na, nb, *cols)
+        ]
 
 
 def build_report(result: Result) -> dict:
@@ -97,7 +107,7 @@ def build_report(result: Result) -> dict:
         },
         "summary": summary(result),
         "findings": [f.to_dict() for f in result.findings],
-        "net_pairs": net_pair_rows(result),
+        "net_pairs": _NET_PAIRS,
         "notes": sorted(set(a.notes)),
         "caution": CAUTION,
     }
@@ -111,5 +121,27 @@ def _interleave(stackup):
             yield None, stackup.dielectrics[i]
 
 
+_NET_PAIRS = "@@net_pairs@@"
+
+
+def write(result: Result, out: TextIO) -> None:
+    """Write the report: indented JSON, with the (possibly huge) list of net
+    pairs one object per line, streamed in chunks."""
+    head = json.dumps(build_report(result), indent=2, ensure_ascii=False, allow_nan=False)
+    before, after = head.split(json.dumps(_NET_PAIRS), 1)
+    out.write(before)
+    out.write("[")
+    first = True
+    for lines in net_pair_lines(result):
+        out.write(("\n    " if first else ",\n    ") + ",\n    ".join(lines))
+        first = False
+    out.write("]" if first else "\n  ]")
+    out.write(after)
+    out.write("\n")
+
+
 def render(result: Result) -> str:
-    return json.dumps(build_report(result), indent=2, ensure_ascii=False, allow_nan=False) + "\n"
+    """The whole report as one string (see :func:`write`)."""
+    buffer = io.StringIO()
+    write(result, buffer)
+    return buffer.getvalue()
