@@ -66,6 +66,9 @@ def main(argv: list[str] | None = None) -> int:
     except CouplintError as exc:
         print(f"couplint: error: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
+    except BrokenPipeError:  # e.g. piped into `head`: stop quietly
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return EXIT_CLEAN
     except KeyboardInterrupt:
         print("couplint: interrupted", file=sys.stderr)
         return 130
