@@ -91,6 +91,10 @@ class NetPairs:
     noise_small_r_ba_v: np.ndarray
     #: index of each coupled pair row's net pair (into these arrays)
     row_pair: np.ndarray = field(repr=False, default_factory=lambda: np.zeros(0, np.int64))
+    #: per net pair, a bit mask of the layer groups it couples on (bit k =
+    #: ``layer_groups[k]``), and the groups: (kind, layer_a, layer_b)
+    layer_mask: np.ndarray = field(repr=False, default_factory=lambda: np.zeros(0, np.int64))
+    layer_groups: tuple[tuple[int, int, int], ...] = ()
 
     def __len__(self) -> int:
         return int(self.net_a.shape[0])
@@ -179,8 +183,15 @@ def electrical_attributes(board: Board, ruleset: RuleSet, classes: list[tuple[st
     return out
 
 
+def analysis_steps(board: Board, ruleset: RuleSet) -> int:
+    """How many times :func:`analyse` calls its ``progress`` callback."""
+    layers = np.unique(board.pieces.layer).size if len(board.pieces) else 0
+    return len(broadside_pairs(board.stackup, ruleset.settings.planes_shield)) + layers + 1
+
+
 def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=None) -> tuple[Couplings, list[tuple[int, int]], int]:
-    """Search every neighbouring layer pair (broadside) and every layer (edge)."""
+    """Search every neighbouring layer pair (broadside) and every layer
+    (edge); ``progress(description)`` is called before each search."""
     s = ruleset.settings
     pieces = board.pieces
     stackup = board.stackup
@@ -191,7 +202,8 @@ def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=No
     tables: list[tuple[int, PairTable, np.ndarray]] = []
     for kind, u, l in tasks:
         if progress is not None:
-            progress(f"{kind} {stackup.layers[u].name}" + (f"/{stackup.layers[l].name}" if u != l else ""))
+            where = stackup.layers[u].name + (f"/{stackup.layers[l].name}" if u != l else "")
+            progress(f"{kind} coupling on {where}")
         if kind == "broadside":
             t = find_broadside(pieces, u, l, s.broadside_search_mm, s.parallel_angle_deg)
             c12 = _broadside_c12(board, t, u, l, s.broadside_search_mm)
@@ -200,7 +212,7 @@ def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=No
             t = find_edge(pieces, u, s.edge_search_mm, s.parallel_angle_deg)
             c12 = _edge_c12(board, t, u, notes)
             tables.append((EDGE, t, c12))
-    examined = sum(len(t) for _, t, _ in tables)
+    examined = sum(t.candidates for _, t, _ in tables)
     couplings = _assemble(board, tables)
     return couplings, layer_pairs, examined
 
@@ -313,7 +325,21 @@ def aggregate_net_pairs(board: Board, c: Couplings, electrical: NetElectrical, c
         noise_small_r_ba_v=_noise(electrical, net_b, net_a, c12, c2g_pf, crosstalk.lumped_noise_small_r_v),
         row_pair=inv.astype(np.int64),
     )
+    pairs.layer_groups, pairs.layer_mask = _layer_masks(c, inv, m)
     return pairs
+
+
+def _layer_masks(c: Couplings, inv: np.ndarray, m: int) -> tuple[tuple[tuple[int, int, int], ...], np.ndarray]:
+    """Which (kind, layer, layer) groups each net pair couples on, as bit masks."""
+    lo, hi = np.minimum(c.layer_a, c.layer_b), np.maximum(c.layer_a, c.layer_b)
+    key = (c.kind.astype(np.int64) * 4096 + lo) * 4096 + hi
+    groups, gidx = np.unique(key, return_inverse=True)
+    if groups.size > 62:  # more layer groups than bits: keep the mask for the first 62
+        gidx = np.where(gidx < 62, gidx, 62)
+    mask = np.zeros(m, np.int64)
+    np.bitwise_or.at(mask, inv, np.left_shift(np.int64(1), gidx.astype(np.int64)))
+    decoded = tuple((int(g // 4096 // 4096), int(g // 4096 % 4096), int(g % 4096)) for g in groups[:62])
+    return decoded, mask
 
 
 def _noise(e: NetElectrical, aggressor: np.ndarray, victim: np.ndarray, c12_pf: np.ndarray,
@@ -324,12 +350,16 @@ def _noise(e: NetElectrical, aggressor: np.ndarray, victim: np.ndarray, c12_pf: 
 
 
 def analyse(board: Board, ruleset: RuleSet, progress=None) -> Analysis:
-    """Run the whole physical analysis of ``board`` under ``ruleset``'s settings."""
+    """Run the whole physical analysis of ``board`` under ``ruleset``'s
+    settings; ``progress(description)``, if given, is called before each of
+    the :func:`analysis_steps` steps."""
     notes: list[str] = []
     names = [net.name for net in board.nets]
     classes = ruleset.classify(names)
     electrical = electrical_attributes(board, ruleset, classes)
     couplings, layer_pairs, examined = find_couplings(board, ruleset, notes, progress)
+    if progress is not None:
+        progress("capacitance to ground and noise")
     c2g = net_capacitance_to_ground_pf(board, electrical, notes)
     net_pairs = aggregate_net_pairs(board, couplings, electrical, c2g)
     return Analysis(board, ruleset, couplings, net_pairs, electrical, c2g, classes, notes,

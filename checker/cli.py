@@ -14,6 +14,7 @@ from importlib import resources
 from pathlib import Path
 
 from rich.console import Console
+from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
 from . import __version__
 from .errors import CouplintError, UsageError
@@ -94,9 +95,15 @@ def _check(board_path: str, args: argparse.Namespace) -> int:
     ruleset = load_ruleset(args.rules) if args.rules else default_ruleset()
     board = load_board(board_path)
     err = Console(stderr=True)
-    if err.is_terminal:
-        with err.status("checking", spinner="line") as status:
-            result = check_board(board, ruleset, progress=lambda what: status.update(f"checking {what}"))
+    if err.is_terminal:  # a progress bar on stderr; never in pipes or CI logs
+        with Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
+                      TimeElapsedColumn(), console=err, transient=True) as bar:
+            task = bar.add_task("checking", total=None)
+
+            def progress(what: str, done: int, total: int) -> None:
+                bar.update(task, description=what, completed=done, total=total)
+
+            result = check_board(board, ruleset, progress=progress)
     else:
         result = check_board(board, ruleset)
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 import time
 from dataclasses import dataclass
 
-from .analysis import Analysis, analyse
+from .analysis import Analysis, analyse, analysis_steps
 from .checks import REGISTRY
 from .errors import CouplintError
 from .findings import Finding, sort_findings
@@ -26,10 +26,12 @@ class Result:
     seconds: float
 
 
-def run_checks(analysis: Analysis) -> list[Finding]:
+def run_checks(analysis: Analysis, progress=None) -> list[Finding]:
     """Every rule's findings, worst first."""
     findings: list[Finding] = []
     for rule in analysis.ruleset.rules:
+        if progress is not None:
+            progress(f"rule {rule.name}")
         module = REGISTRY[rule.kind]
         try:
             findings.extend(module.check(rule, analysis))
@@ -42,8 +44,17 @@ def run_checks(analysis: Analysis) -> list[Finding]:
 
 
 def check_board(board: Board, ruleset: RuleSet, progress=None) -> Result:
-    """Analyse ``board`` and apply ``ruleset``."""
+    """Analyse ``board`` and apply ``ruleset``. ``progress(description,
+    done, total)``, if given, is called before each step of the work."""
     start = time.perf_counter()
-    analysis = analyse(board, ruleset, progress)
-    findings = run_checks(analysis)
+    step = None
+    if progress is not None:
+        total = analysis_steps(board, ruleset) + len(ruleset.rules)
+        done = iter(range(total))
+
+        def step(description: str) -> None:
+            progress(description, next(done, total), total)
+
+    analysis = analyse(board, ruleset, step)
+    findings = run_checks(analysis, step)
     return Result(analysis, findings, time.perf_counter() - start)

@@ -134,3 +134,81 @@ def test_console_script_runs(tmp_path):
                           capture_output=True, text=True, timeout=300)
     assert proc.returncode == 1, proc.stderr
     assert json.loads(proc.stdout)["summary"]["verdict"] == "fail"
+
+
+def test_progress_reports_every_step():
+    from checker.readers import load_board
+    from checker.ruleset import default_ruleset
+    from checker.runner import check_board
+
+    calls = []
+    board = load_board(demo_board_path())
+    check_board(board, default_ruleset(), progress=lambda what, done, total: calls.append((what, done, total)))
+    # demo: 1 broadside layer pair (TOP/IN1), 3 layers with pieces (the GND plane holds only
+    # regions), 1 ground/noise step, 5 rules = 10 steps
+    assert [c[1] for c in calls] == list(range(10))
+    assert {c[2] for c in calls} == {10}
+    assert calls[0][0] == "broadside coupling on TOP/IN1" and calls[-1][0].startswith("rule ")
+
+
+def _demo_data():
+    return json.loads(demo_board_path().read_text(encoding="utf-8"))
+
+
+def _bad_boards():
+    """(name, mutate, expected place in the message) for each class of bad board input."""
+    def unknown_layer(d):
+        d["tracks"][0]["layer"] = "L9"
+
+    def unknown_net(d):
+        d["tracks"][0]["net"] = "NOPE"
+
+    def zero_width(d):
+        d["tracks"][2]["width"] = 0
+
+    def self_intersecting(d):
+        d["regions"][0]["outline"] = [[0, 0], [4, 4], [4, 0], [0, 4]]
+
+    def empty(d):
+        d["tracks"], d["arcs"], d["regions"] = [], [], []
+
+    return [("unknown-layer", unknown_layer, "tracks[0].layer"), ("unknown-net", unknown_net, "tracks[0].net"),
+            ("zero-width", zero_width, "tracks[2].width"), ("self-intersecting", self_intersecting, "regions[0]"),
+            ("empty", empty, "bad.json")]
+
+
+@pytest.mark.parametrize("name, mutate, place", _bad_boards(), ids=[b[0] for b in _bad_boards()])
+def test_bad_board_classes_exit_2(tmp_path, capsys, name, mutate, place):
+    data = _demo_data()
+    mutate(data)
+    path = tmp_path / "bad.json"
+    path.write_text(json.dumps(data))
+    before = path.read_bytes()
+    out_file = tmp_path / "out.json"
+    code, out, err = run(capsys, "check", str(path), "--format", "json", "--out", str(out_file))
+    assert code == 2, err
+    assert place in err and "bad.json" in err
+    assert len(err.strip().splitlines()) == 1 and "Traceback" not in err
+    assert not out_file.exists() and path.read_bytes() == before
+
+
+def test_nan_coordinate_exit_2(tmp_path, capsys):
+    data = _demo_data()
+    data["tracks"][0]["points"][0] = ["@NAN@", 1.0]
+    path = tmp_path / "nan.json"
+    path.write_text(json.dumps(data).replace('"@NAN@"', "NaN"))
+    code, _, err = run(capsys, "check", str(path))
+    assert code == 2 and "nan.json: tracks[0].points[0][0]" in err
+
+
+@pytest.mark.parametrize("content, place", [
+    ("version: 1\nrules: [\n", "line"),
+    ("version: 1\nrules:\n  - {name: x, kind: spacing-ratio, min_ratio: 3, colour: red}\n", "rules[0].colour"),
+    ("version: 1\nrules:\n  - {name: x, kind: crossing-angle, max_length: 2 cm}\n", "rules[0].max_length"),
+])
+def test_bad_rule_file_exits_2(tmp_path, capsys, content, place):
+    path = tmp_path / "bad.yaml"
+    path.write_text(content)
+    code, _, err = run(capsys, "demo", "--rules", str(path))
+    assert code == 2 and "bad.yaml" in err and place in err
+    assert len(err.strip().splitlines()) == 1 and "Traceback" not in err

@@ -106,6 +106,9 @@ class PairTable:
     overlap_mm2: np.ndarray
     x: np.ndarray
     y: np.ndarray
+    #: candidate piece pairs (grown bounding boxes overlapping) whose exact
+    #: geometry was measured to produce this table; 0 for derived tables
+    candidates: int = 0
 
     #: the array columns, in order
     COLUMNS: ClassVar[tuple[str, ...]] = ("a", "b", "angle_deg", "parallel", "length_mm",
@@ -238,10 +241,12 @@ def find_broadside(pieces: Pieces, layer_a: int, layer_b: int, search_mm: float,
     # does) was measured slower here, since most broadside pairs are
     # crossings of different classes and each class pair needs its own grid.
     jobs = [(np.arange(len(la)), np.arange(len(lb)), 0.0)]
-    chunks = _job_chunks(la, lb, jobs, False, cell_mm, chunk_pairs)
+    chunks = _Counted(_job_chunks(la, lb, jobs, False, cell_mm, chunk_pairs))
     parts = _map_chunks(chunks, workers, lambda ia, ib: _measure(
         la, lb, ia, ib, search_mm, parallel_angle_deg, crossings=True))
-    return _assemble("broadside", layer_a, layer_b, la, lb, parts)
+    table = _assemble("broadside", layer_a, layer_b, la, lb, parts)
+    table.candidates = chunks.count
+    return table
 
 
 def find_edge(pieces: Pieces, layer: int, search_mm: float,
@@ -270,10 +275,25 @@ def find_edge(pieces: Pieces, layer: int, search_mm: float,
             jobs.append((up, down, CLASS_DEG * (i + 0.5)))
     else:
         jobs = [(np.arange(len(la)), None, 0.0)]
-    chunks = _job_chunks(la, la, jobs, True, cell_mm, chunk_pairs)
+    chunks = _Counted(_job_chunks(la, la, jobs, True, cell_mm, chunk_pairs))
     parts = _map_chunks(chunks, workers, lambda ia, ib: _measure(
         la, la, ia, ib, search_mm, parallel_angle_deg, crossings=False))
-    return _assemble("edge", layer, layer, la, la, parts)
+    table = _assemble("edge", layer, layer, la, la, parts)
+    table.candidates = chunks.count
+    return table
+
+
+class _Counted:
+    """Passes candidate chunks through, counting the pairs in them."""
+
+    def __init__(self, chunks: Iterator[tuple[np.ndarray, np.ndarray]]) -> None:
+        self.chunks = chunks
+        self.count = 0
+
+    def __iter__(self) -> Iterator[tuple[np.ndarray, np.ndarray]]:
+        for ia, ib in self.chunks:
+            self.count += int(ia.size)
+            yield ia, ib
 
 
 def _job_chunks(la: _Layer, lb: _Layer, jobs, self_join: bool, cell_mm: float | None,

@@ -66,17 +66,55 @@ def net_pair_lines(result: Result, chunk: int = 50_000) -> Iterator[list[str]]:
     worst = np.where(np.isnan(worst), -1.0, worst)
     order = np.lexsort((p.net_b, p.net_a, -p.c12_pf, -worst))
     names = [json.dumps(n.name, ensure_ascii=False) for n in a.board.nets]
+    groups = [_group_name(a, g) for g in p.layer_groups]
+    layer_lists: dict[int, str] = {}
+
+    def layers_of(mask: int) -> str:
+        if mask not in layer_lists:
+            layer_lists[mask] = json.dumps([g for k, g in enumerate(groups) if mask >> k & 1])
+        return layer_lists[mask]
+
     columns = (p.broadside_length_mm, p.edge_length_mm, p.area_mm2, p.c12_pf, p.noise_ab_v * 1e3,
                p.noise_ba_v * 1e3)
     for start in range(0, order.size, chunk):
         part = order[start:start + chunk]
         na, nb = p.net_a[part].tolist(), p.net_b[part].tolist()
+        masks = p.layer_mask[part].tolist()
         cols = [_fmt(v[part]) for v in columns]
         yield [
-            f'{{"nets": [{names[i]}, {names[j]}], "broadside_length_mm": {bl}, "edge_length_mm": {el}, '
-            f'"overlap_area_mm2": {ar}, "c12_pf": {c}, "noise_mv_on": {{{names[j]}: {ab}, {names[i]}: {ba}}}}}'
-            for i, j, bl, el, ar, c, ab, ba in zip(na, nb, *cols)
+            f'{{"nets": [{names[i]}, {names[j]}], "layers": {layers_of(lm)}, "broadside_length_mm": {bl}, '
+            f'"edge_length_mm": {el}, "overlap_area_mm2": {ar}, "c12_pf": {c}, '
+            f'"noise_mv_on": {{{names[j]}: {ab}, {names[i]}: {ba}}}}}'
+            for i, j, lm, bl, el, ar, c, ab, ba in zip(na, nb, masks, *cols)
         ]
+
+
+def _group_name(a, group: tuple[int, int, int]) -> str:
+    """``TOP/IN1`` for a broadside layer pair, ``IN1`` for edge coupling on one layer."""
+    kind, lo, hi = group
+    return a.layer_name(lo) if lo == hi else f"{a.layer_name(lo)}/{a.layer_name(hi)}"
+
+
+def by_layer_group(result: Result) -> list[dict]:
+    """Totals per broadside layer pair and per layer (edge coupling)."""
+    from ..analysis import BROADSIDE
+
+    a = result.analysis
+    c = a.couplings
+    out = []
+    lo, hi = np.minimum(c.layer_a, c.layer_b), np.maximum(c.layer_a, c.layer_b)
+    groups = np.unique(np.stack([c.kind.astype(np.int64), lo, hi], axis=1), axis=0)
+    for kind, l0, l1 in groups.tolist():
+        rows = (c.kind == kind) & (lo == l0) & (hi == l1)
+        out.append({
+            "coupling": "broadside" if kind == BROADSIDE else "edge",
+            "layers": _group_name(a, (kind, l0, l1)),
+            "piece_pairs": int(rows.sum()),
+            "coupled_length_mm": float(f"{c.length_mm[rows].sum():.6g}"),
+            "overlap_area_mm2": float(f"{c.overlap_mm2[rows].sum():.6g}"),
+            "c12_pf": float(f"{c.c12_pf[rows].sum():.6g}"),
+        })
+    return out
 
 
 def build_report(result: Result) -> dict:
@@ -106,6 +144,7 @@ def build_report(result: Result) -> dict:
             "bandwidth_factor": s.bandwidth_factor,
         },
         "summary": summary(result),
+        "layer_groups": by_layer_group(result),
         "findings": [f.to_dict() for f in result.findings],
         "net_pairs": _NET_PAIRS,
         "notes": sorted(set(a.notes)),
