@@ -9,7 +9,6 @@ from __future__ import annotations
 import argparse
 import os
 import sys
-import tempfile
 from importlib import resources
 from pathlib import Path
 
@@ -17,6 +16,7 @@ from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
 from . import __version__
+from .atomic import refuse_overwriting_inputs, write_atomically
 from .errors import CouplintError, UsageError
 
 EXIT_CLEAN, EXIT_FINDINGS, EXIT_BAD_INPUT, EXIT_INTERNAL = 0, 1, 2, 3
@@ -88,10 +88,7 @@ def _check(board_path: str, args: argparse.Namespace) -> int:
     from .runner import check_board
 
     if args.out:
-        inputs = [board_path] + ([args.rules] if args.rules else [])
-        out = os.path.realpath(args.out)
-        if any(os.path.realpath(p) == out for p in inputs):
-            raise UsageError(f"{args.out}: --out names an input file; refusing to overwrite it")
+        refuse_overwriting_inputs(args.out, [board_path] + ([args.rules] if args.rules else []))
     ruleset = load_ruleset(args.rules) if args.rules else default_ruleset()
     board = load_board(board_path)
     err = Console(stderr=True)
@@ -106,6 +103,7 @@ def _check(board_path: str, args: argparse.Namespace) -> int:
             result = check_board(board, ruleset, progress=progress)
     else:
         result = check_board(board, ruleset)
+    result.fail_on = args.fail_on
 
     if args.format == "json":
         emit = lambda handle: json_report.write(result, handle)  # noqa: E731
@@ -121,26 +119,7 @@ def _check(board_path: str, args: argparse.Namespace) -> int:
         write_atomically(args.out, emit)
     else:
         emit(sys.stdout)
-    failing = [f for f in result.findings if args.fail_on == "warning" or f.severity == "error"]
-    return EXIT_FINDINGS if failing else EXIT_CLEAN
-
-
-def write_atomically(path: str, emit) -> None:
-    """Write to a temporary file beside ``path`` and rename it into place,
-    so an interrupted run never leaves a half-written report."""
-    target = Path(path)
-    directory = target.parent if str(target.parent) else Path(".")
-    if not directory.is_dir():
-        raise UsageError(f"{path}: the folder {directory} does not exist")
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=directory)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as handle:
-            emit(handle)
-        os.replace(tmp, target)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    return EXIT_FINDINGS if result.failing() else EXIT_CLEAN
 
 
 def _kinds(kind: str | None) -> int:

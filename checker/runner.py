@@ -3,13 +3,14 @@
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 from .analysis import Analysis, analyse, analysis_steps
 from .checks import REGISTRY
 from .errors import CouplintError
 from .findings import Finding, sort_findings
 from .model import Board
+from .review import Review
 from .ruleset import RuleSet
 
 
@@ -19,11 +20,20 @@ class CheckCrash(CouplintError):
 
 @dataclass
 class Result:
-    """One board's findings with the analysis they came from."""
+    """One board's findings with the analysis they came from, the review
+    (waivers, baseline) applied to them and the failure policy."""
 
     analysis: Analysis
     findings: list[Finding]
     seconds: float
+    review: Review = field(default_factory=Review)
+    fail_on: str = "warning"
+
+    def failing(self) -> list[Finding]:
+        return self.review.failing(self.findings, self.fail_on)
+
+    def verdict(self) -> str:
+        return self.review.verdict(self.findings, self.fail_on)
 
 
 def run_checks(analysis: Analysis, progress=None) -> list[Finding]:

@@ -29,7 +29,8 @@ def summary(result: Result) -> dict:
         by_rule[f.rule] += 1
         by_severity[f.severity] += 1
     return {
-        "verdict": "fail" if result.findings else "pass",
+        "verdict": result.verdict(),
+        "fail_on": result.fail_on,
         "layers": len(a.board.stackup.layers),
         "pieces": len(a.board.pieces),
         "nets": len(a.board.nets),

@@ -1,0 +1,37 @@
+"""Safe writes: a report appears whole or not at all."""
+
+from __future__ import annotations
+
+import os
+import tempfile
+from pathlib import Path
+from typing import Callable, TextIO
+
+from .errors import UsageError
+
+
+def write_atomically(path: str | os.PathLike, emit: Callable[[TextIO], None]) -> None:
+    """Call ``emit(handle)`` on a temporary file beside ``path``, then rename
+    it into place: an interrupted run leaves the old file intact and never a
+    half-written one."""
+    target = Path(path)
+    directory = target.parent if str(target.parent) else Path(".")
+    if not directory.is_dir():
+        raise UsageError(f"{path}: the folder {directory} does not exist")
+    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=directory)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as handle:
+            emit(handle)
+        os.replace(tmp, target)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+
+
+def refuse_overwriting_inputs(out: str | os.PathLike, inputs: list[str | os.PathLike]) -> None:
+    """Raise :class:`UsageError` if ``out`` is one of ``inputs``."""
+    target = os.path.realpath(out)
+    for p in inputs:
+        if os.path.realpath(p) == target:
+            raise UsageError(f"{out}: an output path names an input file; refusing to overwrite it")
