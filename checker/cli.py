@@ -1,7 +1,8 @@
 """Command line: argument parsing and exit codes only.
 
-Exit codes: 0 no findings, 1 findings (with ``--fail-on error``, error
-findings only), 2 bad input or usage, 3 an internal error.
+Exit codes: 0 pass (no failing finding; waived findings never fail, and
+with ``--fail-on new`` only findings absent from the ``--baseline`` fail),
+1 fail, 2 bad input or usage, 3 an internal error.
 """
 
 from __future__ import annotations
@@ -18,6 +19,7 @@ from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, T
 from . import __version__
 from .atomic import refuse_overwriting_inputs, write_atomically
 from .errors import CouplintError, UsageError
+from .review import DEFAULT_WAIVER_FILE, FAIL_ON, TODAY_ENV
 
 EXIT_CLEAN, EXIT_FINDINGS, EXIT_BAD_INPUT, EXIT_INTERNAL = 0, 1, 2, 3
 
@@ -41,14 +43,36 @@ def _parser() -> argparse.ArgumentParser:
         p.add_argument("--format", choices=("text", "json"), default="text",
                        help="text table (default) or the JSON report")
         p.add_argument("--out", metavar="FILE", help="write the report to FILE instead of stdout")
-        p.add_argument("--fail-on", choices=("warning", "error"), default="warning",
-                       help="lowest severity that makes the exit code 1 (default: warning)")
+        p.add_argument("--fail-on", choices=FAIL_ON, default="warning",
+                       help="what makes the exit code 1: findings of this severity or worse ('warning', the "
+                            "default, or 'error'), or 'new': findings not in the --baseline report; waived "
+                            "findings never fail")
+        p.add_argument("--waivers", metavar="FILE",
+                       help="waiver file (YAML, see docs/waivers.md): waived findings stay in the report, "
+                            f"marked, and do not fail the run (expiry is judged on today's date, or on "
+                            f"${TODAY_ENV} if set)")
+        p.add_argument("--baseline", metavar="FILE",
+                       help="an earlier JSON report of this board: findings are marked new or unchanged, "
+                            "and those gone since are listed as fixed")
 
     check = sub.add_parser("check", help="check a board file")
     check.add_argument("board", help="board geometry (neutral JSON)")
     output_options(check)
     demo = sub.add_parser("demo", help="check the built-in demo board")
     output_options(demo)
+    waive = sub.add_parser(
+        "waive", help="append a waiver for one finding id to a waiver file",
+        description="Append a waiver for the finding ID to the waiver file (created if missing). The id is "
+                    "checked for its format (12 hex digits, as 'couplint check' prints in [brackets]) but "
+                    "need not appear in any report. The file is validated first, an id already waived is "
+                    "refused, and everything already in the file is kept byte for byte.")
+    waive.add_argument("id", metavar="ID", help="finding id (12 hex digits)")
+    waive.add_argument("--reason", required=True, help="why the finding is acceptable")
+    waive.add_argument("--author", help="who accepts it (default: the user name from the environment)")
+    waive.add_argument("--expires", metavar="YYYY-MM-DD",
+                       help="last day the waiver applies (default: it does not expire)")
+    waive.add_argument("--waivers", metavar="FILE", default=DEFAULT_WAIVER_FILE,
+                       help=f"waiver file (default: {DEFAULT_WAIVER_FILE} in the current folder)")
     kinds = sub.add_parser("kinds", help="describe the rule kinds a rule file can use")
     kinds.add_argument("kind", nargs="?", help="one kind to describe in full")
     return parser
@@ -62,6 +86,8 @@ def main(argv: list[str] | None = None) -> int:
     try:
         if args.command == "kinds":
             return _kinds(args.kind)
+        if args.command == "waive":
+            return _waive(args)
         board_path = str(demo_board_path()) if args.command == "demo" else args.board
         return _check(board_path, args)
     except CouplintError as exc:
@@ -84,13 +110,19 @@ def main(argv: list[str] | None = None) -> int:
 def _check(board_path: str, args: argparse.Namespace) -> int:
     from .readers import load_board
     from .report import json_report, terminal
+    from .review import build_review, load_baseline, load_waivers, today
     from .ruleset import default_ruleset, load_ruleset
     from .runner import check_board
 
     if args.out:
-        refuse_overwriting_inputs(args.out, [board_path] + ([args.rules] if args.rules else []))
+        inputs = [board_path] + [p for p in (args.rules, args.waivers, args.baseline) if p]
+        refuse_overwriting_inputs(args.out, inputs)
     ruleset = load_ruleset(args.rules) if args.rules else default_ruleset()
     board = load_board(board_path)
+    # every input is read and validated before the (possibly long) check
+    waivers = load_waivers(args.waivers) if args.waivers else None
+    baseline = load_baseline(args.baseline) if args.baseline else None
+    day = today() if waivers is not None else None
     err = Console(stderr=True)
     if err.is_terminal:  # a progress bar on stderr; never in pipes or CI logs
         with Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
@@ -104,6 +136,7 @@ def _check(board_path: str, args: argparse.Namespace) -> int:
     else:
         result = check_board(board, ruleset)
     result.fail_on = args.fail_on
+    result.review = build_review(result.findings, waivers, baseline, on=day)
 
     if args.format == "json":
         emit = lambda handle: json_report.write(result, handle)  # noqa: E731
@@ -120,6 +153,34 @@ def _check(board_path: str, args: argparse.Namespace) -> int:
     else:
         emit(sys.stdout)
     return EXIT_FINDINGS if result.failing() else EXIT_CLEAN
+
+
+def _waive(args: argparse.Namespace) -> int:
+    from .review import ID_PATTERN, append_waiver, parse_date
+
+    if not ID_PATTERN.match(args.id.strip()):
+        raise UsageError(f"{args.id!r} is not a finding id (12 hex digits, as 'couplint check' prints in "
+                         f"[brackets])")
+    expires = None
+    if args.expires is not None:
+        try:
+            expires = parse_date(args.expires)
+        except ValueError as exc:
+            raise UsageError(f"--expires: {exc}") from None
+    author = args.author if args.author is not None else _user_name()
+    waiver = append_waiver(args.waivers, args.id, args.reason, author, expires=expires)
+    until = f", until {waiver.expires}" if waiver.expires else ""
+    print(f"waived {waiver.id} in {waiver.source} ({waiver.author}, {waiver.date}{until})")
+    return EXIT_CLEAN
+
+
+def _user_name() -> str:
+    """The user name from the environment, for a waiver's author."""
+    for var in ("COUPLINT_AUTHOR", "USER", "LOGNAME", "USERNAME"):
+        name = os.environ.get(var, "").strip()
+        if name:
+            return name
+    raise UsageError("no user name in the environment (USER, LOGNAME, USERNAME); give --author NAME")
 
 
 def _kinds(kind: str | None) -> int:

@@ -33,3 +33,22 @@ class RuleError(InputError):
 
 class UsageError(CouplintError):
     """The command line itself is wrong."""
+
+
+class WaiverError(InputError):
+    """A waiver file is missing, malformed or cannot take a new entry.
+
+    ``place`` is the key path (``waivers[3].date``); ``line``, when known,
+    is the YAML line and is shown after the key path.
+    """
+
+    def __init__(self, file: str, place: str | None, message: str, line: int | None = None) -> None:
+        self.key_path = place
+        self.line = line
+        if line is not None:
+            place = f"{place} (line {line})" if place else f"line {line}"
+        super().__init__(file, place, message)
+
+
+class BaselineError(InputError):
+    """A baseline report is missing or is not a couplint JSON report."""

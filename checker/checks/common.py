@@ -55,7 +55,8 @@ def run_place(ctx, rows: np.ndarray, worst: int) -> tuple[tuple[float, float, fl
     norm[norm == 0] = 1.0
     half = c.length_mm[rows] / 2
     ux, uy = dx / norm * half, dy / norm * half
-    pad = np.maximum(p.width[c.a[rows]], p.width[c.b[rows]]) / 2
+    # both traces: they lie offset/2 either side of the spot, each half a width wide
+    pad = (np.abs(c.offset_mm[rows]) + np.maximum(p.width[c.a[rows]], p.width[c.b[rows]])) / 2
     xs = np.concatenate([c.x[rows] - np.abs(ux) - pad, c.x[rows] + np.abs(ux) + pad])
     ys = np.concatenate([c.y[rows] - np.abs(uy) - pad, c.y[rows] + np.abs(uy) + pad])
     bbox = (float(xs.min()), float(ys.min()), float(xs.max()), float(ys.max()))

@@ -1,4 +1,5 @@
-"""The JSON report: summary, findings and every coupled net pair.
+"""The JSON report: summary, findings (each with its waiver and baseline
+status), the review (waivers, baseline) and every coupled net pair.
 
 Same input, same bytes: no clock time, keys in a fixed order, floats rounded
 to six significant digits.
@@ -14,6 +15,7 @@ from typing import Iterator, TextIO
 import numpy as np
 
 from .. import __version__
+from ..review import review_dict, waiver_mark
 from ..runner import Result
 from . import CAUTION
 
@@ -23,12 +25,13 @@ REPORT_VERSION = 1
 def summary(result: Result) -> dict:
     """Counts a reader (or CI) needs first."""
     a = result.analysis
+    review = result.review
     by_rule = {rule.name: 0 for rule in a.ruleset.rules}
     by_severity = {"error": 0, "warning": 0}
     for f in result.findings:
         by_rule[f.rule] += 1
         by_severity[f.severity] += 1
-    return {
+    out = {
         "verdict": result.verdict(),
         "fail_on": result.fail_on,
         "layers": len(a.board.stackup.layers),
@@ -41,7 +44,27 @@ def summary(result: Result) -> dict:
         "findings": len(result.findings),
         "findings_by_rule": by_rule,
         "findings_by_severity": by_severity,
+        "failing": len(result.failing()),
+        "waived": sum(1 for f in result.findings if f.id in review.waived),
     }
+    if review.baseline is not None:
+        statuses = [review.status.get(f.id, "new") for f in result.findings]
+        out["new"] = statuses.count("new")
+        out["unchanged"] = statuses.count("unchanged")
+        out["fixed"] = len(review.fixed)
+    return out
+
+
+def finding_dict(result: Result, f) -> dict:
+    """A finding with its review: the waiver that covers it (or ``null``)
+    and, with a baseline, ``status`` ``new`` or ``unchanged``."""
+    review = result.review
+    d = f.to_dict()
+    w = review.waived.get(f.id)
+    d["waiver"] = waiver_mark(w) if w is not None else None
+    if review.baseline is not None:
+        d["status"] = review.status.get(f.id, "new")
+    return d
 
 
 def _fmt(values: np.ndarray) -> list[str]:
@@ -146,7 +169,8 @@ def build_report(result: Result) -> dict:
         },
         "summary": summary(result),
         "layer_groups": by_layer_group(result),
-        "findings": [f.to_dict() for f in result.findings],
+        "findings": [finding_dict(result, f) for f in result.findings],
+        "review": review_dict(result.review),
         "net_pairs": _NET_PAIRS,
         "notes": sorted(set(a.notes)),
         "caution": CAUTION,

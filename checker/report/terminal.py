@@ -1,8 +1,10 @@
-"""Terminal output: a table of findings, worst first, and a summary line."""
+"""Terminal output: a table of findings, worst first, the review (waivers,
+baseline), a summary line and the verdict."""
 
 from __future__ import annotations
 
 from rich.console import Console
+from rich.markup import escape
 from rich.table import Table
 
 from ..runner import Result
@@ -10,6 +12,8 @@ from . import CAUTION
 from .json_report import summary
 
 SEVERITY_STYLE = {"error": "bold red", "warning": "yellow"}
+STATUS_STYLE = {"new": "bold", "unchanged": "dim"}
+VERDICT_STYLE = {"pass": "bold green", "pass with waivers": "green", "fail": "bold red"}
 
 
 def _value(value: float, unit: str) -> str:
@@ -18,12 +22,22 @@ def _value(value: float, unit: str) -> str:
     return f"{value:.2f}"
 
 
+def _severity(f, waived: bool) -> str:
+    if waived:
+        return f"[dim]{f.severity} (waived)[/]"
+    return f"[{SEVERITY_STYLE[f.severity]}]{f.severity}[/]"
+
+
 def render(result: Result, console: Console) -> None:
     a = result.analysis
+    review = result.review
+    with_baseline = review.baseline is not None
     title = f"{a.board.name} ({a.board.path})"
     if result.findings:
         table = Table(title=title, title_justify="left", expand=False)
         table.add_column("#", justify="right")
+        if with_baseline:
+            table.add_column("status")
         table.add_column("severity")
         table.add_column("rule", overflow="fold")
         table.add_column("aggressor -> victim", overflow="fold")
@@ -32,24 +46,77 @@ def render(result: Result, console: Console) -> None:
         table.add_column("at (mm)", justify="right")
         for i, f in enumerate(result.findings, 1):
             limit = _value(f.limit, f.unit) if f.unit in ("mm", "pF", "mV") else f"{f.limit:g} ({f.unit})"
-            table.add_row(
-                str(i), f"[{SEVERITY_STYLE[f.severity]}]{f.severity}[/]", f.rule,
-                f"{f.aggressor} -> {f.victim}", "/".join(f.layers),
+            status = review.status.get(f.id, "new")
+            cells = [str(i)] + ([f"[{STATUS_STYLE[status]}]{status}[/]"] if with_baseline else []) + [
+                _severity(f, f.id in review.waived), f.rule, f"{f.aggressor} -> {f.victim}", "/".join(f.layers),
                 f"{_value(f.value, f.unit)} / {limit}", f"{f.at[0]:.2f}, {f.at[1]:.2f}",
-            )
+            ]
+            table.add_row(*cells, style="dim" if f.id in review.waived else None)
         console.print(table)
         for i, f in enumerate(result.findings, 1):
             console.print(f"{i:>3}. [{f.id}] {f.message}", highlight=False, markup=False)
+            w = review.waived.get(f.id)
+            if w is not None:
+                console.print(f"     waived: {_waiver_line(w)}", style="dim", highlight=False, markup=False)
     else:
         console.print(f"{title}: no findings", highlight=False)
     for note in sorted(set(a.notes)):
         console.print(f"[dim]note: {note}[/]", highlight=False)
+    _render_review(result, console)
     s = summary(result)
     per_rule = ", ".join(f"{k} {v}" for k, v in s["findings_by_rule"].items())
+    review_counts = ""
+    if review.waiver_file is not None:
+        review_counts += f"; waived {s['waived']}"
+    if with_baseline:
+        review_counts += f"; new {s['new']}, unchanged {s['unchanged']}, fixed {s['fixed']}"
     console.print(
         f"1 board, {s['layers']} layers, {s['pieces']} pieces, {s['pairs_examined']} pairs examined, "
-        f"{s['coupled_net_pairs']} coupled net pairs; findings: {s['findings']} ({per_rule}); "
+        f"{s['coupled_net_pairs']} coupled net pairs; findings: {s['findings']} ({per_rule}){review_counts}; "
         f"{result.seconds:.2f} s",
         highlight=False,
     )
     console.print(f"[dim]{CAUTION}[/]", highlight=False)
+    console.print(_verdict_line(result, s), highlight=False)
+
+
+def _waiver_line(w) -> str:
+    until = f", expires {w.expires}" if w.expires else ""
+    return f"{w.reason} ({w.author}, {w.date}{until}; {w.source})"
+
+
+def _render_review(result: Result, console: Console) -> None:
+    """Expired and unused waivers, and findings of the baseline that are gone."""
+    review = result.review
+    if review.waiver_file is not None and (review.expired or review.unused):
+        console.print(f"waivers in {review.waiver_file}:", highlight=False, markup=False)
+        for w in review.expired:
+            n = len(review.covers.get(w, []))
+            would = f"would cover {n} finding{'s' if n != 1 else ''}" if n else "matches no finding either"
+            console.print(f"  [yellow]expired[/] {escape(w.source)}: {escape(w.describe())}, expired {w.expires} "
+                          f"({would}; not applied)", highlight=False)
+        for w in review.unused:
+            console.print(f"  [yellow]unused[/]  {escape(w.source)}: {escape(w.describe())} matches no finding "
+                          f"(fixed, or a wrong id or pattern?)", highlight=False)
+    if review.baseline is not None and review.fixed:
+        console.print(f"fixed since the baseline {review.baseline}:", highlight=False, markup=False)
+        for f in review.fixed:
+            text = f"[{f['id']}] {f['rule']}: {f['aggressor']} -> {f['victim']} on {'/'.join(f['layers'])}"
+            console.print(f"  [green]fixed[/] {escape(text)}", highlight=False)
+
+
+def _verdict_line(result: Result, s: dict) -> str:
+    """``verdict: fail (3 failing: ...)``, with what was waived or let pass."""
+    verdict, fail_on = s["verdict"], result.fail_on
+    parts = []
+    if s["failing"]:
+        what = "new since the baseline" if fail_on == "new" else f"{fail_on} or worse"
+        parts.append(f"{s['failing']} failing: {what}, not waived")
+    if s["waived"]:
+        parts.append(f"{s['waived']} waived")
+    passed = s["findings"] - s["failing"] - s["waived"]
+    if passed:
+        why = "unchanged since the baseline" if fail_on == "new" else f"below {fail_on}"
+        parts.append(f"{passed} {why}, not failing with --fail-on {fail_on}")
+    detail = f" ({'; '.join(parts)})" if parts else ""
+    return f"verdict: [{VERDICT_STYLE[verdict]}]{verdict}[/]{detail}"

@@ -1,0 +1,841 @@
+"""Annotated SVG overlay: the copper of the layers involved, with every
+finding's coupled stretch marked and numbered.
+
+The picture is in board millimetres with y up, as seen from the top: the
+``viewBox`` is the board bounds (or the requested ``view``) plus a margin, and
+the copper sits in a group flipped with ``matrix(1 0 0 -1 0 F)`` where
+``F = ymin + ymax`` of the framed area, so board y and SVG y cover the same
+range. Text is never placed inside the flipped group, so it is never
+mirrored. A legend band (board name, layer colours, symbols, scale bar) sits
+under the drawing.
+
+Sizes of text, markers and annotation strokes are a fixed fraction of the
+larger side of the framed area: text is :data:`TEXT_PX` pixels high when
+that side is shown ``width_px`` pixels long, whatever the board's size in
+mm. Copper is drawn at its real width, but never thinner than about one
+output pixel.
+
+Colours come from the Okabe-Ito palette, a set of eight colours chosen to
+stay distinguishable for the common forms of colour-vision deficiency:
+M. Okabe and K. Ito, "Color Universal Design (CUD): how to make figures and
+presentations that are friendly to colorblind people", J*Fly, 2002/2008,
+https://jfly.uni-koeln.de/color/ ; reprinted as B. Wong, "Points of view:
+Color blindness", Nature Methods 8, 441 (2011), doi:10.1038/nmeth.1618.
+Severity is never told by colour alone: errors are round markers with solid
+outlines, warnings square markers with dashed outlines, waived findings
+white markers with a dotted outline and a strike.
+
+Output is deterministic: coordinates are rounded to 1 um and printed with a
+fixed format, elements come in a fixed order, and ids derive from finding ids
+(``f-<id>`` for a callout, ``s-<id>`` for its coupled stretch). Every piece
+of text from the input is escaped; the output has no scripts, no event
+attributes, no external references and no XML declaration (so it can be
+inlined into HTML as is).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from xml.sax.saxutils import escape, quoteattr
+
+import numpy as np
+import shapely
+
+from ..checks import REGISTRY
+from ..findings import Finding
+from ..model import Board
+
+#: The Okabe-Ito palette (name -> sRGB hex), in the order of its publication.
+OKABE_ITO: dict[str, str] = {
+    "black": "#000000",
+    "orange": "#E69F00",
+    "sky blue": "#56B4E9",
+    "bluish green": "#009E73",
+    "yellow": "#F0E442",
+    "blue": "#0072B2",
+    "vermillion": "#D55E00",
+    "reddish purple": "#CC79A7",
+}
+
+#: Copper layer colours by stackup position (top = first), cycling on boards
+#: with more copper layers. Orange and vermillion are kept for severities.
+LAYER_COLOURS: tuple[str, ...] = tuple(OKABE_ITO[n] for n in (
+    "blue", "reddish purple", "bluish green", "sky blue", "yellow", "black"))
+
+SEVERITY_COLOURS: dict[str, str] = {"error": OKABE_ITO["vermillion"], "warning": OKABE_ITO["orange"]}
+WAIVED_COLOUR = OKABE_ITO["black"]
+BACKGROUND = "#FFFFFF"
+
+#: Opacity of copper traces, of pours on signal / mixed layers, and of planes.
+COPPER_OPACITY = 0.55
+POUR_OPACITY = 0.14
+PLANE_OPACITY = 0.06
+
+#: Text height in output pixels when the larger side of the framed area is
+#: ``width_px`` long (1/64 of it at the default 960 px); every other
+#: annotation size is a multiple of the text height.
+TEXT_PX = 15.0
+
+#: Margin around the framed area, in text heights (room for callouts).
+MARGIN = 3.0
+
+#: A coupled stretch is drawn this many text heights wider than its copper
+#: on every side, under the traces, so it reads as a halo around them.
+HALO = 0.25
+
+#: Copper is never drawn thinner than this many output pixels.
+MIN_COPPER_PX = 0.8
+
+_FONT = "DejaVu Sans, Verdana, Arial, sans-serif"
+
+
+# --------------------------------------------------------------------------
+# public API
+
+
+def finding_number(result) -> dict[str, int]:
+    """Finding id -> its 1-based position in ``result.findings`` (the number
+    the terminal table and the HTML report show). Should two findings share
+    an id, the first keeps it."""
+    out: dict[str, int] = {}
+    for i, f in enumerate(result.findings, 1):
+        out.setdefault(f.id, i)
+    return out
+
+
+def svg_per_layer_group(result) -> dict[str, str]:
+    """One overlay per layer group that has findings: key ``"TOP-IN1"`` (the
+    finding's layer names joined by ``-``, stackup order), value the SVG text
+    drawn with exactly those layers. Keys come in stackup order."""
+    board = result.analysis.board
+    position = {name: i for i, name in enumerate(board.stackup.names)}
+    groups: dict[tuple[str, ...], None] = {}
+    for f in result.findings:
+        groups.setdefault(tuple(sorted(f.layers, key=lambda n: position.get(n, len(position)))), None)
+    ordered = sorted(groups, key=lambda g: ([position.get(n, len(position)) for n in g], g))
+    return {"-".join(g): render_svg(result, layers=g) for g in ordered if g}
+
+
+def render_svg(result, *, layers: tuple[str, ...] | None = None,
+               view: tuple[float, float, float, float] | None = None,
+               only: str | None = None, width_px: int = 960) -> str:
+    """The annotated overlay of ``result`` as SVG text.
+
+    ``layers``: copper layer names to draw (default: every layer some
+    finding names, or every layer with copper when there are no findings).
+    A finding gets a callout when all its layers are drawn and its extent
+    meets the framed area. ``view`` = (xmin, ymin, xmax, ymax) in mm frames
+    that region instead of the whole board; copper outside it is left out.
+    ``only`` = a finding id: only that finding gets a callout and a strong
+    mark; the other findings' stretches are drawn faintly, unnumbered.
+    ``width_px``: the width attribute of the picture (its height follows the
+    aspect ratio); it also sets the thinnest copper drawn.
+
+    Raises ``ValueError`` for an unknown layer name or finding id, an empty
+    or non-finite ``view``, or a ``width_px`` below 16.
+    """
+    analysis = result.analysis
+    board: Board = analysis.board
+    findings: list[Finding] = list(result.findings)
+    numbers = finding_number(result)
+    waived = getattr(getattr(result, "review", None), "waived", {}) or {}
+    if isinstance(width_px, bool) or not isinstance(width_px, int) or width_px < 16:
+        raise ValueError(f"width_px must be an integer >= 16, got {width_px!r}")
+    if only is not None and only not in numbers:
+        raise ValueError(f"only: no finding with id {only!r} among the {len(numbers)} findings")
+    drawn = _drawn_layers(board, findings, layers)
+    drawn_names = {board.stackup.layers[k].name for k in drawn}
+    frame = _Frame.make(board, view, width_px)
+
+    # which findings are marked, and how
+    shown: list[Finding] = []
+    seen: set[str] = set()
+    for f in findings:
+        if f.id in seen:
+            continue  # a duplicate id is drawn once (ids must be unique in the document)
+        if f.id != only and not set(f.layers) <= drawn_names:
+            continue  # part of its coupling is on a layer not drawn
+        if not frame.meets(f.bbox):
+            continue
+        seen.add(f.id)
+        shown.append(f)
+    callouts = [f for f in shown if only is None or f.id == only]
+
+    rows_of = _RowFinder(analysis)
+    legend = _Legend(frame, board, drawn, callouts, waived)
+    frame.set_band(legend.height)
+
+    out: list[str] = []
+    names = ", ".join(board.stackup.layers[k].name for k in drawn) or "no layers"
+    title = f"{board.name}: coupling findings on {names}"
+    out.append(
+        f'<svg xmlns="http://www.w3.org/2000/svg" version="1.1" width="{width_px}" '
+        f'height="{frame.height_px()}" viewBox="{frame.viewbox()}" font-family={quoteattr(_FONT)} role="img">')
+    out.append(f"<title>{_text(title)}</title>")
+    out.append(f'<rect x="{_f(frame.vx0)}" y="{_f(frame.vy0)}" width="{_f(frame.vw)}" '
+               f'height="{_f(frame.vh + frame.band)}" fill="{BACKGROUND}"/>')
+    out.append(f'<g transform="matrix(1 0 0 -1 0 {_f(frame.flip)})">')
+    # pours and planes, then the marked stretches (as a halo under the
+    # traces, faint ones first), then the traces, upper layers last
+    out.extend(_regions(board, drawn, frame))
+    marks = sorted(shown, key=lambda f: 0 if (only is not None and f.id != only) else 1)
+    for f in marks:
+        faint = only is not None and f.id != only
+        out.extend(_stretch(analysis, f, rows_of(f), frame, faint, f.id in waived))
+    out.extend(_traces(board, drawn, frame))
+    out.extend(_outline(board, frame))
+    out.append("</g>")
+    # the worst findings get the first pick of places, and are drawn last (on top)
+    placer = _Placer(frame)
+    places = [placer.place(f.at) for f in callouts]
+    for f, place in reversed(list(zip(callouts, places, strict=True))):
+        out.extend(_callout(f, numbers[f.id], frame, place, placer.r, waived.get(f.id)))
+    out.extend(legend.draw())
+    out.append("</svg>")
+    return "\n".join(out) + "\n"
+
+
+# --------------------------------------------------------------------------
+# number formatting and text
+
+
+def _f(v: float) -> str:
+    """A length in mm rounded to 1 um, without trailing zeros (never ``-0``)."""
+    return f"{round(float(v) * 1000) / 1000 + 0.0:.3f}".rstrip("0").rstrip(".")
+
+
+def _fs(a: np.ndarray) -> list[str]:
+    """:func:`_f` over an array: round to whole um (adding 0.0 turns -0.0
+    into 0.0), print with three decimals, which is exact for a whole number
+    of um, then trim the zeros."""
+    q = np.rint(np.asarray(a, dtype=np.float64) * 1000) / 1000 + 0.0
+    return [t.rstrip("0").rstrip(".") for t in map("{:.3f}".format, q.tolist())]
+
+
+def _clean(s: str) -> str:
+    """Replace characters XML 1.0 cannot carry (control characters, lone
+    surrogates, U+FFFE/U+FFFF) with U+FFFD."""
+    return "".join(
+        ch if (ch in "\t\n\r" or 0x20 <= ord(ch) <= 0xD7FF or 0xE000 <= ord(ch) <= 0xFFFD
+               or 0x10000 <= ord(ch) <= 0x10FFFF) else "\ufffd"
+        for ch in str(s))
+
+
+def _text(s: str) -> str:
+    """Escaped element text."""
+    return escape(_clean(s))
+
+
+def _attr(s: str) -> str:
+    """A quoted, escaped attribute value."""
+    return quoteattr(_clean(s), {"\n": "&#10;", "\r": "&#13;", "\t": "&#9;"})
+
+
+def _id(finding_id: str) -> str:
+    """A finding id reduced to characters safe in an XML id."""
+    return "".join(ch if ch.isascii() and (ch.isalnum() or ch in "-_") else "_" for ch in str(finding_id))
+
+
+def _g(v: float) -> str:
+    """A measured value for people, 4 significant digits."""
+    return f"{v:.4g}" if math.isfinite(v) else str(v)
+
+
+# --------------------------------------------------------------------------
+# frame: what part of the board is shown, and the size of everything
+
+
+@dataclass
+class _Frame:
+    x0: float  # framed board area (mm), before the margin
+    y0: float
+    x1: float
+    y1: float
+    unit: float  # text height (mm)
+    margin: float
+    width_px: int
+    band: float = 0.0  # legend band height under the drawing
+    cropped: bool = False
+
+    @classmethod
+    def make(cls, board: Board, view, width_px: int) -> _Frame:
+        if view is not None:
+            try:
+                x0, y0, x1, y1 = (float(v) for v in view)
+            except (TypeError, ValueError):
+                raise ValueError(f"view must be (xmin, ymin, xmax, ymax) in mm, got {view!r}") from None
+            if not all(math.isfinite(v) for v in (x0, y0, x1, y1)) or x1 <= x0 or y1 <= y0:
+                raise ValueError(f"view must be finite with xmax > xmin and ymax > ymin, got {view!r}")
+            cropped = True
+        else:
+            x0, y0, x1, y1 = board.bounds()
+            cropped = False
+        if x1 - x0 < 1e-3:  # a degenerate board still gets a drawable frame
+            x0, x1 = x0 - 0.5, x1 + 0.5
+        if y1 - y0 < 1e-3:
+            y0, y1 = y0 - 0.5, y1 + 0.5
+        size = max(x1 - x0, y1 - y0)
+        unit = size * TEXT_PX / width_px
+        return cls(x0, y0, x1, y1, unit, MARGIN * unit, width_px, cropped=cropped)
+
+    # framed area with margin, in board coordinates
+    @property
+    def vx0(self) -> float:
+        return self.x0 - self.margin
+
+    @property
+    def vx1(self) -> float:
+        return self.x1 + self.margin
+
+    @property
+    def vy0(self) -> float:
+        return self.y0 - self.margin
+
+    @property
+    def vy1(self) -> float:
+        return self.y1 + self.margin
+
+    @property
+    def vw(self) -> float:
+        return self.vx1 - self.vx0
+
+    @property
+    def vh(self) -> float:
+        return self.vy1 - self.vy0
+
+    @property
+    def flip(self) -> float:
+        """SVG y = flip - board y."""
+        return self.vy0 + self.vy1
+
+    def sy(self, y: float) -> float:
+        return self.flip - y
+
+    def set_band(self, band: float) -> None:
+        self.band = band
+
+    def viewbox(self) -> str:
+        return f"{_f(self.vx0)} {_f(self.vy0)} {_f(self.vw)} {_f(self.vh + self.band)}"
+
+    def height_px(self) -> int:
+        return max(1, int(round(self.width_px * (self.vh + self.band) / self.vw)))
+
+    def px(self) -> float:
+        """One output pixel in mm."""
+        return self.vw / self.width_px
+
+    def stroke(self, k: float = 1.0) -> float:
+        """An annotation stroke width (mm): ``k`` times the basic one."""
+        return 0.07 * self.unit * k
+
+    def meets(self, bbox) -> bool:
+        """Whether a finding's bbox touches the framed area with margin."""
+        bx0, by0, bx1, by1 = bbox
+        return not (bx1 < self.vx0 or bx0 > self.vx1 or by1 < self.vy0 or by0 > self.vy1)
+
+
+# --------------------------------------------------------------------------
+# copper
+
+
+def _drawn_layers(board: Board, findings: list[Finding], layers) -> list[int]:
+    """Stackup indices of the layers to draw, top first."""
+    names = board.stackup.names
+    if layers is not None:
+        if isinstance(layers, str):
+            layers = (layers,)
+        unknown = [n for n in layers if n not in names]
+        if unknown:
+            raise ValueError(f"layers: unknown copper layer {unknown[0]!r}; layers: {', '.join(names)}")
+        wanted = set(layers)
+    else:
+        wanted = {n for f in findings for n in f.layers if n in names}
+        if not wanted:
+            with_copper = set(np.unique(board.pieces.layer).tolist()) | {r.layer for r in board.regions}
+            wanted = {names[k] for k in with_copper if 0 <= k < len(names)}
+    return [k for k, n in enumerate(names) if n in wanted]
+
+
+def _regions(board: Board, drawn: list[int], frame: _Frame) -> list[str]:
+    """Pours (and, fainter, planes) of the drawn layers as light fills with
+    their holes, bottom layer first."""
+    out: list[str] = []
+    box = shapely.box(frame.vx0, frame.vy0, frame.vx1, frame.vy1)
+    min_w = MIN_COPPER_PX * frame.px()
+    for k in reversed(drawn):
+        layer = board.stackup.layers[k]
+        colour = LAYER_COLOURS[k % len(LAYER_COLOURS)]
+        opacity = PLANE_OPACITY if layer.role == "plane" else POUR_OPACITY
+        paths = []
+        for r in board.regions:
+            if r.layer != k:
+                continue
+            shape = r.polygon
+            if frame.cropped:
+                shape = shapely.clip_by_rect(shape, frame.vx0, frame.vy0, frame.vx1, frame.vy1)
+            elif not shape.intersects(box):
+                continue
+            d = _polygon_path(shape)
+            if d:
+                paths.append(f'<path d="{d}" fill="{colour}" fill-opacity="{opacity}" fill-rule="evenodd" '
+                             f'stroke="{colour}" stroke-opacity="{min(1.0, opacity * 3):.2f}" '
+                             f'stroke-width="{_f(max(frame.stroke(0.5), min_w / 2))}"/>')
+        if paths:
+            out += [f'<g data-layer={_attr(layer.name)} data-role="regions">', *paths, "</g>"]
+    return out
+
+
+def _traces(board: Board, drawn: list[int], frame: _Frame) -> list[str]:
+    """Pieces of the drawn layers as round-capped strokes of their width
+    (at least :data:`MIN_COPPER_PX` pixels), bottom layer first so upper
+    layers lie on top; one path per (layer, width), only pieces that meet
+    the framed area."""
+    out: list[str] = []
+    p = board.pieces
+    if not len(p):
+        return out
+    min_w = MIN_COPPER_PX * frame.px()
+    half = p.width / 2
+    inside = ~((np.maximum(p.x1, p.x2) + half < frame.vx0) | (np.minimum(p.x1, p.x2) - half > frame.vx1)
+               | (np.maximum(p.y1, p.y2) + half < frame.vy0) | (np.minimum(p.y1, p.y2) - half > frame.vy1))
+    for k in reversed(drawn):
+        on = np.flatnonzero((p.layer == k) & inside)
+        if not on.size:
+            continue
+        layer = board.stackup.layers[k]
+        colour = LAYER_COLOURS[k % len(LAYER_COLOURS)]
+        out.append(f'<g data-layer={_attr(layer.name)} data-role="traces">')
+        q = np.rint(p.width[on] * 1000).astype(np.int64)
+        for wq in np.unique(q).tolist():
+            sel = on[q == wq]
+            x1, y1, x2, y2 = _fs(p.x1[sel]), _fs(p.y1[sel]), _fs(p.x2[sel]), _fs(p.y2[sel])
+            d = "".join(f"M{a} {b}L{c} {e}" for a, b, c, e in zip(x1, y1, x2, y2, strict=True))
+            out.append(f'<path d="{d}" fill="none" stroke="{colour}" stroke-opacity="{COPPER_OPACITY}" '
+                       f'stroke-width="{_f(max(wq / 1000, min_w))}" stroke-linecap="round" '
+                       f'stroke-linejoin="round"/>')
+        out.append("</g>")
+    return out
+
+
+def _ring(coords) -> str:
+    xy = np.asarray(coords, dtype=np.float64)
+    if xy.shape[0] < 3:
+        return ""
+    if np.array_equal(xy[0], xy[-1]):
+        xy = xy[:-1]
+    xs, ys = _fs(xy[:, 0]), _fs(xy[:, 1])
+    return "M" + "L".join(f"{a} {b}" for a, b in zip(xs, ys, strict=True)) + "Z"
+
+
+def _polygon_path(shape) -> str:
+    """Path data of a (multi)polygon, holes as further subpaths (to be filled
+    with ``fill-rule="evenodd"``)."""
+    if shape.is_empty:
+        return ""
+    parts = getattr(shape, "geoms", [shape])
+    d = []
+    for g in parts:
+        if g.geom_type != "Polygon" or g.is_empty:
+            continue
+        d.append(_ring(g.exterior.coords))
+        d.extend(_ring(h.coords) for h in g.interiors)
+    return "".join(d)
+
+
+def _outline(board: Board, frame: _Frame) -> list[str]:
+    if board.outline is None:
+        return []
+    d = _polygon_path(board.outline)
+    if not d:
+        return []
+    return [f'<path d="{d}" fill="none" stroke="{OKABE_ITO["black"]}" stroke-width="{_f(frame.stroke(0.8))}" '
+            f'data-role="outline"/>']
+
+
+# --------------------------------------------------------------------------
+# coupled stretches
+
+
+class _RowFinder:
+    """Coupled rows of a finding: the rows of its net pair (for a rule that
+    sums over a victim's aggressors, ``SCOPE == "victim"``, the rows of every
+    net of the rule's aggressor classes onto its victim), of the kind of
+    coupling the rule looks at, on its layers, whose coupling spot lies in
+    its bbox."""
+
+    def __init__(self, analysis) -> None:
+        self.a = analysis
+        board = analysis.board
+        self.net = board.net_index()
+        self.layer = {name: i for i, name in enumerate(board.stackup.names)}
+        self.rules = {r.name: r for r in getattr(analysis.ruleset, "rules", ())}
+        np_ = analysis.net_pairs
+        self.net_a = np.asarray(np_.net_a, np.int64)
+        self.net_b = np.asarray(np_.net_b, np.int64)
+        # net -> the net pairs it is in, grouped once
+        nets = np.concatenate([self.net_a, self.net_b])
+        pair = np.concatenate([np.arange(self.net_a.size)] * 2)
+        order = np.argsort(nets, kind="stable")
+        self.by_net = pair[order]
+        self.starts = np.searchsorted(nets[order], np.arange(len(board.nets) + 1))
+        self.masks: dict[str, np.ndarray] = {}
+
+    def _pairs(self, f: Finding, ia: int, iv: int) -> np.ndarray:
+        mine = np.sort(self.by_net[self.starts[iv]:self.starts[iv + 1]])
+        other = np.where(self.net_a[mine] == iv, self.net_b[mine], self.net_a[mine])
+        rule = self.rules.get(f.rule)
+        if rule is not None and getattr(REGISTRY.get(f.kind), "SCOPE", None) == "victim":
+            if f.rule not in self.masks:
+                self.masks[f.rule] = self.a.class_mask(rule.aggressor)
+            return mine[self.masks[f.rule][other] | (other == ia)]
+        return mine[other == ia]
+
+    def _kinds(self, f: Finding) -> tuple[int, ...]:
+        from ..analysis import BROADSIDE, EDGE
+
+        scope = getattr(REGISTRY.get(f.kind), "SCOPE", None)
+        if scope == "broadside":
+            return (BROADSIDE,)
+        if scope == "edge":
+            return (EDGE,)
+        rule = self.rules.get(f.rule)
+        coupling = rule.options.get("coupling") if rule is not None else None
+        return {"edge": (EDGE,), "broadside": (BROADSIDE,)}.get(coupling, (BROADSIDE, EDGE))
+
+    def __call__(self, f: Finding) -> np.ndarray:
+        ia, iv = self.net.get(f.aggressor), self.net.get(f.victim)
+        empty = np.zeros(0, np.int64)
+        if ia is None or iv is None or ia == iv or self.net_a.size == 0:
+            return empty
+        pairs = self._pairs(f, ia, iv)
+        if pairs.size == 0:
+            return empty
+        rows = np.asarray(self.a.rows_of_pairs(pairs), np.int64)
+        c = self.a.couplings
+        on = np.zeros(len(self.layer) + 1, bool)
+        on[[self.layer[n] for n in f.layers if n in self.layer]] = True
+        kinds = self._kinds(f)
+        tol = 1e-6
+        x0, y0, x1, y1 = f.bbox
+        keep = (((c.kind[rows] == kinds[0]) | (c.kind[rows] == kinds[-1]))
+                & on[c.layer_a[rows]] & on[c.layer_b[rows]]
+                & (c.x[rows] >= x0 - tol) & (c.x[rows] <= x1 + tol)
+                & (c.y[rows] >= y0 - tol) & (c.y[rows] <= y1 + tol))
+        return np.sort(rows[keep])
+
+
+def _row_quads(analysis, rows: np.ndarray, pad: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Per row, the four corners (x, y arrays of shape (n, 4)) of the band it
+    couples over: along piece a, centred on the coupling spot, the coupled
+    length long and wide enough to cover both pieces, grown by ``pad`` on
+    every side (so it shows around the copper drawn over it); and the
+    extent (xmin, ymin, xmax, ymax) of all of them."""
+    c = analysis.couplings
+    p = analysis.board.pieces
+    ia, ib = c.a[rows], c.b[rows]
+    dx, dy = p.x2[ia] - p.x1[ia], p.y2[ia] - p.y1[ia]
+    norm = np.hypot(dx, dy)
+    zero = norm == 0
+    norm[zero] = 1.0
+    ux, uy = np.where(zero, 1.0, dx / norm), np.where(zero, 0.0, dy / norm)
+    nx, ny = -uy, ux
+    half_l = np.maximum(c.length_mm[rows], 0.0) / 2 + pad
+    cover = np.maximum(p.width[ia], p.width[ib]) / 2 + pad
+    half_w = np.where(c.parallel[rows], np.abs(c.offset_mm[rows]) / 2 + cover, cover)
+    cx, cy = c.x[rows], c.y[rows]
+    sl = np.array([1, 1, -1, -1])
+    sw = np.array([1, -1, -1, 1])
+    xs = cx[:, None] + ux[:, None] * half_l[:, None] * sl + nx[:, None] * half_w[:, None] * sw
+    ys = cy[:, None] + uy[:, None] * half_l[:, None] * sl + ny[:, None] * half_w[:, None] * sw
+    extent = np.array([xs.min(), ys.min(), xs.max(), ys.max()]) if rows.size else np.zeros(0)
+    return xs, ys, extent
+
+
+def _stretch(analysis, f: Finding, rows: np.ndarray, frame: _Frame, faint: bool, waived: bool) -> list[str]:
+    """The finding's coupled stretch: one band per coupled row, and the
+    finding's bbox dashed where the bands do not cover it (or stand in for
+    them when no row could be matched)."""
+    colour = WAIVED_COLOUR if waived else SEVERITY_COLOURS.get(f.severity, OKABE_ITO["vermillion"])
+    dash = _dash(f.severity, waived, frame)
+    alpha = 0.35 if faint else 1.0
+    fill_alpha = 0.0 if waived else (0.12 if faint else 0.35)
+    parts: list[str] = []
+    x0, y0, x1, y1 = f.bbox
+    show_bbox = True
+    if rows.size:
+        xs, ys, ext = _row_quads(analysis, rows, HALO * frame.unit)
+        sx, sy = _fs(xs.ravel()), _fs(ys.ravel())
+        d = "".join(f"M{sx[i]} {sy[i]}L{sx[i + 1]} {sy[i + 1]}L{sx[i + 2]} {sy[i + 2]}L{sx[i + 3]} {sy[i + 3]}Z"
+                    for i in range(0, len(sx), 4))
+        parts.append(f'<path d="{d}" fill="{colour}" fill-opacity="{fill_alpha}" stroke="{colour}" '
+                     f'stroke-opacity="{alpha}" stroke-width="{_f(frame.stroke(0.8))}"{dash} '
+                     f'stroke-linejoin="round" data-role="stretch"/>')
+        # the bbox was grown on both axes by half the wider piece; the bands are
+        # turned with the pieces, so allow that much before drawing it as well
+        slack = max((0.5 + HALO) * frame.unit, float(np.max(analysis.board.pieces.width[analysis.couplings.a[rows]])))
+        show_bbox = (x0 < ext[0] - slack or y0 < ext[1] - slack or x1 > ext[2] + slack or y1 > ext[3] + slack)
+    if show_bbox:
+        parts.append(f'<rect x="{_f(x0)}" y="{_f(y0)}" width="{_f(max(x1 - x0, 0))}" height="{_f(max(y1 - y0, 0))}" '
+                     f'fill="none" stroke="{colour}" stroke-opacity="{alpha}" stroke-width="{_f(frame.stroke(0.6))}" '
+                     f'stroke-dasharray="{_f(frame.unit * 0.3)} {_f(frame.unit * 0.2)}" data-role="extent"/>')
+    return [f'<g id="s-{_id(f.id)}">', *parts, "</g>"]
+
+
+def _dash(severity: str, waived: bool, frame: _Frame) -> str:
+    if waived:
+        return f' stroke-dasharray="{_f(frame.unit * 0.05)} {_f(frame.unit * 0.15)}" stroke-linecap="round"'
+    if severity == "warning":
+        return f' stroke-dasharray="{_f(frame.unit * 0.4)} {_f(frame.unit * 0.2)}"'
+    return ""
+
+
+# --------------------------------------------------------------------------
+# callouts
+
+
+class _Placer:
+    """Greedy, deterministic placement of callout markers so that they do
+    not overlap: candidates on rings around the spot, eight directions each,
+    the first free one wins (a grid hash keeps the check local)."""
+
+    ANGLES = (45, 135, 315, 225, 90, 0, 270, 180)
+
+    def __init__(self, frame: _Frame) -> None:
+        self.frame = frame
+        self.r = frame.unit * 0.85
+        self.cell = 2.4 * self.r
+        self.grid: dict[tuple[int, int], list[tuple[float, float]]] = {}
+
+    def _free(self, x: float, y: float) -> bool:
+        i, j = int(math.floor(x / self.cell)), int(math.floor(y / self.cell))
+        for di in (-1, 0, 1):
+            for dj in (-1, 0, 1):
+                for px, py in self.grid.get((i + di, j + dj), ()):
+                    if math.hypot(px - x, py - y) < self.cell:
+                        return False
+        return True
+
+    def place(self, at: tuple[float, float]) -> tuple[float, float]:
+        fr = self.frame
+        ax, ay = at
+        lo_x, hi_x = fr.vx0 + self.r * 1.2, fr.vx1 - self.r * 1.2
+        lo_y, hi_y = fr.vy0 + self.r * 1.2, fr.vy1 - self.r * 1.2
+        first = None
+        for ring in range(1, 8):
+            dist = 2.6 * self.r * (1 + 0.75 * (ring - 1))
+            for a in self.ANGLES:
+                x = ax + dist * math.cos(math.radians(a))
+                y = ay + dist * math.sin(math.radians(a))
+                if not (lo_x <= x <= hi_x and lo_y <= y <= hi_y):
+                    continue
+                if first is None:
+                    first = (x, y)
+                if self._free(x, y):
+                    return self._take(x, y)
+        if first is None:
+            first = (min(max(ax, lo_x), hi_x) if lo_x <= hi_x else ax,
+                     min(max(ay, lo_y), hi_y) if lo_y <= hi_y else ay)
+        return self._take(*first)
+
+    def _take(self, x: float, y: float) -> tuple[float, float]:
+        key = (int(math.floor(x / self.cell)), int(math.floor(y / self.cell)))
+        self.grid.setdefault(key, []).append((x, y))
+        return x, y
+
+
+def _marker(kind: str, waived: bool, cx: float, cy: float, r: float, frame: _Frame) -> list[str]:
+    """A marker shape at SVG coordinates (cx, cy): circle for errors, square
+    for warnings; waived: white with a dotted outline and a strike."""
+    colour = SEVERITY_COLOURS.get(kind, OKABE_ITO["vermillion"])
+    fill = BACKGROUND if waived else colour
+    stroke = WAIVED_COLOUR if waived else OKABE_ITO["black"]
+    dash = (f' stroke-dasharray="{_f(r * 0.12)} {_f(r * 0.22)}" stroke-linecap="round"' if waived else
+            (f' stroke-dasharray="{_f(r * 0.45)} {_f(r * 0.2)}"' if kind == "warning" else ""))
+    sw = _f(frame.stroke(1.3))
+    if kind == "warning":
+        s = r * 0.9
+        shape = (f'<rect x="{_f(cx - s)}" y="{_f(cy - s)}" width="{_f(2 * s)}" height="{_f(2 * s)}" '
+                 f'fill="{fill}" stroke="{stroke}" stroke-width="{sw}"{dash}/>')
+    else:
+        shape = (f'<circle cx="{_f(cx)}" cy="{_f(cy)}" r="{_f(r)}" fill="{fill}" stroke="{stroke}" '
+                 f'stroke-width="{sw}"{dash}/>')
+    out = [shape]
+    if waived:
+        k = r * 0.75
+        out.append(f'<line x1="{_f(cx - k)}" y1="{_f(cy + k)}" x2="{_f(cx + k)}" y2="{_f(cy - k)}" '
+                   f'stroke="{WAIVED_COLOUR}" stroke-width="{_f(frame.stroke(0.9))}"/>')
+    return out
+
+
+def _number_colour(severity: str, waived: bool) -> str:
+    # white on vermillion, black on orange and on white: the stronger contrast
+    if waived or severity == "warning":
+        return OKABE_ITO["black"]
+    return BACKGROUND
+
+
+def _callout(f: Finding, number: int, frame: _Frame, place: tuple[float, float], r: float, waiver) -> list[str]:
+    """The numbered marker at ``place`` (board coordinates) with its leader
+    to the finding's worst spot and its hover title."""
+    waived = waiver is not None
+    ax, ay = f.at
+    bx, by = place
+    # leader from the spot to the marker's edge (SVG coordinates)
+    sax, say, sbx, sby = ax, frame.sy(ay), bx, frame.sy(by)
+    dist = math.hypot(sbx - sax, sby - say) or 1.0
+    ex, ey = sbx - (sbx - sax) / dist * r, sby - (sby - say) / dist * r
+    label = str(number)
+    size = frame.unit * (1.0 if len(label) <= 2 else 2.0 / len(label))
+    status = f" (waived by {waiver.author}: {waiver.reason})" if waived else ""
+    tip = (f"{number}. {f.severity}{status} - {f.rule}: {f.aggressor} -> {f.victim} on {'/'.join(f.layers)}\n"
+           f"value {_g(f.value)} {f.unit}, limit {_g(f.limit)} {f.unit}\n{f.message}\nid {f.id}")
+    waived_attr = ' data-waived="true"' if waived else ""
+    out = [f'<g id="f-{_id(f.id)}" data-number="{number}" data-severity={_attr(f.severity)}{waived_attr}>',
+           f"<title>{_text(tip)}</title>",
+           f'<line x1="{_f(sax)}" y1="{_f(say)}" x2="{_f(ex)}" y2="{_f(ey)}" stroke="{OKABE_ITO["black"]}" '
+           f'stroke-width="{_f(frame.stroke(0.9))}"/>',
+           f'<circle cx="{_f(sax)}" cy="{_f(say)}" r="{_f(frame.stroke(2.2))}" fill="{OKABE_ITO["black"]}"/>']
+    out.extend(_marker(f.severity, waived, sbx, sby, r, frame))
+    out.append(f'<text x="{_f(sbx)}" y="{_f(sby + size * 0.36)}" font-size="{_f(size)}" font-weight="bold" '
+               f'text-anchor="middle" fill="{_number_colour(f.severity, waived)}">{label}</text>')
+    out.append("</g>")
+    return out
+
+
+# --------------------------------------------------------------------------
+# legend band
+
+
+def _nice_length(limit: float) -> float:
+    """The largest 1, 2 or 5 x 10^k not above ``limit`` (> 0)."""
+    k = math.floor(math.log10(limit))
+    for m in (5, 2, 1):
+        if m * 10 ** k <= limit:
+            return m * 10.0 ** k
+    return 10.0 ** k
+
+
+def _len_label(v: float) -> str:
+    return f"{v:g} mm" if v >= 0.1 else f"{v * 1000:g} \u00b5m"
+
+
+class _Legend:
+    """Rows of legend items laid out left to right and wrapped to the
+    picture's width; text widths are estimated (0.6 em per character), so
+    the layout does not depend on fonts installed."""
+
+    def __init__(self, frame: _Frame, board: Board, drawn: list[int], callouts: list[Finding], waived) -> None:
+        self.frame = frame
+        u = frame.unit
+        self.u = u
+        self.line = 1.7 * u
+        errors = sum(1 for f in callouts if f.severity == "error")
+        warnings = sum(1 for f in callouts if f.severity == "warning")
+        n_waived = sum(1 for f in callouts if f.id in waived)
+        name = board.name if len(board.name) <= 80 else board.name[:79] + "\u2026"
+        self.rows: list[list[tuple[str, object]]] = []
+        self.rows.append([("title", name),
+                          ("text", f"findings marked: {len(callouts)} ({errors} error, {warnings} warning; "
+                                   f"{n_waived} of them waived)")])
+        layer_items: list[tuple[str, object]] = [("text", "layers (top first):")]
+        for k in drawn:
+            layer = board.stackup.layers[k]
+            layer_items.append(("layer", (LAYER_COLOURS[k % len(LAYER_COLOURS)], layer.name, layer.role)))
+        self.rows.append(layer_items)
+        self.rows.append([("marker", ("error", False, "error")), ("marker", ("warning", False, "warning")),
+                          ("marker", ("error", True, "waived")), ("band", "coupled stretch"),
+                          ("extent", "finding extent")])
+        bar = _nice_length(0.25 * (frame.x1 - frame.x0))
+        self.bar = bar
+        self.rows.append([("scale", bar), ("text", "view from top, y up")])
+        self._layout()
+
+    def _width(self, kind: str, value) -> float:
+        u = self.u
+        em = 0.6 * u
+        if kind == "title":
+            return len(str(value)) * em * 1.1 + u
+        if kind == "text":
+            return len(str(value)) * em + u
+        if kind == "layer":
+            _, name, role = value
+            return 2.4 * u + len(f"{name} ({role})") * em + u
+        if kind in ("marker", "band", "extent"):
+            return 2.2 * u + len(str(value[2] if kind == "marker" else value)) * em + u
+        if kind == "scale":
+            return self.bar + len(_len_label(self.bar)) * em + 1.5 * u
+        raise AssertionError(kind)
+
+    def _layout(self) -> None:
+        fr = self.frame
+        left, right = fr.vx0 + self.u, fr.vx1 - self.u
+        self.placed: list[tuple[str, object, float, int]] = []  # kind, value, x, line
+        line = 0
+        for row in self.rows:
+            x = left
+            for kind, value in row:
+                w = self._width(kind, value)
+                if x > left and x + w > right:
+                    line += 1
+                    x = left
+                self.placed.append((kind, value, x, line))
+                x += w
+            line += 1
+        self.lines = line
+        self.height = (line + 0.8) * self.line
+
+    def draw(self) -> list[str]:
+        fr, u = self.frame, self.u
+        top = fr.vy0 + fr.vh  # SVG y where the band starts
+        out = ['<g data-role="legend">',
+               f'<rect x="{_f(fr.vx0)}" y="{_f(top)}" width="{_f(fr.vw)}" height="{_f(self.height)}" '
+               f'fill="{BACKGROUND}"/>',
+               f'<line x1="{_f(fr.vx0)}" y1="{_f(top)}" x2="{_f(fr.vx1)}" y2="{_f(top)}" '
+               f'stroke="{OKABE_ITO["black"]}" stroke-width="{_f(fr.stroke(0.6))}"/>']
+        fs = _f(0.85 * u)
+        for kind, value, x, line in self.placed:
+            mid = top + (line + 0.9) * self.line  # centre line of this legend line
+            base = _f(mid + 0.3 * u)
+            if kind == "title":
+                out.append(f'<text x="{_f(x)}" y="{base}" font-size="{_f(u)}" font-weight="bold" '
+                           f'data-role="board-name">{_text(str(value))}</text>')
+            elif kind == "text":
+                out.append(f'<text x="{_f(x)}" y="{base}" font-size="{fs}">{_text(str(value))}</text>')
+            elif kind == "layer":
+                colour, name, role = value  # type: ignore[misc]
+                out.append(f'<line x1="{_f(x + 0.2 * u)}" y1="{_f(mid)}" x2="{_f(x + 1.8 * u)}" y2="{_f(mid)}" '
+                           f'stroke="{colour}" stroke-opacity="{COPPER_OPACITY}" stroke-width="{_f(0.5 * u)}" '
+                           f'stroke-linecap="round"/>')
+                out.append(f'<text x="{_f(x + 2.4 * u)}" y="{base}" font-size="{fs}" '
+                           f'data-role="layer-name">{_text(f"{name} ({role})")}</text>')
+            elif kind == "marker":
+                sev, waived, label = value  # type: ignore[misc]
+                out.extend(_marker(sev, waived, x + 0.9 * u, mid, 0.6 * u, fr))
+                out.append(f'<text x="{_f(x + 2.2 * u)}" y="{base}" font-size="{fs}">{_text(label)}</text>')
+            elif kind == "band":
+                colour = SEVERITY_COLOURS["error"]
+                out.append(f'<rect x="{_f(x + 0.1 * u)}" y="{_f(mid - 0.4 * u)}" width="{_f(1.7 * u)}" '
+                           f'height="{_f(0.8 * u)}" fill="{colour}" fill-opacity="0.35" stroke="{colour}" '
+                           f'stroke-width="{_f(fr.stroke(0.8))}"/>')
+                out.append(f'<text x="{_f(x + 2.2 * u)}" y="{base}" font-size="{fs}">{_text(str(value))}</text>')
+            elif kind == "extent":
+                colour = SEVERITY_COLOURS["error"]
+                out.append(f'<rect x="{_f(x + 0.1 * u)}" y="{_f(mid - 0.4 * u)}" width="{_f(1.7 * u)}" '
+                           f'height="{_f(0.8 * u)}" fill="none" stroke="{colour}" '
+                           f'stroke-width="{_f(fr.stroke(0.6))}" '
+                           f'stroke-dasharray="{_f(u * 0.3)} {_f(u * 0.2)}"/>')
+                out.append(f'<text x="{_f(x + 2.2 * u)}" y="{base}" font-size="{fs}">{_text(str(value))}</text>')
+            elif kind == "scale":
+                length = float(value)  # type: ignore[arg-type]
+                x0, x1 = x + 0.2 * u, x + 0.2 * u + length
+                tick = 0.35 * u
+                sw = _f(fr.stroke(1.2))
+                out.append(f'<path d="M{_f(x0)} {_f(mid - tick)}L{_f(x0)} {_f(mid + tick)}M{_f(x0)} {_f(mid)}'
+                           f'L{_f(x1)} {_f(mid)}M{_f(x1)} {_f(mid - tick)}L{_f(x1)} {_f(mid + tick)}" '
+                           f'fill="none" stroke="{OKABE_ITO["black"]}" stroke-width="{sw}" data-role="scale-bar" '
+                           f'data-length-mm="{length:g}"/>')
+                out.append(f'<text x="{_f(x1 + 0.5 * u)}" y="{base}" font-size="{fs}">'
+                           f'{_text(_len_label(length))}</text>')
+        out.append("</g>")
+        return out

@@ -1,0 +1,562 @@
+"""The annotated SVG overlay (checker.report.svg) on the demo board and on
+small hand-made boards."""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime as dt
+import io
+import re
+import textwrap
+import xml.etree.ElementTree as ET
+
+import numpy as np
+import pytest
+
+from checker.cli import demo_board_path
+from checker.model import Pieces
+from checker.readers import load_board, read_board_dict
+from checker.report import svg
+from checker.report.svg import finding_number, render_svg, svg_per_layer_group
+from checker.review import Review, Waiver
+from checker.ruleset import default_ruleset, load_ruleset
+from checker.runner import check_board
+
+NS = "{http://www.w3.org/2000/svg}"
+
+STACKUP = [
+    {"copper": "TOP", "role": "signal", "thickness": 0.035},
+    {"dielectric": "pp1", "thickness": 0.2, "er": 4.2},
+    {"copper": "IN1", "role": "signal", "thickness": 0.035},
+    {"dielectric": "pp2", "thickness": 0.2, "er": 4.2},
+    {"copper": "GND", "role": "plane", "thickness": 0.035},
+]
+
+SPACING = textwrap.dedent("""
+    version: 1
+    net_classes:
+      fast:
+        nets: {aggressors}
+      quiet:
+        nets: {victims}
+    rules:
+      - name: spacing
+        kind: spacing-ratio
+        aggressor: fast
+        victim: quiet
+        measure: centre/width
+        min_ratio: 3
+        min_length: 1 mm
+""")
+
+
+@pytest.fixture(scope="module")
+def demo():
+    return check_board(load_board(demo_board_path()), default_ruleset())
+
+
+@pytest.fixture(scope="module")
+def demo_svg(demo):
+    return render_svg(demo)
+
+
+def spacing_rules(tmp_path, aggressors=("CLK*",), victims=("SENSE*",)):
+    path = tmp_path / "rules.yaml"
+    quote = lambda names: "[" + ", ".join("'" + n.replace("'", "''") + "'" for n in names) + "]"  # noqa: E731
+    path.write_text(SPACING.format(aggressors=quote(aggressors), victims=quote(victims)), encoding="utf-8")
+    return load_ruleset(path)
+
+
+def make_board(tracks, *, name="t", nets=None, stackup=STACKUP, outline=None, regions=None):
+    names = nets or sorted({t["net"] for t in tracks})
+    data = {"format": "couplint-board", "version": 1, "name": name, "stackup": stackup,
+            "nets": [{"name": n} for n in names], "tracks": tracks}
+    if outline is not None:
+        data["outline"] = outline
+    if regions is not None:
+        data["regions"] = regions
+    return read_board_dict(data, "t.json")
+
+
+def track(layer, net, points, width=0.15):
+    return {"layer": layer, "net": net, "width": width, "points": points}
+
+
+def parse(text: str) -> ET.Element:
+    root = ET.fromstring(text)
+    assert root.tag == NS + "svg"
+    return root
+
+
+def viewbox(root) -> tuple[float, float, float, float]:
+    x, y, w, h = (float(v) for v in root.get("viewBox").split())
+    return x, y, w, h
+
+
+def groups_by_id(root) -> dict[str, ET.Element]:
+    return {el.get("id"): el for el in root.iter() if el.get("id")}
+
+
+def flip_of(root) -> tuple[ET.Element, float]:
+    """The group flipped by matrix(1 0 0 -1 0 F), and F."""
+    for g in root.iter(NS + "g"):
+        m = re.fullmatch(r"matrix\(1 0 0 -1 0 (-?[\d.]+)\)", g.get("transform", ""))
+        if m:
+            return g, float(m.group(1))
+    raise AssertionError("no flipped group")
+
+
+def path_points(d: str) -> list[tuple[float, float]]:
+    nums = [float(v) for v in re.findall(r"-?\d+(?:\.\d+)?", d)]
+    return list(zip(nums[0::2], nums[1::2], strict=True))
+
+
+# --- structure -------------------------------------------------------------
+
+
+def test_demo_parses_and_has_every_callout_with_its_number(demo, demo_svg):
+    root = parse(demo_svg)
+    ids = groups_by_id(root)
+    numbers = finding_number(demo)
+    assert len(demo.findings) == 10
+    for i, f in enumerate(demo.findings, 1):
+        assert numbers[f.id] == i
+        g = ids[f"f-{f.id}"]
+        assert g.get("data-number") == str(i)
+        assert [t.text for t in g.iter(NS + "text")] == [str(i)]
+        title = g.find(NS + "title").text
+        assert f.aggressor in title and f.victim in title and f.rule in title and f.message in title
+        assert f"limit {f.limit:.4g} {f.unit}" in title
+        assert g.get("data-severity") == f.severity
+        # the stretch group of the same finding sits in the flipped copper group
+        assert f"s-{f.id}" in ids
+
+
+def test_finding_number_keeps_the_first_of_a_repeated_id(demo):
+    class Twice:
+        findings = [demo.findings[1], demo.findings[0], demo.findings[1]]
+    assert finding_number(Twice()) == {demo.findings[1].id: 1, demo.findings[0].id: 2}
+
+
+def test_viewbox_contains_the_board_with_a_margin_and_a_legend_below(demo, demo_svg):
+    root = parse(demo_svg)
+    x, y, w, h = viewbox(root)
+    bx0, by0, bx1, by1 = demo.analysis.board.bounds()
+    assert x < bx0 and x + w > bx1
+    # board y and SVG y cover the same range (mirrored about its middle); the legend adds height below
+    assert y < by0 and y + h > by1
+    _, flip = flip_of(root)
+    # SVG y = F - board y with F = vy0 + vy1; the margin is the same on every side, so F = ymin + ymax
+    assert flip == pytest.approx(by0 + by1, abs=2e-3)
+    assert bx0 - x == pytest.approx(by0 - y, abs=2e-3)
+    assert int(root.get("width")) == 960
+    assert int(root.get("height")) == round(960 * h / w)
+
+
+def test_no_findings_draws_every_layer_with_copper(tmp_path):
+    b = make_board([track("TOP", "A", [[0, 0], [5, 0]]), track("IN1", "B", [[0, 3], [5, 3]])])
+    result = check_board(b, spacing_rules(tmp_path))
+    assert result.findings == []
+    root = parse(render_svg(result))
+    layers = [g.get("data-layer") for g in root.iter(NS + "g") if g.get("data-role") == "traces"]
+    assert layers == ["IN1", "TOP"]  # bottom first, so the upper layer lies on top
+    assert not [el for el in root.iter() if (el.get("id") or "").startswith("f-")]
+
+
+def test_degenerate_boards_still_give_a_picture(tmp_path):
+    rules = spacing_rules(tmp_path)
+    dot = make_board([track("TOP", "A", [[3, 3], [3, 3.001]])])  # one 1 um piece, no outline
+    root = parse(render_svg(check_board(dot, rules)))
+    x, y, w, h = viewbox(root)
+    assert w > 0 and h > 0 and x < 3 < x + w
+    # nothing at all (a board model with no copper): a 1 mm frame round the origin
+    empty = dataclasses.replace(dot, pieces=Pieces.empty(), regions=(), outline=None)
+    root = parse(render_svg(check_board(empty, rules)))
+    x, y, w, h = viewbox(root)
+    assert x < -0.5 and x + w > 0.5 and w < 2
+    pour = read_board_dict({"format": "couplint-board", "version": 1, "name": "pour", "stackup": STACKUP,
+                            "nets": [{"name": "GND"}],
+                            "regions": [{"layer": "GND", "net": "GND", "outline": [[0, 0], [4, 0], [4, 4], [0, 4]]}]},
+                           "p.json")
+    root = parse(render_svg(check_board(pour, rules)))
+    assert [g.get("data-layer") for g in root.iter(NS + "g") if g.get("data-role") == "regions"] == ["GND"]
+    # a tiny view gives a scale bar in micrometres
+    tiny = parse(render_svg(check_board(dot, rules), view=(2.9, 2.9, 3.1, 3.1)))
+    bar = next(p for p in tiny.iter(NS + "path") if p.get("data-role") == "scale-bar")
+    assert bar.get("data-length-mm") == "0.05"
+    assert "50 \u00b5m" in [t.text for t in tiny.iter(NS + "text")]
+
+
+def test_layers_default_to_the_layers_findings_name_and_upper_layers_last(demo, demo_svg):
+    root = parse(demo_svg)
+    order = [g.get("data-layer") for g in root.iter(NS + "g") if g.get("data-role") == "traces"]
+    assert order == ["IN1", "TOP"]
+    names = [t.text for t in root.iter(NS + "text") if t.get("data-role") == "layer-name"]
+    assert names == ["TOP (signal)", "IN1 (signal)"]
+    board_name = [t.text for t in root.iter(NS + "text") if t.get("data-role") == "board-name"]
+    assert board_name == [demo.analysis.board.name]
+
+
+def test_one_path_per_layer_and_width_not_per_piece(tmp_path):
+    # rows 1.5 mm apart, alternating layers: nothing couples, so the check is quick
+    tracks = []
+    for i in range(1000):
+        x, y = 5.0 * (i % 10), 1.5 * (i // 10)
+        tracks.append(track("TOP" if i % 2 else "IN1", f"N{i % 40}", [[x, y], [x + 1, y + 0.5], [x + 2, y]],
+                            width=(0.1, 0.2)[i % 3 == 0]))
+    b = make_board(tracks)
+    assert len(b.pieces) == 2000
+    root = parse(render_svg(check_board(b, spacing_rules(tmp_path))))
+    per_layer = {g.get("data-layer"): g for g in root.iter(NS + "g") if g.get("data-role") == "traces"}
+    assert set(per_layer) == {"TOP", "IN1"}
+    for g in per_layer.values():
+        paths = g.findall(NS + "path")
+        assert len(paths) == 2  # widths 0.1 and 0.2
+        assert sum(p.get("d").count("M") for p in paths) == 1000
+        assert sorted(float(p.get("stroke-width")) for p in paths) == [0.1, 0.2]
+
+
+def test_regions_are_filled_with_holes(demo):
+    root = parse(render_svg(demo, layers=("BOT", "GND")))
+    regions = {g.get("data-layer"): g for g in root.iter(NS + "g") if g.get("data-role") == "regions"}
+    assert set(regions) == {"BOT", "GND"}
+    for g in regions.values():
+        (p,) = g.findall(NS + "path")
+        assert p.get("fill-rule") == "evenodd"
+        assert p.get("d").count("M") == 2  # the outline and its hole
+    # planes are drawn fainter than pours
+    assert float(regions["GND"].find(NS + "path").get("fill-opacity")) < \
+        float(regions["BOT"].find(NS + "path").get("fill-opacity"))
+
+
+def test_unknown_layer_or_finding_or_bad_view_is_refused(demo):
+    with pytest.raises(ValueError, match="'L7'.*TOP, IN1, GND, BOT"):
+        render_svg(demo, layers=("TOP", "L7"))
+    with pytest.raises(ValueError, match="no finding with id 'nope'"):
+        render_svg(demo, only="nope")
+    with pytest.raises(ValueError, match="view"):
+        render_svg(demo, view=(5, 5, 5, 10))
+    with pytest.raises(ValueError, match="view"):
+        render_svg(demo, view=(0, 0, float("nan"), 10))
+    with pytest.raises(ValueError, match="width_px"):
+        render_svg(demo, width_px=3)
+
+
+# --- coordinates -------------------------------------------------------------
+
+
+def test_y_is_flipped_by_a_transform_and_text_is_not_mirrored(tmp_path):
+    b = make_board([track("TOP", "LOW", [[0, 1], [10, 1]]), track("IN1", "HIGH", [[0, 9], [10, 9]])],
+                   outline=[[0, 0], [10, 0], [10, 10], [0, 10]])
+    root = parse(render_svg(check_board(b, spacing_rules(tmp_path))))
+    flipped, flip = flip_of(root)
+    traces = {g.get("data-layer"): g.find(NS + "path").get("d") for g in flipped.iter(NS + "g")
+              if g.get("data-role") == "traces"}
+    # coordinates stay in board mm; the transform maps board y to SVG y = F - y
+    assert path_points(traces["TOP"]) == [(0, 1), (10, 1)]
+    assert path_points(traces["IN1"]) == [(0, 9), (10, 9)]
+    low_svg_y, high_svg_y = flip - 1, flip - 9
+    assert high_svg_y < low_svg_y  # the trace at higher board y is higher in the picture
+    _, y, _, _ = viewbox(root)
+    assert y < high_svg_y < low_svg_y < flip - y  # both inside the drawing area [vy0, vy1]
+    assert not list(flipped.iter(NS + "text"))
+    assert all("-1" not in (g.get("transform") or "") for g in root.iter() if g is not flipped)
+
+
+def test_y_flip_in_the_rendered_image(tmp_path):
+    """End to end: a trace near the top edge of the board comes out in the
+    upper part of the picture."""
+    cairosvg = pytest.importorskip("cairosvg")
+    image = pytest.importorskip("PIL.Image")
+    b = make_board([track("TOP", "A", [[1, 9], [9, 9]], width=0.5)], outline=[[0, 0], [10, 0], [10, 10], [0, 10]])
+    text = render_svg(check_board(b, spacing_rules(tmp_path)))
+    root = parse(text)
+    _, _, w, h = viewbox(root)
+    png = image.open(io.BytesIO(cairosvg.svg2png(bytestring=text.encode()))).convert("RGB")
+    px = np.asarray(png, dtype=np.int32)
+    blueish = (px[:, :, 2] - px[:, :, 0] > 60)  # TOP is Okabe-Ito blue, the only blue thing drawn
+    rows = np.flatnonzero(blueish.any(axis=1))
+    assert rows.size
+    # the board drawing is the top (vh / (vh + band)) of the picture; the trace is in its upper fifth
+    drawing_rows = png.height * (10 + 2 * (10 * svg.TEXT_PX / 960 * svg.MARGIN)) / h
+    legend_rows = rows[rows >= drawing_rows]  # the layer swatch in the legend
+    trace_rows = rows[rows < drawing_rows]
+    assert trace_rows.size and legend_rows.size
+    assert trace_rows.max() < 0.25 * drawing_rows
+
+
+def test_view_crops_to_a_region(tmp_path):
+    b = make_board([track("TOP", "CLK", [[0, 0], [10, 0]]), track("TOP", "SENSE", [[0, 0.3], [10, 0.3]]),
+                    track("TOP", "CLK2", [[200, 100], [210, 100]]),
+                    track("TOP", "SENSE2", [[200, 100.3], [210, 100.3]])])
+    result = check_board(b, spacing_rules(tmp_path))
+    near, far = sorted(result.findings, key=lambda f: f.at[0])
+    whole = parse(render_svg(result))
+    assert {f"f-{near.id}", f"f-{far.id}"} <= set(groups_by_id(whole))
+    view = (-1.0, -2.0, 11.0, 2.0)
+    root = parse(render_svg(result, view=view))
+    x, y, w, h = viewbox(root)
+    margin = 12 * svg.TEXT_PX / 960 * svg.MARGIN  # the margin follows the larger side of the view
+    assert (x, y, w) == pytest.approx((-1 - margin, -2 - margin, 12 + 2 * margin), abs=1e-3)
+    _, flip = flip_of(root)
+    assert flip == pytest.approx((-2 - margin) + (2 + margin), abs=1e-3)
+    ids = groups_by_id(root)
+    assert f"f-{near.id}" in ids and f"f-{far.id}" not in ids
+    points = [pt for g in root.iter(NS + "g") if g.get("data-role") == "traces"
+              for p in g.iter(NS + "path") for pt in path_points(p.get("d"))]
+    assert points and max(px for px, _ in points) <= 10  # the far-away copper is left out
+    # the scale bar follows the view, not the board
+    bar = next(p for p in root.iter(NS + "path") if p.get("data-role") == "scale-bar")
+    assert float(bar.get("data-length-mm")) == 2.0
+
+
+def test_only_draws_one_callout_and_the_others_faintly(demo):
+    target = demo.findings[2]
+    root = parse(render_svg(demo, only=target.id))
+    ids = groups_by_id(root)
+    callouts = [i for i in ids if i.startswith("f-")]
+    assert callouts == [f"f-{target.id}"]
+    strong = ids[f"s-{target.id}"].find(NS + "path")
+    # another finding on the same layers keeps a faint, unnumbered stretch
+    other = next(f for f in demo.findings if f.layers == target.layers and f.id != target.id)
+    faint = ids[f"s-{other.id}"].find(NS + "path")
+    assert float(faint.get("stroke-opacity")) < float(strong.get("stroke-opacity"))
+    assert float(faint.get("fill-opacity")) < float(strong.get("fill-opacity"))
+
+
+def test_stretch_follows_the_coupled_rows(demo, demo_svg):
+    """SPI_SCK beside AIN3 on IN1: the stretch is drawn from the coupled rows
+    (one band per row, within the finding's bbox plus the halo), so no dashed
+    extent box is needed; VREF_2V5's noise finding spans two aggressors far
+    apart, so its extent box is drawn as well."""
+    root = parse(demo_svg)
+    ids = groups_by_id(root)
+    # a band covers both traces: half the 0.5 mm centre spacing plus half a
+    # 0.15 mm width beyond the coupling spots (the finding's bbox holds the
+    # spots grown by half a width), plus the halo
+    tol = svg.HALO * demo_unit(demo) + 0.25 + 0.075 + 1e-3
+    run = next(f for f in demo.findings if f.rule == "parallel-run-length" and f.victim == "AIN3")
+    g = ids[f"s-{run.id}"]
+    roles = [el.get("data-role") for el in g]
+    assert roles == ["stretch"]
+    d = g[0].get("d")
+    assert d.count("M") >= 3  # the run is several pieces: straight, jog, straight
+    x0, y0, x1, y1 = run.bbox
+    for x, y in path_points(d):
+        assert x0 - tol <= x <= x1 + tol and y0 - tol <= y <= y1 + tol
+    # VREF_2V5's noise sums two aggressors far apart (SW_BUCK crossing it at
+    # (31, 8), CLK_ADC beside it near (21.5, 28.3)): both are marked
+    noise = next(f for f in demo.findings if f.rule == "coupled-noise" and f.victim == "VREF_2V5")
+    (band,) = ids[f"s-{noise.id}"]
+    pts = path_points(band.get("d"))
+    assert any(abs(x - 31) < 0.6 and abs(y - 8) < 0.6 for x, y in pts)
+    assert any(19 < x < 24 and abs(y - 28.3) < 0.6 for x, y in pts)
+
+
+def test_extent_box_stands_in_when_no_coupled_row_matches(demo):
+    f = demo.findings[0]
+    moved = dataclasses.replace(f, aggressor="NO_SUCH_NET")
+    result = dataclasses.replace(demo, findings=[moved, *demo.findings[1:]])
+    g = groups_by_id(parse(render_svg(result)))[f"s-{f.id}"]
+    (rect,) = g
+    assert rect.get("data-role") == "extent" and rect.get("stroke-dasharray")
+    x0, y0, x1, y1 = f.bbox
+    assert float(rect.get("x")) == pytest.approx(x0, abs=1e-3)
+    assert float(rect.get("width")) == pytest.approx(x1 - x0, abs=2e-3)
+
+
+def demo_unit(result):
+    x0, y0, x1, y1 = result.analysis.board.bounds()
+    return max(x1 - x0, y1 - y0) * svg.TEXT_PX / 960
+
+
+# --- scaling -------------------------------------------------------------------
+
+
+def scaled_board(size_mm: float):
+    """A square board of side ``size_mm`` with one spacing violation (a
+    0.15 mm pair at 0.3 mm centre spacing) across most of it."""
+    k = size_mm / 10
+    w = 0.15
+    return make_board(
+        [track("TOP", "CLK", [[1 * k, 5 * k], [9 * k, 5 * k]], width=w),
+         track("TOP", "SENSE", [[1 * k, 5 * k + 2 * w], [9 * k, 5 * k + 2 * w]], width=w)],
+        outline=[[0, 0], [size_mm, 0], [size_mm, size_mm], [0, size_mm]])
+
+
+def sizes(text: str) -> dict[str, float]:
+    root = parse(text)
+    _, _, w, _ = viewbox(root)
+    (callout,) = [el for el in root.iter(NS + "g") if (el.get("id") or "").startswith("f-")]
+    number = callout.find(NS + "text")
+    marker = max(float(c.get("r")) for c in callout.iter(NS + "circle"))  # the spot dot is smaller
+    legend = next(t for t in root.iter(NS + "text") if t.get("data-role") == "layer-name")
+    outline = next(p for p in root.iter(NS + "path") if p.get("data-role") == "outline")
+    return {"w": w, "number": float(number.get("font-size")), "legend": float(legend.get("font-size")),
+            "marker": marker, "outline": float(outline.get("stroke-width")),
+            "leader": float(callout.find(NS + "line").get("stroke-width"))}
+
+
+def test_text_and_strokes_scale_with_the_board_from_10_to_500_mm(tmp_path):
+    rules = spacing_rules(tmp_path)
+    small, large = (sizes(render_svg(check_board(scaled_board(s), rules))) for s in (10.0, 500.0))
+    assert large["w"] / small["w"] == pytest.approx(50, rel=1e-3)
+    for key in ("number", "legend", "marker", "outline", "leader"):
+        # in proportion to the picture, so the same on screen at the same
+        # width_px (strokes of ~10 um on the small board lose a little to the 1 um rounding)
+        assert large[key] / small[key] == pytest.approx(50, rel=0.06), key
+        assert small[key] / small["w"] == pytest.approx(large[key] / large["w"], rel=0.06), key
+    # and readable: numbers, legend text and markers are 8-30 px high at
+    # the width asked for, also in a small picture
+    half = sizes(render_svg(check_board(scaled_board(10.0), rules), width_px=480))
+    for s, px in ((small, 960), (large, 960), (half, 480)):
+        for key in ("number", "legend", "marker"):
+            assert 8 <= s[key] / s["w"] * px <= 30, (key, px)
+
+
+def test_scale_bar_is_a_round_length():
+    assert [svg._nice_length(v) for v in (0.3, 1.0, 2.5, 4.99, 7.0, 130.0)] == [0.2, 1.0, 2.0, 2.0, 5.0, 100.0]
+
+
+def test_thin_copper_stays_visible_on_a_large_board(tmp_path):
+    b = make_board([track("TOP", "A", [[0, 0], [500, 0]], width=0.1), track("TOP", "B", [[0, 400], [500, 400]])])
+    root = parse(render_svg(check_board(b, spacing_rules(tmp_path)), width_px=1000))
+    _, _, w, _ = viewbox(root)
+    widths = [float(p.get("stroke-width")) for g in root.iter(NS + "g") if g.get("data-role") == "traces"
+              for p in g.findall(NS + "path")]
+    assert widths == [pytest.approx(svg.MIN_COPPER_PX * w / 1000, abs=1e-3)] * 2
+
+
+# --- escaping, safety, determinism ---------------------------------------------
+
+
+EVIL_A, EVIL_V = "<script>", 'A&B"'
+
+
+@pytest.fixture(scope="module")
+def evil(tmp_path_factory):
+    rules = spacing_rules(tmp_path_factory.mktemp("r"), aggressors=(EVIL_A,), victims=(EVIL_V,))
+    stackup = [{"copper": "T<o>p&'\"", "role": "signal", "thickness": 0.035}]
+    b = make_board([track("T<o>p&'\"", EVIL_A, [[0, 0], [8, 0]]), track("T<o>p&'\"", EVIL_V, [[0, 0.3], [8, 0.3]])],
+                   name="<script>alert(1)</script> & \x1b", stackup=stackup)
+    result = check_board(b, rules)
+    assert [(f.aggressor, f.victim) for f in result.findings] == [(EVIL_A, EVIL_V)]
+    f = result.findings[0]
+    result.review = Review(waived={f.id: Waiver(reason="ok <img src=x onerror=alert(1)>", author="Q&A",
+                                                date=dt.date(2024, 5, 1), id=f.id)})
+    return result
+
+
+def test_hostile_names_are_escaped_and_nothing_runs(evil):
+    text = render_svg(evil)
+    root = parse(text)  # well-formed
+    assert "<script" not in text.lower() and "<img" not in text.lower()
+    for el in root.iter():
+        assert not el.tag.lower().endswith("script")
+        assert not el.tag.lower().endswith("foreignobject")
+        for name, value in el.attrib.items():
+            assert not name.lower().startswith("on"), name
+            assert "javascript:" not in value.lower()
+    f = evil.findings[0]
+    g = groups_by_id(root)[f"f-{f.id}"]
+    title = g.find(NS + "title").text
+    # the names come back intact once parsed
+    assert EVIL_A in title and EVIL_V in title and "onerror=alert(1)>" in title
+    assert g.get("data-waived") == "true"
+    texts = [t.text for t in root.iter(NS + "text")]
+    assert "T<o>p&'\" (signal)" in texts
+    assert "<script>alert(1)</script> & \ufffd" in texts  # a control character is replaced
+    for part in svg_per_layer_group(evil).values():
+        parse(part)
+
+
+def test_waived_findings_are_marked(demo):
+    target = demo.findings[0]
+    marked = dataclasses.replace(demo, review=Review(waived={target.id: Waiver(
+        reason="reviewed", author="me", date=dt.date(2024, 1, 1), id=target.id)}))
+    ids = groups_by_id(parse(render_svg(marked)))
+    g = ids[f"f-{target.id}"]
+    assert g.get("data-waived") == "true"
+    assert "waived by me: reviewed" in g.find(NS + "title").text
+    assert g.find(NS + "circle[@stroke-dasharray]") is not None  # dotted ring
+    assert len(g.findall(NS + "line")) == 2  # leader and strike
+    others = [ids[f"f-{f.id}"] for f in demo.findings[1:]]
+    assert all(o.get("data-waived") is None and len(o.findall(NS + "line")) == 1 for o in others)
+
+
+def test_output_is_deterministic(demo, demo_svg):
+    again = check_board(load_board(demo_board_path()), default_ruleset())
+    assert render_svg(demo) == demo_svg
+    assert render_svg(again) == demo_svg
+    # coordinates and sizes carry at most three decimals (1 um), never "-0"
+    for el in parse(demo_svg).iter():
+        for name, value in el.attrib.items():
+            if name in ("d", "x", "y", "x1", "y1", "x2", "y2", "cx", "cy", "r", "width", "height",
+                        "stroke-width", "font-size", "viewBox", "transform"):
+                assert not re.search(r"\d\.\d{4}", value), (name, value)
+                assert not re.search(r"(?<![\d.])-0(?![.\d])", value), (name, value)
+
+
+def test_number_formatting():
+    assert [svg._f(v) for v in (0, -0.0, -0.0004, 1.5, -2, 123.4567, 2.6e-3, 1e6)] == \
+        ["0", "0", "0", "1.5", "-2", "123.457", "0.003", "1000000"]
+    assert svg._fs(np.array([-0.0001, 3.0, 0.1234])) == ["0", "3", "0.123"]
+
+
+# --- per layer group -----------------------------------------------------------
+
+
+def test_one_picture_per_layer_group(demo):
+    pictures = svg_per_layer_group(demo)
+    assert list(pictures) == ["TOP", "TOP-IN1", "IN1"]
+    for key, text in pictures.items():
+        root = parse(text)
+        layers = key.split("-")
+        drawn = [g.get("data-layer") for g in root.iter(NS + "g") if g.get("data-role") == "traces"]
+        assert sorted(drawn) == sorted(layers)
+        callouts = {i[2:] for i in groups_by_id(root) if i.startswith("f-")}
+        assert callouts == {f.id for f in demo.findings if set(f.layers) <= set(layers)}
+        assert callouts  # each group has findings
+    assert pictures["TOP-IN1"] == render_svg(demo, layers=("TOP", "IN1"))
+
+
+# --- rendering -----------------------------------------------------------------
+
+
+def test_renders_to_a_picture_with_copper_and_severity_colours(demo, demo_svg):
+    cairosvg = pytest.importorskip("cairosvg")
+    image = pytest.importorskip("PIL.Image")
+    png = image.open(io.BytesIO(cairosvg.svg2png(bytestring=demo_svg.encode()))).convert("RGB")
+    assert png.width == 960
+    px = np.asarray(png, dtype=np.int32).reshape(-1, 3)
+    packed = (px[:, 0] << 16) | (px[:, 1] << 8) | px[:, 2]
+    assert np.unique(packed).size > 50  # copper, halos, markers, text, antialiasing
+    non_white = np.count_nonzero((px != 255).any(axis=1)) / px.shape[0]
+    assert 0.03 < non_white < 0.6
+    # opaque callout markers come out in the palette's exact colours
+    for hex_colour in (svg.SEVERITY_COLOURS["error"], svg.SEVERITY_COLOURS["warning"]):
+        rgb = tuple(int(hex_colour[i:i + 2], 16) for i in (1, 3, 5))
+        assert np.count_nonzero((px == rgb).all(axis=1)) > 100, hex_colour
+
+
+def test_docs_give_the_colours_the_code_uses():
+    from pathlib import Path
+
+    doc = (Path(__file__).resolve().parents[1] / "docs" / "overlay.md").read_text(encoding="utf-8")
+    layer_rows = re.findall(r"^\| (\d)\w\w(?: \(top\))?, .*? \| [\w ]+ \| `(#[0-9A-F]{6})` \|$", doc, flags=re.M)
+    assert [hex_ for _, hex_ in layer_rows] == list(svg.LAYER_COLOURS)
+    for severity, colour in svg.SEVERITY_COLOURS.items():
+        assert re.search(rf"^\| {severity} \| [\w ]+ \| `{colour}` \|$", doc, flags=re.M), severity
+    assert re.search(rf"^\| waived .*`{svg.WAIVED_COLOUR}` \|$", doc, flags=re.M)
+    for name, colour in svg.OKABE_ITO.items():
+        if colour in svg.LAYER_COLOURS:
+            assert f"| {name} | `{colour}` |" in doc
+
+
+def test_palette_is_okabe_ito():
+    assert set(svg.LAYER_COLOURS) | set(svg.SEVERITY_COLOURS.values()) <= set(svg.OKABE_ITO.values())
+    assert not set(svg.LAYER_COLOURS) & set(svg.SEVERITY_COLOURS.values())
+    # the published sRGB values (Okabe and Ito 2008; Wong 2011)
+    assert svg.OKABE_ITO == {
+        "black": "#000000", "orange": "#E69F00", "sky blue": "#56B4E9", "bluish green": "#009E73",
+        "yellow": "#F0E442", "blue": "#0072B2", "vermillion": "#D55E00", "reddish purple": "#CC79A7"}
