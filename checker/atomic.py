@@ -22,6 +22,7 @@ def write_atomically(path: str | os.PathLike, emit: Callable[[TextIO], None]) ->
     try:
         with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as handle:
             emit(handle)
+        os.chmod(tmp, _mode_for(target))
         os.replace(tmp, target)
     except BaseException:
         if os.path.exists(tmp):
@@ -35,3 +36,14 @@ def refuse_overwriting_inputs(out: str | os.PathLike, inputs: list[str | os.Path
     for p in inputs:
         if os.path.realpath(p) == target:
             raise UsageError(f"{out}: an output path names an input file; refusing to overwrite it")
+
+
+def _mode_for(target: Path) -> int:
+    """Keep an existing file's permissions; a new file gets the usual
+    0o666 less the umask (mkstemp's private 0o600 is not wanted for reports)."""
+    try:
+        return target.stat().st_mode & 0o7777
+    except FileNotFoundError:
+        umask = os.umask(0)
+        os.umask(umask)
+        return 0o666 & ~umask

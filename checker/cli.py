@@ -16,7 +16,7 @@ from pathlib import Path
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
-from . import __version__
+from . import __version__, batch
 from .atomic import refuse_overwriting_inputs, write_atomically
 from .errors import CouplintError, UsageError
 from .review import DEFAULT_WAIVER_FILE, FAIL_ON, TODAY_ENV
@@ -55,11 +55,19 @@ def _parser() -> argparse.ArgumentParser:
                        help="an earlier JSON report of this board: findings are marked new or unchanged, "
                             "and those gone since are listed as fixed")
 
+        p.add_argument("--svg", metavar="FILE", help="also write the annotated overlay of every finding (SVG)")
+        p.add_argument("--svg-dir", metavar="DIR",
+                       help="also write one overlay per layer group with findings into DIR (created if missing)")
+        p.add_argument("--html", metavar="FILE", help="also write the self-contained HTML sign-off report")
+        p.add_argument("--junit", metavar="FILE", help="also write JUnit XML (one test case per rule)")
+
     check = sub.add_parser("check", help="check a board file")
     check.add_argument("board", help="board geometry (neutral JSON)")
     output_options(check)
     demo = sub.add_parser("demo", help="check the built-in demo board")
     output_options(demo)
+    batch_parser = sub.add_parser("batch", help="check many boards in parallel (files, folders or globs)")
+    batch.add_arguments(batch_parser)
     waive = sub.add_parser(
         "waive", help="append a waiver for one finding id to a waiver file",
         description="Append a waiver for the finding ID to the waiver file (created if missing). The id is "
@@ -84,6 +92,8 @@ def main(argv: list[str] | None = None) -> int:
     except SystemExit as exc:  # argparse has printed its message
         return EXIT_BAD_INPUT if exc.code not in (0, None) else EXIT_CLEAN
     try:
+        if args.command == "batch":
+            return batch.run(args)
         if args.command == "kinds":
             return _kinds(args.kind)
         if args.command == "waive":
@@ -114,9 +124,10 @@ def _check(board_path: str, args: argparse.Namespace) -> int:
     from .ruleset import default_ruleset, load_ruleset
     from .runner import check_board
 
-    if args.out:
-        inputs = [board_path] + [p for p in (args.rules, args.waivers, args.baseline) if p]
-        refuse_overwriting_inputs(args.out, inputs)
+    outputs = [p for p in (args.out, args.svg, args.html, args.junit) if p]
+    inputs = [board_path] + [p for p in (args.rules, args.waivers, args.baseline) if p]
+    for out in outputs:
+        refuse_overwriting_inputs(out, inputs)
     ruleset = load_ruleset(args.rules) if args.rules else default_ruleset()
     board = load_board(board_path)
     # every input is read and validated before the (possibly long) check
@@ -148,11 +159,32 @@ def _check(board_path: str, args: argparse.Namespace) -> int:
         if not console.is_terminal:  # piped or captured: room for the whole table
             console = Console(width=max(console.width, 132))
         emit = lambda handle: terminal.render(result, console)  # noqa: E731
+    _write_deliverables(result, args, inputs + ([] if args.rules else [result.analysis.ruleset.path]))
     if args.out:
         write_atomically(args.out, emit)
     else:
         emit(sys.stdout)
     return EXIT_FINDINGS if result.failing() else EXIT_CLEAN
+
+
+def _write_deliverables(result, args: argparse.Namespace, inputs: list[str]) -> None:
+    """The overlay, HTML and JUnit files asked for, each written atomically."""
+    from .report import html, junit, svg
+
+    if args.svg:
+        picture = svg.render_svg(result) if result.findings else svg.render_svg(result, layers=())
+        write_atomically(args.svg, lambda handle: handle.write(picture))
+    if args.svg_dir:
+        folder = Path(args.svg_dir)
+        folder.mkdir(parents=True, exist_ok=True)
+        for group, text in svg.svg_per_layer_group(result).items():
+            write_atomically(folder / f"{group}.svg", lambda handle, text=text: handle.write(text))
+    if args.html:
+        page = html.render_html(result, inputs=inputs)
+        write_atomically(args.html, lambda handle: handle.write(page))
+    if args.junit:
+        xml = junit.junit_for_result(result)
+        write_atomically(args.junit, lambda handle: handle.write(xml))
 
 
 def _waive(args: argparse.Namespace) -> int:

@@ -723,6 +723,8 @@ def _read_yaml(path: pathlib.Path, file: str) -> Any:
         if isinstance(character, int):  # a code point (the text is already decoded)
             reason = f"character U+{character:04X}: {reason}"
         raise RuleError(file, place, f"invalid YAML: {reason}") from None
+    except (ValueError, OverflowError) as e:  # a value yaml cannot build, e.g. the date 2026-13-01
+        raise RuleError(file, None, f"invalid YAML value: {e}") from None
     finally:
         if loader is not None:
             loader.dispose()

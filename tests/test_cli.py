@@ -212,3 +212,42 @@ def test_bad_rule_file_exits_2(tmp_path, capsys, content, place):
     code, _, err = run(capsys, "demo", "--rules", str(path))
     assert code == 2 and "bad.yaml" in err and place in err
     assert len(err.strip().splitlines()) == 1 and "Traceback" not in err
+
+
+def test_deliverables_are_written(tmp_path, capsys):
+    """--svg, --svg-dir, --html and --junit each write a well-formed file naming every finding."""
+    import xml.etree.ElementTree as ET
+
+    out = {k: tmp_path / f"demo.{k}" for k in ("json", "svg", "html", "xml")}
+    code, _, err = run(capsys, "demo", "--format", "json", "--out", str(out["json"]), "--svg", str(out["svg"]),
+                       "--svg-dir", str(tmp_path / "groups"), "--html", str(out["html"]), "--junit", str(out["xml"]))
+    assert code == 1, err
+    ids = [f["id"] for f in json.loads(out["json"].read_text())["findings"]]
+    svg_root = ET.fromstring(out["svg"].read_text())
+    groups = {el.get("id") for el in svg_root.iter() if el.get("id")}
+    assert {f"f-{i}" for i in ids} <= groups
+    assert sorted(p.name for p in (tmp_path / "groups").iterdir()) == ["IN1.svg", "TOP-IN1.svg", "TOP.svg"]
+    page = out["html"].read_text()
+    assert all(f'data-finding-id="{i}"' in page for i in ids)
+    suites = ET.fromstring(out["xml"].read_text())
+    failures = sum(len(case.findall("failure")) for case in suites.iter("testcase"))
+    assert failures == 5  # one failing test case per rule of the default set: every rule fires on the demo
+
+
+def test_deliverable_may_not_overwrite_an_input(tmp_path, capsys):
+    board = tmp_path / "b.json"
+    board.write_bytes(demo_board_path().read_bytes())
+    code, _, err = run(capsys, "check", str(board), "--html", str(board))
+    assert code == 2 and board.read_bytes() == demo_board_path().read_bytes()
+
+
+def test_batch_subcommand_is_wired(tmp_path, capsys):
+    folder = tmp_path / "boards"
+    folder.mkdir()
+    (folder / "demo.json").write_bytes(demo_board_path().read_bytes())
+    code, out, err = run(capsys, "batch", str(folder), "--out-dir", str(tmp_path / "reports"), "--jobs", "1",
+                         "--summary-json", str(tmp_path / "summary.json"))
+    assert code == 1, err
+    summary = json.loads((tmp_path / "summary.json").read_text())
+    assert summary["boards"][0]["findings"] == 10
+    assert (tmp_path / "reports" / "demo.json").exists()

@@ -627,3 +627,11 @@ def test_docs_cover_every_kind_option_setting_and_class_attribute():
             assert f"| `{name}` |" in section, f"{kind}.{name} missing from docs/rule-file.md"
     for key in [*ruleset.SETTINGS_SCHEMA, *ruleset.CLASS_KEYS, *ruleset.TOP_LEVEL_KEYS, *ruleset.COMMON_RULE_KEYS]:
         assert f"`{key}`" in doc, key
+
+
+def test_impossible_date_value_is_a_rule_error(tmp_path):
+    """yaml builds dates itself; an impossible one must be one clear message, not a crash."""
+    path = tmp_path / "dated.yaml"
+    path.write_text("version: 1\nrules:\n  - {name: x, kind: noise-budget, max_noise: 1 mV, description: 2026-13-01}\n")
+    with pytest.raises(RuleError, match="dated.yaml"):
+        load_ruleset(path)

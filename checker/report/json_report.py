@@ -8,6 +8,7 @@ to six significant digits.
 from __future__ import annotations
 
 import io
+import secrets
 import json
 import math
 from typing import Iterator, TextIO
@@ -185,7 +186,9 @@ def _interleave(stackup):
             yield None, stackup.dielectrics[i]
 
 
-_NET_PAIRS = "@@net_pairs@@"
+#: stands in for the net-pair list while the rest is encoded; random per
+#: process, so no text in a board or rule file can collide with it
+_NET_PAIRS = f"@@net_pairs-{secrets.token_hex(16)}@@"
 
 
 def write(result: Result, out: TextIO) -> None:
