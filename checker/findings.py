@@ -47,6 +47,10 @@ class Finding:
     area_mm2: float | None = None
     c12_pf: float | None = None
     noise_mv: float | None = None
+    #: what would meet the limit, computed by the same model (budget rules):
+    #: the fraction of today's C12 that meets it, and a sentence saying so
+    keep_fraction: float | None = None
+    suggestion: str | None = None
 
     def sort_key(self) -> tuple:
         """Worst first: errors before warnings, then by how far over the
@@ -59,7 +63,7 @@ class Finding:
         d["layers"] = list(self.layers)
         d["bbox"] = [round(v, 4) for v in self.bbox]
         d["at"] = [round(v, 4) for v in self.at]
-        for key in ("value", "limit", "excess", "length_mm", "area_mm2", "c12_pf", "noise_mv"):
+        for key in ("value", "limit", "excess", "length_mm", "area_mm2", "c12_pf", "noise_mv", "keep_fraction"):
             if d[key] is not None:
                 d[key] = _round_sig(d[key])
         return d

@@ -212,3 +212,38 @@ def test_finding_ids_survive_tiny_coordinate_changes(tmp_path):
     two = check_board(board([track("TOP", "CLK", [[0.001, 0], [10.001, 0]]),
                              track("IN1", "SENSE", [[0, 0.001], [10, 0.001]])]), r)
     assert one.findings[0].id == two.findings[0].id
+
+
+def test_noise_what_if_meets_the_budget_exactly(tmp_path):
+    """The suggested fraction of today's coupling, fed back into the lumped model, gives the budget."""
+    b = board([track("TOP", "CLK", [[0, 0], [10, 0]]), track("IN1", "SENSE", [[0, 0], [10, 0]])])
+    budget_mv = 5.0
+    result = check_board(b, rules(tmp_path, f"- {{name: n, kind: noise-budget, aggressor: fast, victim: quiet, "
+                                            f"max_noise: {budget_mv} mV}}\n"))
+    (f,) = result.findings
+    k = f.keep_fraction
+    assert f"{k * 100:.0f} %" in f.suggestion
+    a = result.analysis
+    c12 = float(a.net_pairs.c12_pf[0]) * 1e-12
+    c2g = float(a.c2g_pf[a.board.net_index()["SENSE"]]) * 1e-12
+    w, r, v1 = 2 * math.pi * 10e6, 1e4, 3.3
+    # lumped model at k * C12 (KCL at the victim node), evaluated here independently
+    at_k = w * r * k * c12 * v1 / math.sqrt(1 + (w * r * (k * c12 + c2g)) ** 2)
+    assert at_k * 1e3 == pytest.approx(budget_mv, rel=1e-9, abs=0)
+
+
+def test_largest_scale_bisection():
+    from checker.checks.whatif import largest_scale
+
+    # total(k) = 3 k^2 reaches 0.75 at k = 0.5 (hand: 3 * 0.25 = 0.75)
+    assert largest_scale(lambda k: 3 * k * k, 0.75) == pytest.approx(0.5, rel=1e-12, abs=0)
+    assert largest_scale(lambda k: k, 2.0) == 1.0  # already within the budget
+
+
+def test_capacitance_what_if_is_the_budget_ratio(tmp_path):
+    b = board([track("TOP", "CLK", [[0, 0], [10, 0]]), track("IN1", "SENSE", [[0, 0], [10, 0]])])
+    probe = check_board(b, rules(tmp_path, "- {name: c, kind: capacitance-budget, max_c12: 1000 pF}\n"))
+    total = float(probe.analysis.net_pairs.c12_pf.sum())
+    result = check_board(b, rules(tmp_path, f"- {{name: c, kind: capacitance-budget, max_c12: {total / 2} pF}}\n"))
+    # C12 is linear in run length: half the budget -> 50 % of the coupling, 10 mm run -> 5 mm
+    assert "50 %" in result.findings[0].suggestion and "to 5.00 mm" in result.findings[0].suggestion

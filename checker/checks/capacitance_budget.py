@@ -29,6 +29,7 @@ OPTIONS = {
 def check(rule, ctx):
     """Yield a finding per net pair whose total C12 exceeds ``max_c12``."""
     from .common import make_finding, run_place
+    from .whatif import shorten_text
 
     np_ = ctx.net_pairs
     c = ctx.couplings
@@ -47,5 +48,12 @@ def check(rule, ctx):
             message=(f"{ctx.net_name(agg)} and {ctx.net_name(victim)} couple through {total:.3g} pF "
                      f"on {'/'.join(layers)} (budget {limit_pf:.3g} pF)"),
             length_mm=float(c.length_mm[rows].sum()), area_mm2=float(c.overlap_mm2[rows].sum()),
-            c12_pf=total,
+            c12_pf=total, keep_fraction=limit_pf / total, suggestion=shorten_text(limit_pf / total, _longest_run_mm(ctx, rows), total),
         )
+
+
+def _longest_run_mm(ctx, rows: np.ndarray) -> float:
+    """Length of the longest continuous coupled run among ``rows``."""
+    c = ctx.couplings
+    labels = ctx.runs(rows)
+    return float(np.bincount(labels, weights=c.length_mm[rows]).max())

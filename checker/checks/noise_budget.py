@@ -34,7 +34,10 @@ OPTIONS = {
 
 def check(rule, ctx):
     """Yield a finding per victim whose summed coupled noise exceeds ``max_noise``."""
+    from ..physics import crosstalk
+    from .capacitance_budget import _longest_run_mm
     from .common import make_finding, run_place
+    from .whatif import largest_scale, shorten_text
 
     np_ = ctx.net_pairs
     c = ctx.couplings
@@ -60,6 +63,17 @@ def check(rule, ctx):
         rows = ctx.rows_of_pairs(pair[mine])
         worst = int(rows[np.argmax(c.c12_pf[rows])])
         bbox, at, layers = run_place(ctx, rows, worst)
+        # the same model with every aggressor's C12 onto this victim scaled by k
+        e = ctx.electrical
+        model = crosstalk.lumped_noise_small_r_v if small_r else crosstalk.lumped_noise_v
+        c12_f = np_.c12_pf[pair[mine]] * 1e-12
+        agg = aggressors[mine]
+
+        def total_at(k: float, victim=int(victim), c12_f=c12_f, agg=agg) -> float:
+            return float(np.sum(model(e.resistance_ohm[victim], k * c12_f, ctx.c2g_pf[victim] * 1e-12,
+                                      e.swing_v[agg], e.frequency_hz[agg])))
+
+        scale = largest_scale(total_at, limit)
         others = len(order) - 1
         names = ctx.net_name(main) + (f" and {others} more" if others else "")
         yield make_finding(
@@ -68,4 +82,5 @@ def check(rule, ctx):
             message=(f"{ctx.net_name(int(victim))} picks up {total * 1e3:.3g} mV from {names} "
                      f"({'small-R limit' if small_r else 'lumped model'}; budget {limit * 1e3:.3g} mV)"),
             c12_pf=float(np_.c12_pf[pair[mine]].sum()), noise_mv=total * 1e3,
+            keep_fraction=scale, suggestion=shorten_text(scale, _longest_run_mm(ctx, rows), float(np_.c12_pf[pair[mine]].sum())),
         )
