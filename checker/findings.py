@@ -50,6 +50,8 @@ class Finding:
     #: what would meet the limit, computed by the same model (budget rules):
     #: the fraction of today's C12 that meets it, and a sentence saying so
     keep_fraction: float | None = None
+    #: noise budgets: which model gave the number (lumped, small-r, transmission-line)
+    noise_model: str | None = None
     suggestion: str | None = None
 
     def sort_key(self) -> tuple:

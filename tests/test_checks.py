@@ -247,3 +247,27 @@ def test_capacitance_what_if_is_the_budget_ratio(tmp_path):
     result = check_board(b, rules(tmp_path, f"- {{name: c, kind: capacitance-budget, max_c12: {total / 2} pF}}\n"))
     # C12 is linear in run length: half the budget -> 50 % of the coupling, 10 mm run -> 5 mm
     assert "50 %" in result.findings[0].suggestion and "to 5.00 mm" in result.findings[0].suggestion
+
+
+def test_electrically_long_run_uses_transmission_line_model(tmp_path):
+    """A 40 mm run with a 100 ps edge is far longer than tr*v/2 (about 8 mm): the victim's
+    noise comes from the near-/far-end crosstalk of the run's cross-section."""
+    from checker.physics.tline import line_matrices, same_layer_section, transmission_line_crosstalk
+
+    path = tmp_path / "fast.yaml"
+    path.write_text(textwrap.dedent("""
+        version: 1
+        net_classes:
+          fast: {nets: ["CLK*"], swing: 1 V, rise_time: 100 ps}
+          quiet: {nets: ["SENSE*"], resistance: 50 ohm}
+        rules:
+          - {name: n, kind: noise-budget, aggressor: fast, victim: quiet, max_noise: 1 mV}
+    """))
+    b = board([track("TOP", "CLK", [[0, 0], [40, 0]]), track("TOP", "SENSE", [[0, 0.3], [40, 0.3]])])
+    (f,) = check_board(b, load_ruleset(path)).findings
+    assert f.noise_model == "transmission-line"
+    # the same cross-section solved here: 0.15 mm traces, gap 0.3 - 0.15 = 0.15 mm, 40 mm, tr 100 ps, 1 V
+    m = line_matrices(same_layer_section(b.stackup, 0, 0.15, 0.15, 0.15))
+    xt = transmission_line_crosstalk(m, 0.040, 100e-12, 1.0)
+    assert f.value == pytest.approx(max(xt.next_v, xt.fext_v) * 1e3, rel=1e-6, abs=0)
+    assert "NEXT" in f.message and "FEXT" in f.message

@@ -4,7 +4,12 @@ For each victim net, estimates the noise each aggressor couples onto it with
 the lumped capacitive-coupling model (see :mod:`checker.physics.crosstalk`)
 from the aggressor class's ``swing`` and ``frequency`` (or ``rise_time``)
 and the victim class's ``resistance`` and ``node_capacitance``; the victim's
-noise is the sum over its aggressors (worst case: all in phase). Fails when
+noise is the sum over its aggressors (worst case: all in phase). Where an
+aggressor's longest run onto the victim is electrically long (longer than
+the near-end saturation length tr*v/2), the lumped model does not hold and
+the larger of the run's near-end and far-end crosstalk replaces it (see
+:mod:`checker.longruns`; matched terminations assumed). The finding says
+which model gave the number. Fails when
 it exceeds ``max_noise``. Aggressor nets whose class gives no swing, and
 victims whose class gives no resistance, are skipped.
 
@@ -37,6 +42,7 @@ def check(rule, ctx):
     from ..physics import crosstalk
     from .capacitance_budget import _longest_run_mm
     from .common import make_finding, run_place
+    from ..longruns import long_run_crosstalk
     from .whatif import largest_scale, shorten_text
 
     np_ = ctx.net_pairs
@@ -52,6 +58,11 @@ def check(rule, ctx):
     pair = np.concatenate([np.arange(len(np_)), np.arange(len(np_))])
     use = agg_ok[aggressors] & vic_ok[victims] & np.isfinite(noise)
     aggressors, victims, noise, pair = aggressors[use], victims[use], noise[use], pair[use]
+    # electrically long runs: the lumped model does not hold; near-/far-end
+    # crosstalk of the run's cross-section replaces it (the worse end counts)
+    long_runs = long_run_crosstalk(ctx, list(zip(range(len(pair)), pair.tolist(), aggressors.tolist())))
+    for i, run in long_runs.items():
+        noise[i] = max(run.crosstalk.next_v, run.crosstalk.fext_v)
     totals = np.bincount(victims, weights=noise, minlength=len(ctx.board.nets))
     by_victim = np.argsort(victims, kind="stable")
     starts = np.searchsorted(victims[by_victim], np.arange(len(ctx.board.nets) + 1))
@@ -69,18 +80,40 @@ def check(rule, ctx):
         c12_f = np_.c12_pf[pair[mine]] * 1e-12
         agg = aggressors[mine]
 
-        def total_at(k: float, victim=int(victim), c12_f=c12_f, agg=agg) -> float:
-            return float(np.sum(model(e.resistance_ohm[victim], k * c12_f, ctx.c2g_pf[victim] * 1e-12,
-                                      e.swing_v[agg], e.frequency_hz[agg])))
+        tl = [long_runs.get(int(i)) for i in mine]
+
+        def total_at(k: float, victim=int(victim), c12_f=c12_f, agg=agg, tl=tl) -> float:
+            each = model(e.resistance_ohm[victim], k * c12_f, ctx.c2g_pf[victim] * 1e-12,
+                         e.swing_v[agg], e.frequency_hz[agg])
+            return float(sum(_scaled_tl(run, k) if run else v for v, run in zip(each.tolist(), tl)))
 
         scale = largest_scale(total_at, limit)
         others = len(order) - 1
         names = ctx.net_name(main) + (f" and {others} more" if others else "")
+        how = "small-R limit" if small_r else "lumped model"
+        long_here = [(int(aggressors[i]), long_runs[int(i)]) for i in order if int(i) in long_runs]
+        if long_here:
+            how += "; electrically long: " + ", ".join(
+                f"{ctx.net_name(a)} over {r.crosstalk.coupled_length_m * 1e3:.1f} mm on {'/'.join(r.layers)} "
+                f"NEXT {r.crosstalk.next_v * 1e3:.3g} mV, FEXT {r.crosstalk.fext_v * 1e3:.3g} mV"
+                for a, r in long_here)
         yield make_finding(
             ctx, rule, aggressor=main, victim=int(victim), layers=layers,
             bbox=bbox, at=at, value=total * 1e3, limit=limit * 1e3, unit="mV", excess=total / limit,
             message=(f"{ctx.net_name(int(victim))} picks up {total * 1e3:.3g} mV from {names} "
-                     f"({'small-R limit' if small_r else 'lumped model'}; budget {limit * 1e3:.3g} mV)"),
+                     f"({how}; budget {limit * 1e3:.3g} mV)"),
             c12_pf=float(np_.c12_pf[pair[mine]].sum()), noise_mv=total * 1e3,
+            noise_model="transmission-line" if long_here else ("small-r" if small_r else "lumped"),
             keep_fraction=scale, suggestion=shorten_text(scale, _longest_run_mm(ctx, rows), float(np_.c12_pf[pair[mine]].sum())),
         )
+
+
+def _scaled_tl(run, k: float) -> float:
+    """Transmission-line noise of a run cut to a fraction k of its length:
+    FEXT is linear in length; NEXT grows linearly up to the saturation
+    length and is flat beyond (Johnson & Graham 1993)."""
+    x = run.crosstalk
+    length = x.coupled_length_m
+    sat = x.saturation_length_m
+    next_k = x.next_v * min(1.0, k * length / sat) / min(1.0, length / sat)
+    return max(next_k, x.fext_v * k)
