@@ -18,6 +18,7 @@ from .finder.runs import run_labels
 from .model import NO_NET, Board
 from .physics import capacitance, crosstalk
 from .physics.broadside import BroadsideModel, broadside_c12_pf
+from .physics.edge import EdgeModel, GroundModel
 from .ruleset import NetClass, Rule, RuleSet
 from .stackup import broadside_pairs, reference_of
 
@@ -228,24 +229,34 @@ def _broadside_c12(board: Board, t: PairTable, upper: int, lower: int, search_mm
 
 
 def _edge_c12(board: Board, t: PairTable, layer: int, notes: list[str]) -> np.ndarray:
+    """C12 (pF) of the same-layer pairs ``t`` from the field-solved
+    ``EdgeModel`` of ``layer`` (the closed forms of
+    ``physics.capacitance.edge_c12_per_m`` are its documented cross-check)."""
     if len(t) == 0:
         return np.zeros(0)
     p = board.pieces
-    ref = reference_of(board.stackup, layer)
-    thickness = board.stackup.layers[layer].thickness_mm
+    name = board.stackup.layers[layer].name
     touching = int(np.count_nonzero(t.gap_mm < EDGE_GAP_FLOOR_MM))
     if touching:
         notes.append(
-            f"{board.stackup.layers[layer].name}: {touching} piece pairs of different nets are closer than "
+            f"{name}: {touching} piece pairs of different nets are closer than "
             f"{EDGE_GAP_FLOOR_MM} mm or touch (a clearance error); their C12 is taken at {EDGE_GAP_FLOOR_MM} mm")
     gap = np.maximum(t.gap_mm, EDGE_GAP_FLOOR_MM)
-    per_m, in_range = capacitance.edge_c12_per_m(ref, p.width[t.a], p.width[t.b], gap, thickness)
-    outside = int(np.count_nonzero(~in_range))
-    if outside:
-        notes.append(
-            f"edge coupling on {board.stackup.layers[layer].name}: {outside} of {len(t)} piece pairs lie "
-            f"outside the validity range of the {ref.kind} closed form; their C12 is extrapolated")
+    wa, wb = p.width[t.a], p.width[t.b]
+    model = EdgeModel(board.stackup, layer, np.concatenate([wa, wb]),
+                      max_gap_mm=float(gap.max()), min_gap_mm=float(gap.min()))
+    per_m = model.c12_per_m(wa, wb, gap)
+    notes.append(f"edge coupling on {name}: field-solved cross-sections of the stackup "
+                 f"({model.solves} solves, {_mask_words(board, layer)})")
     return per_m * t.length_mm * 1e-3 * 1e12
+
+
+def _mask_words(board: Board, layer: int) -> str:
+    st = board.stackup
+    mask = st.mask_top if layer == 0 else st.mask_bottom if layer == len(st.layers) - 1 else None
+    if layer not in (0, len(st.layers) - 1):
+        return "inner layer"
+    return "under solder mask" if mask is not None else "bare outer layer, no solder mask given"
 
 
 def _assemble(board: Board, tables: list[tuple[int, PairTable, np.ndarray]]) -> Couplings:
@@ -279,24 +290,25 @@ def _assemble(board: Board, tables: list[tuple[int, PairTable, np.ndarray]]) -> 
 
 
 def net_capacitance_to_ground_pf(board: Board, electrical: NetElectrical, notes: list[str]) -> np.ndarray:
-    """Per net: sum over its pieces of C'(to reference plane) x length, plus
-    the node capacitance from its class (pF)."""
+    """Per net: sum over its pieces of C'(to reference planes) x length, plus
+    the node capacitance from its class (pF). C' comes from the field-solved
+    ``GroundModel`` of each layer (``physics.capacitance.c2g_per_m`` is its
+    documented cross-check)."""
     p = board.pieces
     total = np.zeros(len(board.nets))
     for layer in (np.unique(p.layer) if len(p) else []):
         on = np.flatnonzero((p.layer == layer) & (p.net != NO_NET))
         if on.size == 0:
             continue
-        ref = reference_of(board.stackup, int(layer))
-        thickness = board.stackup.layers[int(layer)].thickness_mm
-        per_m, in_range = capacitance.c2g_per_m(ref, p.width[on], thickness)
-        outside = int(np.count_nonzero(~in_range))
-        if ref.kind == "none":
-            notes.append(f"layer {board.stackup.layers[int(layer)].name} has no reference plane: "
-                         "its traces add nothing to a victim's capacitance to ground")
-        elif outside:
-            notes.append(f"capacitance to plane on {board.stackup.layers[int(layer)].name}: {outside} of "
-                         f"{on.size} pieces lie outside the {ref.kind} formula's validity range")
+        name = board.stackup.layers[int(layer)].name
+        model = GroundModel(board.stackup, int(layer), p.width[on])
+        per_m = model.c_per_m(p.width[on])
+        if reference_of(board.stackup, int(layer)).kind == "none":
+            notes.append(f"layer {name} has no reference plane: its traces' capacitance to ground is to the "
+                         "solver's far box, about the board's size away (a rough figure)")
+        else:
+            notes.append(f"capacitance to ground on {name}: field-solved single-trace cross-sections "
+                         f"({model.solves} solves, {_mask_words(board, int(layer))})")
         pf = per_m * p.length[on] * 1e-3 * 1e12
         total += np.bincount(p.net[on], weights=pf, minlength=len(board.nets))
     return total + electrical.node_capacitance_f * 1e12

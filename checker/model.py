@@ -58,10 +58,19 @@ class Dielectric:
 @dataclass(frozen=True)
 class Stackup:
     """Copper layers top to bottom; ``dielectrics[i]`` lies between
-    ``layers[i]`` and ``layers[i + 1]``."""
+    ``layers[i]`` and ``layers[i + 1]``.
+
+    ``mask_top`` / ``mask_bottom``: the solder mask over the outer surface of
+    the first / last copper layer, or ``None`` (bare board). A mask is a
+    ``Dielectric`` whose ``thickness_mm`` is the mask's thickness measured
+    from the copper layer's outer surface (over the copper); how the field
+    models place it is described in ``checker.physics.broadside``.
+    """
 
     layers: tuple[CopperLayer, ...]
     dielectrics: tuple[Dielectric, ...]
+    mask_top: Dielectric | None = None
+    mask_bottom: Dielectric | None = None
 
     def __post_init__(self) -> None:
         if len(self.dielectrics) != max(len(self.layers) - 1, 0):

@@ -341,6 +341,24 @@ def test_diff_pairs_are_made_symmetric() -> None:
     assert read_board_dict(data, "b.json").nets == board.nets
 
 
+def test_solder_mask_entries_at_both_ends() -> None:
+    """A mask before the first copper and after the last become
+    Stackup.mask_top / mask_bottom; without them both are None
+    (docs/board-format.md)."""
+    d = four()
+    plain = read_board_dict(d, "four.json").stackup
+    assert plain.mask_top is None and plain.mask_bottom is None
+    d["stackup"] = ([{"mask": "top-mask", "thickness": 0.015, "er": 3.8}] + d["stackup"]
+                    + [{"mask": None, "thickness": 0.025, "er": 3.5, "loss_tangent": 0.02}])
+    st = read_board_dict(d, "mask.json").stackup
+    assert st.mask_top is not None and st.mask_bottom is not None
+    assert (st.mask_top.thickness_mm, st.mask_top.er, st.mask_top.name, st.mask_top.loss_tangent) == \
+        (0.015, 3.8, "top-mask", None)
+    assert (st.mask_bottom.thickness_mm, st.mask_bottom.er, st.mask_bottom.name, st.mask_bottom.loss_tangent) == \
+        (0.025, 3.5, None, 0.02)
+    assert st.layers == plain.layers and st.dielectrics == plain.dielectrics  # masks are not copper or dielectrics
+
+
 def test_read_board_dict_does_not_modify_its_input() -> None:
     data = four()
     data["units"] = "mil"
@@ -476,6 +494,8 @@ STACK2 = [{"copper": "A", "role": "signal", "thickness": 0.035},
           {"dielectric": "d", "thickness": 0.2, "er": 4},
           {"copper": "B", "role": "signal", "thickness": 0.035}]
 
+MASK = {"mask": "top-mask", "thickness": 0.015, "er": 3.8}
+
 # (id, mutation of four_layer_mixed.json, JSON path in the message (None: the file), words in the message)
 BAD = [
     ("format", put(["format"], "something-else"), "format", "couplint-board"),
@@ -524,6 +544,19 @@ BAD = [
     ("thickness-zero", put(["stackup", 1, "thickness"], 0), "stackup[1].thickness", "must be > 0"),
     ("er-below-1", put(["stackup", 3, "er"], 0.9), "stackup[3].er", "must be >= 1"),
     ("loss-tangent-negative", put(["stackup", 1, "loss_tangent"], -0.01), "stackup[1].loss_tangent", ">= 0"),
+    # solder mask entries (docs/board-format.md, "Solder mask")
+    ("mask-in-the-middle", put(["stackup"], STACK2[:2] + [MASK] + STACK2[2:]), "stackup[2]", "only be the first"),
+    ("mask-before-dielectric", put(["stackup"], [MASK] + STACK2[1:]), "stackup[1]", "top solder mask is followed by copper"),
+    ("mask-after-dielectric", put(["stackup"], STACK2[:2] + [MASK]), "stackup[1]", "before the bottom solder mask"),
+    ("mask-only", put(["stackup"], [MASK]), "stackup", "at least one copper layer besides"),
+    ("mask-twice-on-top", put(["stackup"], [MASK, MASK] + STACK2), "stackup[1]", "only be the first"),
+    ("mask-thickness-zero", put(["stackup"], [dict(MASK, thickness=0)] + STACK2), "stackup[0].thickness", "must be > 0"),
+    ("mask-er-below-1", put(["stackup"], STACK2 + [dict(MASK, er=0.5)]), "stackup[3].er", "must be >= 1"),
+    ("mask-missing-er", put(["stackup"], [{"mask": "m", "thickness": 0.02}] + STACK2), "stackup[0]",
+     "missing required key 'er'"),
+    ("mask-unknown-key", put(["stackup"], [dict(MASK, colour="green")] + STACK2), "stackup[0]", "unknown key 'colour'"),
+    ("mask-as-layer", both(put(["stackup"], [MASK] + four()["stackup"]), put(["tracks", 1, "layer"], "top-mask")),
+     "tracks[1].layer", "solder mask, not a copper layer"),
     ("pair-unknown", put(["nets", 3, "pair"], "DATA_Q"), "nets[3].pair", "unknown net 'DATA_Q'"),
     ("pair-self", put(["nets", 3, "pair"], "DATA_N"), "nets[3].pair", "own differential partner"),
     ("pair-conflict", put(["nets", 3, "pair"], "CLK_X"), "nets[3].pair", "'DATA_N' is already paired with 'DATA_P'"),

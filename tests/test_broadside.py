@@ -285,3 +285,36 @@ def test_two_layer_board_without_planes_builds():
     c = m.c12_per_m(0.3, 0.3, [0.0, 0.3, 1.0, 3.0])
     assert np.all(np.diff(c) < 0)
     assert c[0] > EPS0 * 4.5 * 0.3 / 1.5
+
+
+# ---------------------------------------------------------------- solder mask
+
+
+def masked_two_layer(mask: Dielectric | None) -> Stackup:
+    """top / bottom signal layers on a 0.2 mm core, masked on top."""
+    return Stackup((CopperLayer("top", "signal", 0.035), CopperLayer("bot", "signal", 0.035)),
+                   (Dielectric(0.2, 4.3),), mask_top=mask)
+
+
+def test_mask_fills_the_outer_band_and_a_slab_above():
+    """The top mask is one slab from the laminate to copper top + mask
+    thickness (module docstring: band filled, flat slab over the copper)."""
+    cs = broadside_section(masked_two_layer(Dielectric(0.02, 3.6)), 0, 1, 0.2, 0.2, 0.0)
+    mask = [s for s in cs.slabs if s.er == 3.6]
+    assert len(mask) == 1 and (mask[0].y0, mask[0].y1) == approx((-0.035, 0.02), 1e-12)
+    bare = broadside_section(masked_two_layer(None), 0, 1, 0.2, 0.2, 0.0)
+    assert all(s.er == 4.3 for s in bare.slabs)
+
+
+def test_mask_beyond_a_plane_is_left_out():
+    st = six_layer()
+    masked = Stackup(st.layers, st.dielectrics, mask_top=Dielectric(0.02, 3.6), mask_bottom=Dielectric(0.02, 3.6))
+    assert broadside_section(masked, 2, 3, 0.1, 0.3, 0.4) == broadside_section(st, 2, 3, 0.1, 0.3, 0.4)
+
+
+def test_mask_raises_outer_broadside_c12():
+    """More dielectric around the top trace: more coupling (the field of the
+    top trace's upper side now partly runs in er 3.6, not air)."""
+    c_bare = solve(broadside_section(masked_two_layer(None), 0, 1, 0.2, 0.2, 0.3), 1.0).c12
+    c_mask = solve(broadside_section(masked_two_layer(Dielectric(0.02, 3.6)), 0, 1, 0.2, 0.2, 0.3), 1.0).c12
+    assert c_mask > 1.02 * c_bare

@@ -23,9 +23,20 @@ The cross-section
 * Dielectrics: every dielectric between the two grounds. The copper band of
   an inner layer, beside the traces, is filled with resin of the mean
   permittivity of the two dielectrics touching it (the model does not say
-  which side is prepreg); the band of an outer layer is air. Solder mask is
-  ignored. Traces on other layers between the grounds are not modelled (their
-  bands are dielectric). A plane-role layer *between* ``upper`` and
+  which side is prepreg); the band of an outer layer is air on a bare board.
+  Traces on other layers between the grounds are not modelled (their bands
+  are dielectric).
+* Solder mask (``Stackup.mask_top`` / ``mask_bottom``), where the board
+  surface lies between the grounds (no plane beyond the outer layer): real
+  mask is roughly conformal, about its nominal thickness over the copper and
+  filling the spaces between traces down to the laminate. It is modelled as
+  the outer layer's copper band filled with mask (er of the mask) beside the
+  traces, plus a slab of the mask's thickness over the copper surface: one
+  uniform slab from the laminate to copper top + mask thickness. This puts
+  mask, not air, between the sidewalls of neighbouring outer traces, which
+  is where it matters most for edge coupling; it overstates the mask where
+  the real mask thins over wide gaps (a flat top, not a conformal one).
+  Approximation; project choice. A plane-role layer *between* ``upper`` and
   ``lower`` (a pair made with ``planes_shield=False``) is treated as absent,
   since the caller has said it cannot be trusted as a shield.
 * The two traces are conductors 0 and 1; C12' = -C_M[0, 1] (mutual form,
@@ -165,21 +176,26 @@ def _check_pair(stackup: Stackup, upper: int, lower: int) -> None:
             raise ValueError(f"layer {stackup.layers[i].name!r} is a plane; broadside coupling is between traces")
 
 
-def broadside_section(stackup: Stackup, upper: int, lower: int, wa: float, wb: float, offset_mm: float) -> CrossSection:
-    """The cross-section solved for one (wa, wb, offset), all in mm.
+def _grounds(stackup: Stackup, upper: int, lower: int) -> tuple[int | None, int | None]:
+    """Nearest plane-role layer above ``upper`` and below ``lower`` (or None)."""
+    layers = stackup.layers
+    above = next((k for k in range(upper - 1, -1, -1) if layers[k].role == "plane"), None)
+    below = next((k for k in range(lower + 1, len(layers)) if layers[k].role == "plane"), None)
+    return above, below
 
-    Trace 0 (width ``wa``) on ``upper`` at x = -offset/2, trace 1 (width
-    ``wb``) on ``lower`` at x = +offset/2; grounds, dielectrics and the open
-    sides as described in the module docstring.
-    """
-    _check_pair(stackup, upper, lower)
-    if not (wa > 0 and wb > 0):
-        raise ValueError(f"widths must be positive, got {wa}, {wb}")
+
+def surroundings(stackup: Stackup, upper: int, lower: int) -> tuple[tuple[float, ...], tuple[Slab, ...]]:
+    """Ground planes (y, mm) and dielectric slabs of the cross-section of the
+    traces on layers ``upper`` .. ``lower`` (``upper == lower`` for one
+    layer), as described in the module docstring: the nearest planes above
+    ``upper`` and below ``lower``, every dielectric between them, inner
+    copper bands filled with resin, and the solder mask (mask-filled outer
+    band plus a slab of the mask's thickness) where a board surface lies
+    between the grounds."""
     layers = stackup.layers
     n = len(layers)
     bot, top = _layer_bands(stackup)
-    above = next((k for k in range(upper - 1, -1, -1) if layers[k].role == "plane"), None)
-    below = next((k for k in range(lower + 1, n) if layers[k].role == "plane"), None)
+    above, below = _grounds(stackup, upper, lower)
     first = above if above is not None else 0
     last = below if below is not None else n - 1
     planes = []
@@ -194,16 +210,40 @@ def broadside_section(stackup: Stackup, upper: int, lower: int, wa: float, wb: f
         slabs.append(Slab(float(top[i + 1]), float(bot[i]), float(d.er)))
     for k in range(first + 1 if above is not None else first, last if below is not None else last + 1):
         if layers[k].thickness_mm <= 0 or k == 0 or k == n - 1:
-            continue  # no band, or an outer layer's band (air)
+            continue  # no band, or an outer layer's band (air or mask, below)
         er = 0.5 * (stackup.dielectrics[k - 1].er + stackup.dielectrics[k].er)
         slabs.append(Slab(float(bot[k]), float(top[k]), er))
+    if above is None and stackup.mask_top is not None:
+        m = stackup.mask_top
+        slabs.append(Slab(float(bot[0]), float(top[0]) + m.thickness_mm, float(m.er)))
+    if below is None and stackup.mask_bottom is not None:
+        m = stackup.mask_bottom
+        if n == 1 and above is None and stackup.mask_top is not None:
+            # one copper layer masked on both sides: the band is already filled
+            slabs.append(Slab(float(bot[n - 1]) - m.thickness_mm, float(bot[n - 1]), float(m.er)))
+        else:
+            slabs.append(Slab(float(bot[n - 1]) - m.thickness_mm, float(top[n - 1]), float(m.er)))
+    return tuple(planes), tuple(slabs)
 
+
+def broadside_section(stackup: Stackup, upper: int, lower: int, wa: float, wb: float, offset_mm: float) -> CrossSection:
+    """The cross-section solved for one (wa, wb, offset), all in mm.
+
+    Trace 0 (width ``wa``) on ``upper`` at x = -offset/2, trace 1 (width
+    ``wb``) on ``lower`` at x = +offset/2; grounds, dielectrics and the open
+    sides as described in the module docstring.
+    """
+    _check_pair(stackup, upper, lower)
+    if not (wa > 0 and wb > 0):
+        raise ValueError(f"widths must be positive, got {wa}, {wb}")
+    bot, top = _layer_bands(stackup)
+    planes, slabs = surroundings(stackup, upper, lower)
     x = 0.5 * offset_mm
     conductors = (
         Conductor(-x - wa / 2, -x + wa / 2, float(bot[upper]), float(top[upper]), 0),
         Conductor(x - wb / 2, x + wb / 2, float(bot[lower]), float(top[lower]), 1),
     )
-    return CrossSection(conductors, tuple(slabs), tuple(planes))
+    return CrossSection(conductors, slabs, planes)
 
 
 def width_knots(widths, max_knots: int = MAX_WIDTH_KNOTS) -> np.ndarray:

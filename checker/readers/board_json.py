@@ -385,6 +385,7 @@ class _Builder:
         stackup = self.stackup()
         self.layer_index = {layer.name: i for i, layer in enumerate(stackup.layers)}
         self.dielectric_names = {d.name for d in stackup.dielectrics if d.name}
+        self.mask_names = {m.name for m in (stackup.mask_top, stackup.mask_bottom) if m is not None and m.name}
         nets = self.nets()
         self.net_index: dict[str | None, int] = {net.name: i for i, net in enumerate(nets)}
         self.net_index[None] = NO_NET
@@ -419,10 +420,27 @@ class _Builder:
         dielectrics: list[Dielectric] = []
         seen: dict[str, int] = {}
         entries = self.data["stackup"]
-        for i, entry in enumerate(entries):
-            if i % 2 == 0:
+        # solder mask: optional, only as the very first and/or last entry
+        masks = [i for i, entry in enumerate(entries) if "mask" in entry and "copper" not in entry
+                 and "dielectric" not in entry]
+        mask_top = mask_bottom = None
+        first, last = 0, len(entries)
+        for i in masks:
+            if i == 0 and first == 0:
+                mask_top, first = self.mask(i, entries[i]), 1
+            elif i == len(entries) - 1 and i >= first:
+                mask_bottom, last = self.mask(i, entries[i]), i
+            else:
+                self.fail(("stackup", i), "a solder mask can only be the first entry (over the top copper) or the "
+                          "last (under the bottom copper)")
+        if first >= last:
+            self.fail(("stackup",), "needs at least one copper layer besides the solder mask")
+        for i in range(first, last):
+            entry = entries[i]
+            if (i - first) % 2 == 0:
                 if "copper" not in entry:
-                    where = "the stackup starts with copper" if i == 0 else "a dielectric is followed by copper"
+                    where = ("the stackup starts with copper" if i == 0 else "the top solder mask is followed by copper"
+                             if i == first else "a dielectric is followed by copper")
                     self.fail(("stackup", i), f"expected a copper layer here ({where}): the stackup lists "
                               "copper and dielectric alternately, top to bottom, starting and ending with copper")
                 name = entry["copper"]
@@ -442,9 +460,20 @@ class _Builder:
                     loss_tangent=None if tan_d is None else float(tan_d),
                     name=entry.get("dielectric"),
                 ))
-        if len(entries) % 2 == 0:
-            self.fail(("stackup", len(entries) - 1), "the stackup must end with a copper layer, not a dielectric")
-        return Stackup(tuple(layers), tuple(dielectrics))
+        if (last - first) % 2 == 0:
+            where = "before the bottom solder mask" if mask_bottom is not None else ""
+            self.fail(("stackup", last - 1), f"the stackup must end with a copper layer{' ' + where if where else ''}, "
+                      "not a dielectric")
+        return Stackup(tuple(layers), tuple(dielectrics), mask_top, mask_bottom)
+
+    def mask(self, i: int, entry: dict) -> Dielectric:
+        tan_d = entry.get("loss_tangent")
+        return Dielectric(
+            thickness_mm=self.length(("stackup", i, "thickness"), entry["thickness"]),
+            er=float(entry["er"]),
+            loss_tangent=None if tan_d is None else float(tan_d),
+            name=entry.get("mask"),
+        )
 
     def nets(self) -> tuple[Net, ...]:
         entries = self.data["nets"]
@@ -477,6 +506,8 @@ class _Builder:
         if index is None:
             if name in self.dielectric_names:
                 self.fail(path, f"{name!r} is a dielectric, not a copper layer")
+            if name in self.mask_names:
+                self.fail(path, f"{name!r} is a solder mask, not a copper layer")
             self.fail(path, f"unknown layer {name!r} (copper layers: {', '.join(self.layer_index)})")
         return index
 
