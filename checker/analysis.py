@@ -96,6 +96,8 @@ class NetPairs:
     #: ``layer_groups[k]``), and the groups: (kind, layer_a, layer_b)
     layer_mask: np.ndarray = field(repr=False, default_factory=lambda: np.zeros(0, np.int64))
     layer_groups: tuple[tuple[int, int, int], ...] = ()
+    #: index into ``layer_groups`` of each coupled pair row
+    row_group: np.ndarray = field(repr=False, default_factory=lambda: np.zeros(0, np.int64))
 
     def __len__(self) -> int:
         return int(self.net_a.shape[0])
@@ -141,6 +143,27 @@ class Analysis:
         pieces touch along a polyline or share a piece, for one net pair."""
         c = self.couplings
         return run_labels(self.board.pieces, c.a[rows], c.b[rows], c.net_b[rows], c.net_a[rows])
+
+    def pair_runs(self, pairs: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """The continuous runs of the net pairs ``pairs``, grouped in one go:
+        their coupled rows, each row's run label, and per run its length (mm)
+        and its net pair."""
+        rows = self.rows_of_pairs(np.unique(pairs))
+        if rows.size == 0:
+            return rows, rows, np.zeros(0), rows
+        labels = self.runs(rows)
+        length = np.bincount(labels, weights=self.couplings.length_mm[rows])
+        owner = np.zeros(length.size, np.int64)
+        owner[labels] = self.net_pairs.row_pair[rows]
+        return rows, labels, length, owner
+
+    def longest_run_mm(self, pairs: np.ndarray) -> np.ndarray:
+        """Per net pair (indexed like ``net_pairs``): the length of its
+        longest continuous run, for the pairs in ``pairs`` (0 elsewhere)."""
+        best = np.zeros(len(self.net_pairs))
+        _, _, length, owner = self.pair_runs(pairs)
+        np.maximum.at(best, owner, length)
+        return best
 
     def rows_of_pairs(self, pairs: np.ndarray) -> np.ndarray:
         """Indices of the coupled rows of the net pairs ``pairs``, via a
@@ -286,7 +309,7 @@ def _assemble(board: Board, tables: list[tuple[int, PairTable, np.ndarray]]) -> 
     c = Couplings(**{name: np.concatenate(v) for name, v in cols.items()})
     # declared differential-pair partners are exempt from each other's checks
     keep = (partner[c.net_a] != c.net_b) & (c.net_a != NO_NET) & (c.net_b != NO_NET)
-    return c.take(np.flatnonzero(keep))
+    return c if keep.all() else c.take(np.flatnonzero(keep))
 
 
 def net_capacitance_to_ground_pf(board: Board, electrical: NetElectrical, notes: list[str]) -> np.ndarray:
@@ -337,21 +360,23 @@ def aggregate_net_pairs(board: Board, c: Couplings, electrical: NetElectrical, c
         noise_small_r_ba_v=_noise(electrical, net_b, net_a, c12, c2g_pf, crosstalk.lumped_noise_small_r_v),
         row_pair=inv.astype(np.int64),
     )
-    pairs.layer_groups, pairs.layer_mask = _layer_masks(c, inv, m)
+    pairs.layer_groups, pairs.layer_mask, pairs.row_group = _layer_masks(c, inv, m)
     return pairs
 
 
-def _layer_masks(c: Couplings, inv: np.ndarray, m: int) -> tuple[tuple[tuple[int, int, int], ...], np.ndarray]:
-    """Which (kind, layer, layer) groups each net pair couples on, as bit masks."""
+def _layer_masks(c: Couplings, inv: np.ndarray, m: int) -> tuple[tuple[tuple[int, int, int], ...], np.ndarray, np.ndarray]:
+    """The (kind, layer, layer) groups present, which of them each net pair
+    couples on (bit masks), and each row's group."""
     lo, hi = np.minimum(c.layer_a, c.layer_b), np.maximum(c.layer_a, c.layer_b)
     key = (c.kind.astype(np.int64) * 4096 + lo) * 4096 + hi
     groups, gidx = np.unique(key, return_inverse=True)
+    row_group = gidx.astype(np.int64)
     if groups.size > 62:  # more layer groups than bits: keep the mask for the first 62
         gidx = np.where(gidx < 62, gidx, 62)
     mask = np.zeros(m, np.int64)
     np.bitwise_or.at(mask, inv, np.left_shift(np.int64(1), gidx.astype(np.int64)))
-    decoded = tuple((int(g // 4096 // 4096), int(g // 4096 % 4096), int(g % 4096)) for g in groups[:62])
-    return decoded, mask
+    decoded = tuple((int(g // 4096 // 4096), int(g // 4096 % 4096), int(g % 4096)) for g in groups)
+    return decoded, mask, row_group
 
 
 def _noise(e: NetElectrical, aggressor: np.ndarray, victim: np.ndarray, c12_pf: np.ndarray,

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import hashlib
 import json
-from dataclasses import asdict, dataclass
+from dataclasses import dataclass
 
 SEVERITIES = ("error", "warning")
 
@@ -61,7 +61,7 @@ class Finding:
                 self.aggressor, self.victim, self.id)
 
     def to_dict(self) -> dict:
-        d = asdict(self)
+        d = {name: getattr(self, name) for name in self.__dataclass_fields__}
         d["layers"] = list(self.layers)
         d["bbox"] = [round(v, 4) for v in self.bbox]
         d["at"] = [round(v, 4) for v in self.at]

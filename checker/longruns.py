@@ -46,22 +46,15 @@ class LongRun:
 
 def longest_runs(ctx, pairs: np.ndarray) -> dict[int, np.ndarray]:
     """Net pair index -> coupled rows of its longest continuous run."""
-    rows = ctx.rows_of_pairs(np.unique(pairs))
+    rows, labels, length, owner = ctx.pair_runs(pairs)
     if rows.size == 0:
         return {}
-    c = ctx.couplings
-    labels = ctx.runs(rows)
-    length = np.bincount(labels, weights=c.length_mm[rows])
-    owner = np.zeros(length.size, np.int64)
-    owner[labels] = ctx.net_pairs.row_pair[rows]
-    out: dict[int, np.ndarray] = {}
+    # per owner, the run with the greatest length (ties: the lowest label)
+    by_owner = np.lexsort((np.arange(length.size), -length, owner))
+    first = by_owner[np.r_[True, owner[by_owner][1:] != owner[by_owner][:-1]]]
     order = np.argsort(labels, kind="stable")
     starts = np.searchsorted(labels[order], np.arange(length.size + 1))
-    for pair in np.unique(owner).tolist():
-        runs = np.flatnonzero(owner == pair)
-        best = int(runs[np.argmax(length[runs])])
-        out[pair] = rows[order[starts[best]:starts[best + 1]]]
-    return out
+    return {int(owner[run]): rows[order[starts[run]:starts[run + 1]]] for run in first.tolist()}
 
 
 def long_run_crosstalk(ctx, entries: list[tuple[int, int, int]]) -> dict[int, LongRun]:
@@ -78,10 +71,15 @@ def long_run_crosstalk(ctx, entries: list[tuple[int, int, int]]) -> dict[int, Lo
     stackup = ctx.board.stackup
     er_max = max((d.er for d in stackup.dielectrics), default=1.0)
     v_min = C0 / math.sqrt(er_max)
+    # a pair's total coupled length bounds its longest run: most pairs are
+    # ruled out here without grouping their rows into runs
+    total_mm = ctx.net_pairs.broadside_length_mm + ctx.net_pairs.edge_length_mm
     candidates = []
     for entry, pair, aggressor in entries:
         f, v1 = e.frequency_hz[aggressor], e.swing_v[aggressor]
         if not (np.isfinite(f) and np.isfinite(v1) and f > 0):
+            continue
+        if total_mm[pair] * 1e-3 <= factor / f * v_min / 2:
             continue
         candidates.append((entry, pair, aggressor, factor / f, v1))
     if not candidates:

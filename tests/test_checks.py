@@ -232,14 +232,6 @@ def test_noise_what_if_meets_the_budget_exactly(tmp_path):
     assert at_k * 1e3 == pytest.approx(budget_mv, rel=1e-9, abs=0)
 
 
-def test_largest_scale_bisection():
-    from checker.checks.whatif import largest_scale
-
-    # total(k) = 3 k^2 reaches 0.75 at k = 0.5 (hand: 3 * 0.25 = 0.75)
-    assert largest_scale(lambda k: 3 * k * k, 0.75) == pytest.approx(0.5, rel=1e-12, abs=0)
-    assert largest_scale(lambda k: k, 2.0) == 1.0  # already within the budget
-
-
 def test_capacitance_what_if_is_the_budget_ratio(tmp_path):
     b = board([track("TOP", "CLK", [[0, 0], [10, 0]]), track("IN1", "SENSE", [[0, 0], [10, 0]])])
     probe = check_board(b, rules(tmp_path, "- {name: c, kind: capacitance-budget, max_c12: 1000 pF}\n"))

@@ -172,3 +172,16 @@ def test_sections_place_the_traces_and_ground():
     assert len(one.conductors) == 1 and one.conductors[0].x0 == approx(-0.1, 1e-12)
     with pytest.raises(ValueError):
         edge_section(st, 0, 0.1, 0.1, 0.0)
+
+
+def test_stripline_table_far_beyond_the_plane_spacing_stays_positive():
+    """Between planes 0.2 mm apart, C12' at gaps of a millimetre has decayed to rounding noise;
+    the table must still answer (positive, falling with gap) instead of failing."""
+    from checker.model import CopperLayer, Dielectric, Stackup
+    from checker.physics.edge import EdgeModel
+
+    s = Stackup((CopperLayer("P1", "plane", 0.035), CopperLayer("S", "signal", 0.035),
+                 CopperLayer("P2", "plane", 0.035)), (Dielectric(0.1, 4.2), Dielectric(0.1, 4.2)))
+    m = EdgeModel(s, 1, [0.1], max_gap_mm=0.9, min_gap_mm=0.1)
+    values = m.c12_per_m(0.1, 0.1, np.array([0.2, 0.4, 0.6, 0.85]))
+    assert np.all(values > 0) and np.all(np.diff(values) < 0)

@@ -35,7 +35,9 @@ def check(rule, ctx):
     c = ctx.couplings
     limit_pf = rule.options["max_c12"] * 1e12
     applies, aggressor = ctx.orient(rule, np_.net_a, np_.net_b)
-    for k in np.flatnonzero(applies & (np_.c12_pf > limit_pf)):
+    over = np.flatnonzero(applies & (np_.c12_pf > limit_pf))
+    longest = ctx.longest_run_mm(over)
+    for k in over:
         rows = ctx.rows_of_pairs(k)
         worst = int(rows[np.argmax(c.c12_pf[rows])])
         bbox, at, layers = run_place(ctx, rows, worst)
@@ -48,12 +50,5 @@ def check(rule, ctx):
             message=(f"{ctx.net_name(agg)} and {ctx.net_name(victim)} couple through {total:.3g} pF "
                      f"on {'/'.join(layers)} (budget {limit_pf:.3g} pF)"),
             length_mm=float(c.length_mm[rows].sum()), area_mm2=float(c.overlap_mm2[rows].sum()),
-            c12_pf=total, keep_fraction=limit_pf / total, suggestion=shorten_text(limit_pf / total, _longest_run_mm(ctx, rows), total),
+            c12_pf=total, keep_fraction=limit_pf / total, suggestion=shorten_text(limit_pf / total, float(longest[k]), total),
         )
-
-
-def _longest_run_mm(ctx, rows: np.ndarray) -> float:
-    """Length of the longest continuous coupled run among ``rows``."""
-    c = ctx.couplings
-    labels = ctx.runs(rows)
-    return float(np.bincount(labels, weights=c.length_mm[rows]).max())

@@ -39,11 +39,9 @@ OPTIONS = {
 
 def check(rule, ctx):
     """Yield a finding per victim whose summed coupled noise exceeds ``max_noise``."""
-    from ..physics import crosstalk
-    from .capacitance_budget import _longest_run_mm
     from .common import make_finding, run_place
     from ..longruns import long_run_crosstalk
-    from .whatif import largest_scale, shorten_text
+    from .whatif import shorten_text
 
     np_ = ctx.net_pairs
     c = ctx.couplings
@@ -66,7 +64,10 @@ def check(rule, ctx):
     totals = np.bincount(victims, weights=noise, minlength=len(ctx.board.nets))
     by_victim = np.argsort(victims, kind="stable")
     starts = np.searchsorted(victims[by_victim], np.arange(len(ctx.board.nets) + 1))
-    for victim in np.flatnonzero(totals > limit):
+    failing = np.flatnonzero(totals > limit)
+    scales = _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, limit, small_r)
+    longest = ctx.longest_run_mm(pair[np.isin(victims, failing)])
+    for victim in failing:
         mine = by_victim[starts[victim]:starts[victim + 1]]
         total = float(totals[victim])
         order = mine[np.argsort(-noise[mine], kind="stable")]
@@ -74,20 +75,7 @@ def check(rule, ctx):
         rows = ctx.rows_of_pairs(pair[mine])
         worst = int(rows[np.argmax(c.c12_pf[rows])])
         bbox, at, layers = run_place(ctx, rows, worst)
-        # the same model with every aggressor's C12 onto this victim scaled by k
-        e = ctx.electrical
-        model = crosstalk.lumped_noise_small_r_v if small_r else crosstalk.lumped_noise_v
-        c12_f = np_.c12_pf[pair[mine]] * 1e-12
-        agg = aggressors[mine]
-
-        tl = [long_runs.get(int(i)) for i in mine]
-
-        def total_at(k: float, victim=int(victim), c12_f=c12_f, agg=agg, tl=tl) -> float:
-            each = model(e.resistance_ohm[victim], k * c12_f, ctx.c2g_pf[victim] * 1e-12,
-                         e.swing_v[agg], e.frequency_hz[agg])
-            return float(sum(_scaled_tl(run, k) if run else v for v, run in zip(each.tolist(), tl)))
-
-        scale = largest_scale(total_at, limit)
+        scale = float(scales[victim])
         others = len(order) - 1
         names = ctx.net_name(main) + (f" and {others} more" if others else "")
         how = "small-R limit" if small_r else "lumped model"
@@ -104,16 +92,45 @@ def check(rule, ctx):
                      f"({how}; budget {limit * 1e3:.3g} mV)"),
             c12_pf=float(np_.c12_pf[pair[mine]].sum()), noise_mv=total * 1e3,
             noise_model="transmission-line" if long_here else ("small-r" if small_r else "lumped"),
-            keep_fraction=scale, suggestion=shorten_text(scale, _longest_run_mm(ctx, rows), float(np_.c12_pf[pair[mine]].sum())),
+            keep_fraction=scale, suggestion=shorten_text(scale, float(longest[pair[mine]].max()),
+                                                          float(np_.c12_pf[pair[mine]].sum())),
         )
 
 
-def _scaled_tl(run, k: float) -> float:
-    """Transmission-line noise of a run cut to a fraction k of its length:
-    FEXT is linear in length; NEXT grows linearly up to the saturation
-    length and is flat beyond (Johnson & Graham 1993)."""
-    x = run.crosstalk
-    length = x.coupled_length_m
-    sat = x.saturation_length_m
-    next_k = x.next_v * min(1.0, k * length / sat) / min(1.0, length / sat)
-    return max(next_k, x.fext_v * k)
+def _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, limit, small_r) -> np.ndarray:
+    """Per victim in ``failing``: the largest fraction k of today's coupling
+    (every aggressor's C12 onto it, and its long runs' lengths, scaled by k)
+    whose total noise meets ``limit``, by the same models; bisection run on
+    all failing victims at once (``checker.checks.whatif`` explains k)."""
+    from ..physics import crosstalk
+    from .whatif import BISECTION_STEPS
+
+    scales = np.ones(len(ctx.board.nets))
+    if failing.size == 0:
+        return scales
+    e = ctx.electrical
+    model = crosstalk.lumped_noise_small_r_v if small_r else crosstalk.lumped_noise_v
+    entries = np.flatnonzero(np.isin(victims, failing))
+    vic, agg = victims[entries], aggressors[entries]
+    c12 = ctx.net_pairs.c12_pf[pair[entries]] * 1e-12
+    long_at = np.array([int(i) in long_runs for i in entries.tolist()], dtype=bool)
+    runs = [long_runs[int(i)].crosstalk for i in entries[long_at].tolist()]
+    nxt = np.array([x.next_v for x in runs])
+    fxt = np.array([x.fext_v for x in runs])
+    ratio = np.array([x.coupled_length_m / x.saturation_length_m for x in runs])
+
+    def totals_at(k_of_victim: np.ndarray) -> np.ndarray:
+        k = k_of_victim[vic]
+        each = model(e.resistance_ohm[vic], k * c12, ctx.c2g_pf[vic] * 1e-12, e.swing_v[agg], e.frequency_hz[agg])
+        if long_at.any():  # FEXT linear in length; NEXT linear up to saturation, flat beyond
+            kl = k[long_at]
+            each[long_at] = np.maximum(nxt * np.minimum(1.0, kl * ratio) / np.minimum(1.0, ratio), fxt * kl)
+        return np.bincount(vic, weights=each, minlength=len(ctx.board.nets))
+
+    lo, hi = np.zeros(len(ctx.board.nets)), np.ones(len(ctx.board.nets))
+    for _ in range(BISECTION_STEPS):
+        mid = 0.5 * (lo + hi)
+        ok = totals_at(mid) <= limit
+        lo, hi = np.where(ok, mid, lo), np.where(ok, hi, mid)
+    scales[failing] = lo[failing]
+    return scales

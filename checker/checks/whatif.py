@@ -8,25 +8,8 @@ coupled length at today's spacing".
 
 from __future__ import annotations
 
-from typing import Callable
-
 #: bisection steps: 2**-60 of the unit interval, far below any reported digit
-_STEPS = 60
-
-
-def largest_scale(total: Callable[[float], float], limit: float) -> float:
-    """Largest k in [0, 1] with ``total(k) <= limit``, for a ``total`` that
-    does not decrease with k and is 0 at k = 0 (found by bisection)."""
-    if total(1.0) <= limit:
-        return 1.0
-    lo, hi = 0.0, 1.0
-    for _ in range(_STEPS):
-        mid = 0.5 * (lo + hi)
-        if total(mid) <= limit:
-            lo = mid
-        else:
-            hi = mid
-    return lo
+BISECTION_STEPS = 60
 
 
 def shorten_text(k: float, longest_mm: float, c12_pf: float) -> str:

@@ -194,12 +194,35 @@ def gap_knots(max_gap_mm: float, min_gap_mm: float = MIN_GAP_MM) -> np.ndarray:
     return MIN_GAP_MM * GAP_RATIO ** np.arange(k0, k1 + 1)
 
 
-def _solve_all(sections: list[CrossSection], resolution: float) -> list[np.ndarray]:
-    """Richardson-extrapolated Maxwell matrices (F/m) of ``sections``, two
-    solves at a time (results in input order, so deterministic)."""
+def _solve_all(sections: list[CrossSection], resolution: float) -> list[tuple[np.ndarray, np.ndarray]]:
+    """(Richardson-extrapolated, finer-grid) Maxwell matrices (F/m) of
+    ``sections``, two solves at a time (results in input order, so
+    deterministic)."""
     workers = max(1, min(2, os.cpu_count() or 1))
+
+    def one(cs: CrossSection) -> tuple[np.ndarray, np.ndarray]:
+        r = solve(cs, resolution, richardson=True)
+        return r.extrapolated, r.maxwell
+
     with ThreadPoolExecutor(max_workers=workers) as pool:
-        return list(pool.map(lambda cs: solve(cs, resolution, richardson=True).extrapolated, sections))
+        return list(pool.map(one, sections))
+
+
+def _decaying(column: np.ndarray) -> np.ndarray:
+    """A gap column of C12' made positive and non-increasing.
+
+    Far beyond the plane spacing of a stripline, C12' has decayed by many
+    orders of magnitude and the extrapolated (or even the raw) value is
+    rounding noise that can come out zero or negative. Such a value, or one
+    above its nearer neighbour, is replaced by half the nearer neighbour (a
+    slower decay than the true exponential one, so still an upper estimate of
+    a negligible coupling), keeping ln C12' finite for the interpolation.
+    """
+    out = column.copy()
+    for k in range(1, out.size):
+        if not (out[k] > 0) or out[k] > out[k - 1]:
+            out[k] = 0.5 * out[k - 1]
+    return out
 
 
 class EdgeModel:
@@ -248,12 +271,14 @@ class EdgeModel:
         jobs = [(i, j, k) for i, j in todo for k in range(ng)]
         sections = [edge_section(self.stackup, self.layer, float(w[i]), float(w[j]), float(self.gaps[k]))
                     for i, j, k in jobs]
-        values = [-cm[0, 1] for cm in _solve_all(sections, self.resolution)]
-        for (i, j, k), v in zip(jobs, values):
-            if not v > 0:
-                raise RuntimeError(f"non-positive C12' {v} solved at {w[i]}, {w[j]}, gap {self.gaps[k]}")
-            self.table[i, j, k] = self.table[j, i, k] = v
+        solved = _solve_all(sections, self.resolution)
+        for (i, j, k), (extrapolated, raw) in zip(jobs, solved):
+            v = -extrapolated[0, 1]
+            self.table[i, j, k] = self.table[j, i, k] = v if v > 0 else -raw[0, 1]
         for i, j in todo:
+            if not self.table[i, j, 0] > 0:
+                raise RuntimeError(f"non-positive C12' solved at {w[i]}, {w[j]}, gap {self.gaps[0]}")
+            self.table[i, j] = self.table[j, i] = _decaying(self.table[i, j])
             self._curves[(i, j)] = PchipInterpolator(self._lng, np.log(self.table[i, j]))
         self.solves += len(jobs)
         self.build_seconds += time.perf_counter() - t0
@@ -328,7 +353,7 @@ class GroundModel:
             knots = np.append(knots, 2.0 * knots[0])
         self.widths_knots = knots
         sections = [ground_section(stackup, layer, float(w)) for w in self.widths_knots]
-        self.table = np.array([cm[0].sum() for cm in _solve_all(sections, self.resolution)])
+        self.table = np.array([ext[0].sum() for ext, _ in _solve_all(sections, self.resolution)])
         if not np.all(self.table > 0):
             raise RuntimeError(f"non-positive capacitance to ground solved: {self.table}")
         self.solves = len(sections)

@@ -69,8 +69,9 @@ def finding_dict(result: Result, f) -> dict:
 
 
 def _fmt(values: np.ndarray) -> list[str]:
-    """JSON numbers to six significant digits; ``null`` where not finite."""
-    return [f"{v:.6g}" if math.isfinite(v) else "null" for v in values.tolist()]
+    """JSON numbers to six significant digits; ``null`` for NaN (values are
+    finite otherwise); zeros, common here, take a short cut."""
+    return ["null" if v != v else ("0" if v == 0 else "%.6g" % v) for v in values.tolist()]
 
 
 def net_pair_lines(result: Result, chunk: int = 50_000) -> Iterator[list[str]]:
@@ -125,21 +126,22 @@ def by_layer_group(result: Result) -> list[dict]:
     from ..analysis import BROADSIDE
 
     a = result.analysis
-    c = a.couplings
-    out = []
-    lo, hi = np.minimum(c.layer_a, c.layer_b), np.maximum(c.layer_a, c.layer_b)
-    groups = np.unique(np.stack([c.kind.astype(np.int64), lo, hi], axis=1), axis=0)
-    for kind, l0, l1 in groups.tolist():
-        rows = (c.kind == kind) & (lo == l0) & (hi == l1)
-        out.append({
-            "coupling": "broadside" if kind == BROADSIDE else "edge",
-            "layers": _group_name(a, (kind, l0, l1)),
-            "piece_pairs": int(rows.sum()),
-            "coupled_length_mm": float(f"{c.length_mm[rows].sum():.6g}"),
-            "overlap_area_mm2": float(f"{c.overlap_mm2[rows].sum():.6g}"),
-            "c12_pf": float(f"{c.c12_pf[rows].sum():.6g}"),
-        })
-    return out
+    c, p = a.couplings, a.net_pairs
+    n = len(p.layer_groups)
+
+    def total(values: np.ndarray) -> np.ndarray:
+        return np.bincount(p.row_group, weights=values, minlength=n)
+
+    count = np.bincount(p.row_group, minlength=n)
+    length, area, c12 = total(c.length_mm), total(c.overlap_mm2), total(c.c12_pf)
+    return [{
+        "coupling": "broadside" if kind == BROADSIDE else "edge",
+        "layers": _group_name(a, (kind, lo, hi)),
+        "piece_pairs": int(count[g]),
+        "coupled_length_mm": float(f"{length[g]:.6g}"),
+        "overlap_area_mm2": float(f"{area[g]:.6g}"),
+        "c12_pf": float(f"{c12[g]:.6g}"),
+    } for g, (kind, lo, hi) in enumerate(p.layer_groups)]
 
 
 def build_report(result: Result) -> dict:
@@ -189,13 +191,25 @@ def _interleave(stackup):
 #: stands in for the net-pair list while the rest is encoded; random per
 #: process, so no text in a board or rule file can collide with it
 _NET_PAIRS = f"@@net_pairs-{secrets.token_hex(16)}@@"
+_FINDINGS = f"@@findings-{secrets.token_hex(16)}@@"
+
+
+def _lines(items: list[str]) -> str:
+    """A JSON array with one item per line, indented as the report is."""
+    return "[\n    " + ",\n    ".join(items) + "\n  ]" if items else "[]"
 
 
 def write(result: Result, out: TextIO) -> None:
-    """Write the report: indented JSON, with the (possibly huge) list of net
-    pairs one object per line, streamed in chunks."""
-    head = json.dumps(build_report(result), indent=2, ensure_ascii=False, allow_nan=False)
-    before, after = head.split(json.dumps(_NET_PAIRS), 1)
+    """Write the report: indented JSON, with the findings and the (possibly
+    huge) list of net pairs one compact object per line, the net pairs
+    streamed in chunks."""
+    report = build_report(result)
+    findings, report["findings"] = report["findings"], _FINDINGS
+    head = json.dumps(report, indent=2, ensure_ascii=False, allow_nan=False)
+    start, rest = head.split(json.dumps(_FINDINGS), 1)
+    before, after = rest.split(json.dumps(_NET_PAIRS), 1)
+    out.write(start)
+    out.write(_lines([json.dumps(f, ensure_ascii=False, allow_nan=False) for f in findings]))
     out.write(before)
     out.write("[")
     first = True
