@@ -16,7 +16,7 @@ import numpy as np
 from .finder.pairs import PairTable, find_broadside, find_edge
 from .finder.runs import run_labels
 from .model import NO_NET, Board
-from .physics import capacitance, crosstalk
+from .physics import crosstalk
 from .physics.broadside import BroadsideModel, broadside_c12_pf
 from .physics.edge import EdgeModel, GroundModel
 from .ruleset import NetClass, Rule, RuleSet

@@ -76,7 +76,6 @@ import argparse
 import csv
 import importlib
 import math
-import os
 import sys
 import time
 from concurrent.futures import ThreadPoolExecutor

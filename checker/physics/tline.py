@@ -140,8 +140,7 @@ import numpy as np
 from scipy.constants import epsilon_0, mu_0
 
 from ..model import Stackup
-from .broadside import _layer_bands
-from .fieldsolve import FAST, Conductor, CrossSection, Slab, _domain, solve
+from .fieldsolve import FAST, CrossSection, _domain, solve
 
 #: Index of the aggressor and the victim in a two-conductor ``LineMatrices``.
 AGGRESSOR = 0
@@ -322,50 +321,17 @@ def line_matrices(section: CrossSection, resolution: float = FAST) -> LineMatric
 
 
 def same_layer_section(stackup: Stackup, layer: int, wa: float, wb: float, gap_mm: float) -> CrossSection:
-    """Two traces side by side on copper layer ``layer`` (edge-coupled).
+    """Two traces side by side on copper layer ``layer`` (edge-coupled):
+    trace 0 the aggressor (width ``wa``), trace 1 the victim (``wb``),
+    ``gap_mm`` edge to edge; the cross-section of
+    :func:`checker.physics.edge.edge_section` (planes, dielectrics and
+    solder mask as for the edge-coupling tables), so both models see one
+    geometry."""
+    from .edge import edge_section
 
-    Trace 0 (aggressor, width ``wa``) ends at x = -gap/2, trace 1 (victim,
-    width ``wb``) starts at x = +gap/2; both fill the layer's copper band.
-    ``gap_mm`` is the edge-to-edge gap. Grounds and dielectrics follow
-    ``checker.physics.broadside.broadside_section``: the nearest plane-role
-    layer above and below (at their surfaces facing the trace), every
-    dielectric between them, inner copper bands (including this layer's,
-    beside the traces) filled with the mean permittivity of the two
-    dielectrics touching them, outer bands air; with no plane on a side, air
-    to the solver's far box. All lengths mm.
-    """
-    layers = stackup.layers
-    n = len(layers)
-    if not 0 <= layer < n:
-        raise ValueError(f"need 0 <= layer < {n}, got {layer}")
-    if layers[layer].role == "plane":
-        raise ValueError(f"layer {layers[layer].name!r} is a plane; coupling is between traces")
-    for name, w in (("wa", wa), ("wb", wb), ("gap_mm", gap_mm)):
-        _positive(name, w)
-    bot, top = _layer_bands(stackup)
-    above = next((k for k in range(layer - 1, -1, -1) if layers[k].role == "plane"), None)
-    below = next((k for k in range(layer + 1, n) if layers[k].role == "plane"), None)
-    first = above if above is not None else 0
-    last = below if below is not None else n - 1
-    planes = []
-    if above is not None:
-        planes.append(float(bot[above]))
-    if below is not None:
-        planes.append(float(top[below]))
-    slabs = [Slab(float(top[i + 1]), float(bot[i]), float(stackup.dielectrics[i].er)) for i in range(first, last)]
-    # the same band rule as broadside_section (kept in step with it)
-    for k in range(first + 1 if above is not None else first, last if below is not None else last + 1):
-        if layers[k].thickness_mm <= 0 or k == 0 or k == n - 1:
-            continue  # no band, or an outer layer's band (air)
-        er = 0.5 * (stackup.dielectrics[k - 1].er + stackup.dielectrics[k].er)
-        slabs.append(Slab(float(bot[k]), float(top[k]), er))
-    g = 0.5 * gap_mm
-    y0, y1 = float(bot[layer]), float(top[layer])
-    conductors = (
-        Conductor(-g - wa, -g, y0, y1, AGGRESSOR),
-        Conductor(g, g + wb, y0, y1, VICTIM),
-    )
-    return CrossSection(conductors, tuple(slabs), tuple(planes))
+    if 0 <= layer < len(stackup.layers) and stackup.layers[layer].role == "plane":
+        raise ValueError(f"layer {stackup.layers[layer].name!r} is a plane; coupling is between traces")
+    return edge_section(stackup, layer, wa, wb, gap_mm)
 
 
 @dataclass(frozen=True)

@@ -10,7 +10,6 @@ from __future__ import annotations
 import io
 import secrets
 import json
-import math
 from typing import Iterator, TextIO
 
 import numpy as np
