@@ -18,6 +18,7 @@ from .finder.runs import run_labels
 from .model import NO_NET, Board
 from .physics import crosstalk
 from .physics.broadside import BroadsideModel, broadside_c12_pf
+from .physics.accurate import ExactBroadside, ExactEdge, ExactGround
 from .physics.edge import EdgeModel, GroundModel
 from .ruleset import NetClass, Rule, RuleSet
 from .stackup import broadside_pairs, reference_of
@@ -117,6 +118,9 @@ class Analysis:
     notes: list[str]
     layer_pairs: list[tuple[int, int]]
     pairs_examined: int
+    #: "fast" (field-solved tables, interpolated) or "accurate" (a direct
+    #: solve of every distinct cross-section): which produced every number
+    mode: str = "fast"
     _pair_groups: tuple[np.ndarray, np.ndarray] | None = field(default=None, repr=False)
 
     # --- helpers the checks share -------------------------------------
@@ -213,7 +217,8 @@ def analysis_steps(board: Board, ruleset: RuleSet) -> int:
     return len(broadside_pairs(board.stackup, ruleset.settings.planes_shield)) + layers + 1
 
 
-def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=None) -> tuple[Couplings, list[tuple[int, int]], int]:
+def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=None,
+                   accurate: bool = False) -> tuple[Couplings, list[tuple[int, int]], int]:
     """Search every neighbouring layer pair (broadside) and every layer
     (edge); ``progress(description)`` is called before each search."""
     s = ruleset.settings
@@ -230,28 +235,41 @@ def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=No
             progress(f"{kind} coupling on {where}")
         if kind == "broadside":
             t = find_broadside(pieces, u, l, s.broadside_search_mm, s.parallel_angle_deg)
-            c12 = _broadside_c12(board, t, u, l, s.broadside_search_mm)
+            c12 = _broadside_c12(board, t, u, l, s.broadside_search_mm, accurate, notes)
             tables.append((BROADSIDE, t, c12))
         else:
             t = find_edge(pieces, u, s.edge_search_mm, s.parallel_angle_deg)
-            c12 = _edge_c12(board, t, u, notes)
+            c12 = _edge_c12(board, t, u, notes, accurate)
             tables.append((EDGE, t, c12))
     examined = sum(t.candidates for _, t, _ in tables)
     couplings = _assemble(board, tables)
     return couplings, layer_pairs, examined
 
 
-def _broadside_c12(board: Board, t: PairTable, upper: int, lower: int, search_mm: float) -> np.ndarray:
+def _broadside_c12(board: Board, t: PairTable, upper: int, lower: int, search_mm: float,
+                   accurate: bool, notes: list[str]) -> np.ndarray:
     if len(t) == 0:
         return np.zeros(0)
     p = board.pieces
     wa, wb = p.width[t.a], p.width[t.b]
-    model = BroadsideModel(board.stackup, upper, lower, wa, wb,
-                           max_offset_mm=search_mm + float(max(wa.max(), wb.max())))
-    return broadside_c12_pf(model, wa, wb, t.offset_mm, t.length_mm, t.angle_deg, t.parallel)
+    if accurate:
+        model = ExactBroadside(board.stackup, upper, lower)
+    else:
+        model = BroadsideModel(board.stackup, upper, lower, wa, wb,
+                               max_offset_mm=search_mm + float(max(wa.max(), wb.max())))
+    c12 = broadside_c12_pf(model, wa, wb, t.offset_mm, t.length_mm, t.angle_deg, t.parallel)
+    if accurate:
+        notes.append(_accurate_note(f"broadside {board.stackup.layers[upper].name}/"
+                                    f"{board.stackup.layers[lower].name}", model))
+    return c12
 
 
-def _edge_c12(board: Board, t: PairTable, layer: int, notes: list[str]) -> np.ndarray:
+def _accurate_note(what: str, model) -> str:
+    return (f"accurate mode, {what}: {model.solves} direct field solves, one per distinct cross-section "
+            f"(widths and spacing rounded to {model.grid_mm * 1000:g} um)")
+
+
+def _edge_c12(board: Board, t: PairTable, layer: int, notes: list[str], accurate: bool = False) -> np.ndarray:
     """C12 (pF) of the same-layer pairs ``t`` from the field-solved
     ``EdgeModel`` of ``layer`` (the closed forms of
     ``physics.capacitance.edge_c12_per_m`` are its documented cross-check)."""
@@ -266,11 +284,16 @@ def _edge_c12(board: Board, t: PairTable, layer: int, notes: list[str]) -> np.nd
             f"{EDGE_GAP_FLOOR_MM} mm or touch (a clearance error); their C12 is taken at {EDGE_GAP_FLOOR_MM} mm")
     gap = np.maximum(t.gap_mm, EDGE_GAP_FLOOR_MM)
     wa, wb = p.width[t.a], p.width[t.b]
-    model = EdgeModel(board.stackup, layer, np.concatenate([wa, wb]),
-                      max_gap_mm=float(gap.max()), min_gap_mm=float(gap.min()))
-    per_m = model.c12_per_m(wa, wb, gap)
-    notes.append(f"edge coupling on {name}: field-solved cross-sections of the stackup "
-                 f"({model.solves} solves, {_mask_words(board, layer)})")
+    if accurate:
+        model = ExactEdge(board.stackup, layer)
+        per_m = model.c12_per_m(wa, wb, gap)
+        notes.append(_accurate_note(f"edge coupling on {name}", model))
+    else:
+        model = EdgeModel(board.stackup, layer, np.concatenate([wa, wb]),
+                          max_gap_mm=float(gap.max()), min_gap_mm=float(gap.min()))
+        per_m = model.c12_per_m(wa, wb, gap)
+        notes.append(f"edge coupling on {name}: field-solved cross-sections of the stackup "
+                     f"({model.solves} solves, {_mask_words(board, layer)})")
     return per_m * t.length_mm * 1e-3 * 1e12
 
 
@@ -312,7 +335,8 @@ def _assemble(board: Board, tables: list[tuple[int, PairTable, np.ndarray]]) -> 
     return c if keep.all() else c.take(np.flatnonzero(keep))
 
 
-def net_capacitance_to_ground_pf(board: Board, electrical: NetElectrical, notes: list[str]) -> np.ndarray:
+def net_capacitance_to_ground_pf(board: Board, electrical: NetElectrical, notes: list[str],
+                                 accurate: bool = False) -> np.ndarray:
     """Per net: sum over its pieces of C'(to reference planes) x length, plus
     the node capacitance from its class (pF). C' comes from the field-solved
     ``GroundModel`` of each layer (``physics.capacitance.c2g_per_m`` is its
@@ -324,13 +348,14 @@ def net_capacitance_to_ground_pf(board: Board, electrical: NetElectrical, notes:
         if on.size == 0:
             continue
         name = board.stackup.layers[int(layer)].name
-        model = GroundModel(board.stackup, int(layer), p.width[on])
+        model = ExactGround(board.stackup, int(layer)) if accurate else GroundModel(board.stackup, int(layer), p.width[on])
         per_m = model.c_per_m(p.width[on])
         if reference_of(board.stackup, int(layer)).kind == "none":
             notes.append(f"layer {name} has no reference plane: its traces' capacitance to ground is to the "
                          "solver's far box, about the board's size away (a rough figure)")
         else:
-            notes.append(f"capacitance to ground on {name}: field-solved single-trace cross-sections "
+            notes.append(_accurate_note(f"capacitance to ground on {name}", model) if accurate else
+                         f"capacitance to ground on {name}: field-solved single-trace cross-sections "
                          f"({model.solves} solves, {_mask_words(board, int(layer))})")
         pf = per_m * p.length[on] * 1e-3 * 1e12
         total += np.bincount(p.net[on], weights=pf, minlength=len(board.nets))
@@ -386,7 +411,7 @@ def _noise(e: NetElectrical, aggressor: np.ndarray, victim: np.ndarray, c12_pf: 
                  e.swing_v[aggressor], e.frequency_hz[aggressor])
 
 
-def analyse(board: Board, ruleset: RuleSet, progress=None) -> Analysis:
+def analyse(board: Board, ruleset: RuleSet, progress=None, accurate: bool = False) -> Analysis:
     """Run the whole physical analysis of ``board`` under ``ruleset``'s
     settings; ``progress(description)``, if given, is called before each of
     the :func:`analysis_steps` steps."""
@@ -394,10 +419,10 @@ def analyse(board: Board, ruleset: RuleSet, progress=None) -> Analysis:
     names = [net.name for net in board.nets]
     classes = ruleset.classify(names)
     electrical = electrical_attributes(board, ruleset, classes)
-    couplings, layer_pairs, examined = find_couplings(board, ruleset, notes, progress)
+    couplings, layer_pairs, examined = find_couplings(board, ruleset, notes, progress, accurate)
     if progress is not None:
         progress("capacitance to ground and noise")
-    c2g = net_capacitance_to_ground_pf(board, electrical, notes)
+    c2g = net_capacitance_to_ground_pf(board, electrical, notes, accurate)
     net_pairs = aggregate_net_pairs(board, couplings, electrical, c2g)
     return Analysis(board, ruleset, couplings, net_pairs, electrical, c2g, classes, notes,
-                    layer_pairs, examined)
+                    layer_pairs, examined, "accurate" if accurate else "fast")

@@ -60,6 +60,9 @@ def _parser() -> argparse.ArgumentParser:
                        help="also write one overlay per layer group with findings into DIR (created if missing)")
         p.add_argument("--html", metavar="FILE", help="also write the self-contained HTML sign-off report")
         p.add_argument("--junit", metavar="FILE", help="also write JUnit XML (one test case per rule)")
+        p.add_argument("--accurate", action="store_true",
+                       help="solve every distinct coupled cross-section directly instead of interpolating "
+                            "field-solved tables (slower; the report says which mode was used)")
 
     check = sub.add_parser("check", help="check a board file")
     check.add_argument("board", help="board geometry (neutral JSON)")
@@ -143,9 +146,9 @@ def _check(board_path: str, args: argparse.Namespace) -> int:
             def progress(what: str, done: int, total: int) -> None:
                 bar.update(task, description=what, completed=done, total=total)
 
-            result = check_board(board, ruleset, progress=progress)
+            result = check_board(board, ruleset, progress=progress, accurate=args.accurate)
     else:
-        result = check_board(board, ruleset)
+        result = check_board(board, ruleset, accurate=args.accurate)
     result.fail_on = args.fail_on
     result.review = build_review(result.findings, waivers, baseline, on=day)
 

@@ -21,6 +21,7 @@ import numpy as np
 from scipy.constants import c as C0
 
 from .physics.broadside import broadside_section
+from .physics.accurate import ACCURATE_RESOLUTION
 from .physics.fieldsolve import FAST
 from .physics.tline import (
     Crosstalk,
@@ -136,9 +137,10 @@ def _matrices(ctx, key: tuple) -> LineMatrices:
     """Solve the run's cross-section; conductor 0 the aggressor, 1 the victim."""
     kind, la, lv, wa, wv, spacing = key
     stackup = ctx.board.stackup
+    resolution = ACCURATE_RESOLUTION if ctx.mode == "accurate" else FAST
     if kind == "edge":
-        return line_matrices(same_layer_section(stackup, la, wa, wv, max(spacing, 0.01)), FAST)
+        return line_matrices(same_layer_section(stackup, la, wa, wv, max(spacing, 0.01)), resolution)
     upper, lower = min(la, lv), max(la, lv)
     w_upper, w_lower = (wa, wv) if la == upper else (wv, wa)
-    m = line_matrices(broadside_section(stackup, upper, lower, w_upper, w_lower, spacing), FAST)
+    m = line_matrices(broadside_section(stackup, upper, lower, w_upper, w_lower, spacing), resolution)
     return m if la == upper else m.swapped()

@@ -53,9 +53,11 @@ def run_checks(analysis: Analysis, progress=None) -> list[Finding]:
     return sort_findings(findings)
 
 
-def check_board(board: Board, ruleset: RuleSet, progress=None) -> Result:
+def check_board(board: Board, ruleset: RuleSet, progress=None, accurate: bool = False) -> Result:
     """Analyse ``board`` and apply ``ruleset``. ``progress(description,
-    done, total)``, if given, is called before each step of the work."""
+    done, total)``, if given, is called before each step of the work;
+    ``accurate`` solves every distinct cross-section directly instead of
+    interpolating tables (slower)."""
     start = time.perf_counter()
     step = None
     if progress is not None:
@@ -65,6 +67,6 @@ def check_board(board: Board, ruleset: RuleSet, progress=None) -> Result:
         def step(description: str) -> None:
             progress(description, next(done, total), total)
 
-    analysis = analyse(board, ruleset, step)
+    analysis = analyse(board, ruleset, step, accurate)
     findings = run_checks(analysis, step)
     return Result(analysis, findings, time.perf_counter() - start)

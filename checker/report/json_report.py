@@ -163,6 +163,7 @@ def build_report(result: Result) -> dict:
         },
         "ruleset": {"path": a.ruleset.path, "sha256": a.ruleset.sha256},
         "settings": {
+            "mode": a.mode,
             "broadside_search_mm": s.broadside_search_mm,
             "edge_search_mm": s.edge_search_mm,
             "parallel_angle_deg": s.parallel_angle_deg,

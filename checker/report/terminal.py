@@ -75,7 +75,7 @@ def render(result: Result, console: Console) -> None:
     console.print(
         f"1 board, {s['layers']} layers, {s['pieces']} pieces, {s['pairs_examined']} pairs examined, "
         f"{s['coupled_net_pairs']} coupled net pairs; findings: {s['findings']} ({per_rule}){review_counts}; "
-        f"{result.seconds:.2f} s",
+        f"{a.mode} mode, {result.seconds:.2f} s",
         highlight=False,
     )
     console.print(f"[dim]{CAUTION}[/]", highlight=False)

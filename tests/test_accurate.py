@@ -1,0 +1,52 @@
+"""Accurate mode: direct solves of each distinct cross-section, bounded in number."""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+
+from checker.cli import main
+from checker.model import CopperLayer, Dielectric, Stackup
+from checker.physics import accurate
+from checker.physics.broadside import broadside_section
+from checker.physics.fieldsolve import solve
+
+DUAL = Stackup(
+    (CopperLayer("P1", "plane", 0.035), CopperLayer("S1", "signal", 0.035),
+     CopperLayer("S2", "signal", 0.035), CopperLayer("P2", "plane", 0.035)),
+    (Dielectric(0.2, 4.2), Dielectric(0.2, 4.2), Dielectric(0.2, 4.2)),
+)
+
+
+def test_exact_broadside_is_the_direct_solve():
+    model = accurate.ExactBroadside(DUAL, 1, 2)
+    got = model.c12_per_m(np.array([0.15, 0.15]), np.array([0.15, 0.15]), np.array([0.0, 0.15]))
+    for value, offset in zip(got, (0.0, 0.15)):
+        direct = -solve(broadside_section(DUAL, 1, 2, 0.15, 0.15, offset), accurate.ACCURATE_RESOLUTION).maxwell[0, 1]
+        assert value == pytest.approx(direct, rel=1e-12, abs=0)
+    assert model.solves == 2
+
+
+def test_solve_count_is_bounded(monkeypatch):
+    """More distinct offsets than MAX_SOLVES: the rounding grid coarsens until it fits."""
+    monkeypatch.setattr(accurate, "MAX_SOLVES", 4)
+    model = accurate.ExactBroadside(DUAL, 1, 2)
+    offsets = np.linspace(0.0, 0.3, 40)  # 40 distinct offsets on the 5 um grid
+    values = model.c12_per_m(np.full(40, 0.15), np.full(40, 0.15), offsets)
+    assert model.solves <= 4 and model.grid_mm > accurate.START_GRID_MM
+    assert np.all(values > 0) and np.all(np.diff(values) <= 0)  # C12 falls with offset
+
+
+def test_accurate_demo_agrees_with_fast_mode(capsys):
+    """The fast tables interpolate the same solver: per net pair within a few % (docs/accuracy.md)."""
+    assert main(["demo", "--format", "json"]) == 1
+    fast = json.loads(capsys.readouterr().out)
+    assert main(["demo", "--format", "json", "--accurate"]) == 1
+    exact = json.loads(capsys.readouterr().out)
+    assert (fast["settings"]["mode"], exact["settings"]["mode"]) == ("fast", "accurate")
+    fast_c12 = {tuple(p["nets"]): p["c12_pf"] for p in fast["net_pairs"]}
+    for p in exact["net_pairs"]:
+        assert p["c12_pf"] == pytest.approx(fast_c12[tuple(p["nets"])], rel=0.05)
+    assert any("accurate mode" in n for n in exact["notes"])
