@@ -121,6 +121,12 @@ class Analysis:
     #: "fast" (field-solved tables, interpolated) or "accurate" (a direct
     #: solve of every distinct cross-section): which produced every number
     mode: str = "fast"
+    #: the C12' models used, by (kind, layer, layer): what-if answers ask
+    #: them again at other spacings
+    models: dict = field(default_factory=dict, repr=False)
+    #: work out the extra-spacing what-if answers (``--what-if``): it solves
+    #: wider tables, so it is off by default
+    what_if: bool = False
     _pair_groups: tuple[np.ndarray, np.ndarray] | None = field(default=None, repr=False)
 
     # --- helpers the checks share -------------------------------------
@@ -218,9 +224,12 @@ def analysis_steps(board: Board, ruleset: RuleSet) -> int:
 
 
 def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=None,
-                   accurate: bool = False) -> tuple[Couplings, list[tuple[int, int]], int]:
+                   accurate: bool = False, models: dict | None = None
+                   ) -> tuple[Couplings, list[tuple[int, int]], int]:
     """Search every neighbouring layer pair (broadside) and every layer
-    (edge); ``progress(description)`` is called before each search."""
+    (edge); ``progress(description)`` is called before each search. The
+    C12' models used are left in ``models`` by (kind, layer, layer)."""
+    models = {} if models is None else models
     s = ruleset.settings
     pieces = board.pieces
     stackup = board.stackup
@@ -235,11 +244,11 @@ def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=No
             progress(f"{kind} coupling on {where}")
         if kind == "broadside":
             t = find_broadside(pieces, u, l, s.broadside_search_mm, s.parallel_angle_deg)
-            c12 = _broadside_c12(board, t, u, l, s.broadside_search_mm, accurate, notes)
+            c12 = _broadside_c12(board, t, u, l, s.broadside_search_mm, accurate, notes, models)
             tables.append((BROADSIDE, t, c12))
         else:
             t = find_edge(pieces, u, s.edge_search_mm, s.parallel_angle_deg)
-            c12 = _edge_c12(board, t, u, notes, accurate)
+            c12 = _edge_c12(board, t, u, notes, accurate, models)
             tables.append((EDGE, t, c12))
     examined = sum(t.candidates for _, t, _ in tables)
     couplings = _assemble(board, tables)
@@ -247,7 +256,7 @@ def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=No
 
 
 def _broadside_c12(board: Board, t: PairTable, upper: int, lower: int, search_mm: float,
-                   accurate: bool, notes: list[str]) -> np.ndarray:
+                   accurate: bool, notes: list[str], models: dict) -> np.ndarray:
     if len(t) == 0:
         return np.zeros(0)
     p = board.pieces
@@ -258,6 +267,7 @@ def _broadside_c12(board: Board, t: PairTable, upper: int, lower: int, search_mm
         model = BroadsideModel(board.stackup, upper, lower, wa, wb,
                                max_offset_mm=search_mm + float(max(wa.max(), wb.max())))
     c12 = broadside_c12_pf(model, wa, wb, t.offset_mm, t.length_mm, t.angle_deg, t.parallel)
+    models[(BROADSIDE, upper, lower)] = model
     if accurate:
         notes.append(_accurate_note(f"broadside {board.stackup.layers[upper].name}/"
                                     f"{board.stackup.layers[lower].name}", model))
@@ -269,7 +279,8 @@ def _accurate_note(what: str, model) -> str:
             f"(widths and spacing rounded to {model.grid_mm * 1000:g} um)")
 
 
-def _edge_c12(board: Board, t: PairTable, layer: int, notes: list[str], accurate: bool = False) -> np.ndarray:
+def _edge_c12(board: Board, t: PairTable, layer: int, notes: list[str], accurate: bool = False,
+              models: dict | None = None) -> np.ndarray:
     """C12 (pF) of the same-layer pairs ``t`` from the field-solved
     ``EdgeModel`` of ``layer`` (the closed forms of
     ``physics.capacitance.edge_c12_per_m`` are its documented cross-check)."""
@@ -294,6 +305,8 @@ def _edge_c12(board: Board, t: PairTable, layer: int, notes: list[str], accurate
         per_m = model.c12_per_m(wa, wb, gap)
         notes.append(f"edge coupling on {name}: field-solved cross-sections of the stackup "
                      f"({model.solves} solves, {_mask_words(board, layer)})")
+    if models is not None:
+        models[(EDGE, layer, layer)] = model
     return per_m * t.length_mm * 1e-3 * 1e12
 
 
@@ -419,10 +432,11 @@ def analyse(board: Board, ruleset: RuleSet, progress=None, accurate: bool = Fals
     names = [net.name for net in board.nets]
     classes = ruleset.classify(names)
     electrical = electrical_attributes(board, ruleset, classes)
-    couplings, layer_pairs, examined = find_couplings(board, ruleset, notes, progress, accurate)
+    models: dict = {}
+    couplings, layer_pairs, examined = find_couplings(board, ruleset, notes, progress, accurate, models)
     if progress is not None:
         progress("capacitance to ground and noise")
     c2g = net_capacitance_to_ground_pf(board, electrical, notes, accurate)
     net_pairs = aggregate_net_pairs(board, couplings, electrical, c2g)
     return Analysis(board, ruleset, couplings, net_pairs, electrical, c2g, classes, notes,
-                    layer_pairs, examined, "accurate" if accurate else "fast")
+                    layer_pairs, examined, "accurate" if accurate else "fast", models)

@@ -60,6 +60,9 @@ def _parser() -> argparse.ArgumentParser:
                        help="also write one overlay per layer group with findings into DIR (created if missing)")
         p.add_argument("--html", metavar="FILE", help="also write the self-contained HTML sign-off report")
         p.add_argument("--junit", metavar="FILE", help="also write JUnit XML (one test case per rule)")
+        p.add_argument("--what-if", action="store_true",
+                       help="for budget findings, also work out the extra spacing that would meet the budget "
+                            "(solves wider tables; the fraction of today's coupling is always given)")
         p.add_argument("--accurate", action="store_true",
                        help="solve every distinct coupled cross-section directly instead of interpolating "
                             "field-solved tables (slower; the report says which mode was used)")
@@ -146,9 +149,10 @@ def _check(board_path: str, args: argparse.Namespace) -> int:
             def progress(what: str, done: int, total: int) -> None:
                 bar.update(task, description=what, completed=done, total=total)
 
-            result = check_board(board, ruleset, progress=progress, accurate=args.accurate)
+            result = check_board(board, ruleset, progress=progress, accurate=args.accurate,
+                                     what_if=args.what_if)
     else:
-        result = check_board(board, ruleset, accurate=args.accurate)
+        result = check_board(board, ruleset, accurate=args.accurate, what_if=args.what_if)
     result.fail_on = args.fail_on
     result.review = build_review(result.findings, waivers, baseline, on=day)
 

@@ -50,6 +50,8 @@ class Finding:
     #: what would meet the limit, computed by the same model (budget rules):
     #: the fraction of today's C12 that meets it, and a sentence saying so
     keep_fraction: float | None = None
+    #: the extra lateral spacing (mm) of the coupled traces that meets it
+    extra_spacing_mm: float | None = None
     #: noise budgets: which model gave the number (lumped, small-r, transmission-line)
     noise_model: str | None = None
     suggestion: str | None = None
@@ -65,7 +67,8 @@ class Finding:
         d["layers"] = list(self.layers)
         d["bbox"] = [round(v, 4) for v in self.bbox]
         d["at"] = [round(v, 4) for v in self.at]
-        for key in ("value", "limit", "excess", "length_mm", "area_mm2", "c12_pf", "noise_mv", "keep_fraction"):
+        for key in ("value", "limit", "excess", "length_mm", "area_mm2", "c12_pf", "noise_mv", "keep_fraction",
+                    "extra_spacing_mm"):
             if d[key] is not None:
                 d[key] = _round_sig(d[key])
         return d

@@ -53,7 +53,8 @@ def run_checks(analysis: Analysis, progress=None) -> list[Finding]:
     return sort_findings(findings)
 
 
-def check_board(board: Board, ruleset: RuleSet, progress=None, accurate: bool = False) -> Result:
+def check_board(board: Board, ruleset: RuleSet, progress=None, accurate: bool = False,
+                what_if: bool = False) -> Result:
     """Analyse ``board`` and apply ``ruleset``. ``progress(description,
     done, total)``, if given, is called before each step of the work;
     ``accurate`` solves every distinct cross-section directly instead of
@@ -68,5 +69,6 @@ def check_board(board: Board, ruleset: RuleSet, progress=None, accurate: bool = 
             progress(description, next(done, total), total)
 
     analysis = analyse(board, ruleset, step, accurate)
+    analysis.what_if = what_if
     findings = run_checks(analysis, step)
     return Result(analysis, findings, time.perf_counter() - start)

@@ -263,3 +263,21 @@ def test_electrically_long_run_uses_transmission_line_model(tmp_path):
     xt = transmission_line_crosstalk(m, 0.040, 100e-12, 1.0)
     assert f.value == pytest.approx(max(xt.next_v, xt.fext_v) * 1e3, rel=1e-6, abs=0)
     assert "NEXT" in f.message and "FEXT" in f.message
+
+
+def test_spacing_what_if_meets_the_budget_when_applied(tmp_path):
+    """Move the victim by the suggested extra spacing: the new board's C12 meets the budget."""
+    b = board([track("TOP", "CLK", [[0, 0], [10, 0]]), track("TOP", "SENSE", [[0, 0.3], [10, 0.3]])])
+    probe = check_board(b, rules(tmp_path, "- {name: c, kind: capacitance-budget, max_c12: 1000 pF}\n"))
+    total = float(probe.analysis.net_pairs.c12_pf.sum())
+    budget = total / 2
+    r = rules(tmp_path, f"- {{name: c, kind: capacitance-budget, max_c12: {budget} pF}}\n")
+    assert check_board(b, r).findings[0].extra_spacing_mm is None  # only worked out when asked
+    (f,) = check_board(b, r, what_if=True).findings
+    assert f.extra_spacing_mm is not None and f.extra_spacing_mm > 0
+    y = 0.3 + f.extra_spacing_mm
+    moved = board([track("TOP", "CLK", [[0, 0], [10, 0]]), track("TOP", "SENSE", [[0, y], [10, y]])])
+    after = check_board(moved, r)
+    # the two boards' tables have different gap knots: agreement to their interpolation error
+    # (<= 1.5 % between knots, docs/accuracy.md), here asserted at 3 %
+    assert float(after.analysis.net_pairs.c12_pf.sum()) == pytest.approx(budget, rel=0.03, abs=0)

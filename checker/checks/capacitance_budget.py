@@ -29,7 +29,7 @@ OPTIONS = {
 def check(rule, ctx):
     """Yield a finding per net pair whose total C12 exceeds ``max_c12``."""
     from .common import make_finding, run_place
-    from .whatif import shorten_text
+    from .whatif import SPACING_ANSWERS, extra_spacing_mm, shorten_text
 
     np_ = ctx.net_pairs
     c = ctx.couplings
@@ -37,6 +37,7 @@ def check(rule, ctx):
     applies, aggressor = ctx.orient(rule, np_.net_a, np_.net_b)
     over = np.flatnonzero(applies & (np_.c12_pf > limit_pf))
     longest = ctx.longest_run_mm(over)
+    answered = set(over[np.argsort(-np_.c12_pf[over], kind="stable")][:SPACING_ANSWERS].tolist())
     for k in over:
         rows = ctx.rows_of_pairs(k)
         worst = int(rows[np.argmax(c.c12_pf[rows])])
@@ -44,11 +45,13 @@ def check(rule, ctx):
         agg = int(aggressor[k])
         victim = int(np_.net_b[k] if np_.net_a[k] == agg else np_.net_a[k])
         total = float(np_.c12_pf[k])
+        extra = extra_spacing_mm(ctx, rows, limit_pf) if ctx.what_if and int(k) in answered else False
         yield make_finding(
             ctx, rule, aggressor=agg, victim=victim, layers=layers, bbox=bbox, at=at,
             value=total, limit=limit_pf, unit="pF", excess=total / limit_pf,
             message=(f"{ctx.net_name(agg)} and {ctx.net_name(victim)} couple through {total:.3g} pF "
                      f"on {'/'.join(layers)} (budget {limit_pf:.3g} pF)"),
             length_mm=float(c.length_mm[rows].sum()), area_mm2=float(c.overlap_mm2[rows].sum()),
-            c12_pf=total, keep_fraction=limit_pf / total, suggestion=shorten_text(limit_pf / total, float(longest[k]), total),
+            c12_pf=total, keep_fraction=limit_pf / total, extra_spacing_mm=extra if extra is not False else None,
+            suggestion=shorten_text(limit_pf / total, float(longest[k]), total, extra),
         )

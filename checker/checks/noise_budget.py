@@ -41,7 +41,7 @@ def check(rule, ctx):
     """Yield a finding per victim whose summed coupled noise exceeds ``max_noise``."""
     from .common import make_finding, run_place
     from ..longruns import long_run_crosstalk
-    from .whatif import shorten_text
+    from .whatif import SPACING_ANSWERS, extra_spacing_mm, shorten_text
 
     np_ = ctx.net_pairs
     c = ctx.couplings
@@ -67,6 +67,7 @@ def check(rule, ctx):
     failing = np.flatnonzero(totals > limit)
     scales = _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, limit, small_r)
     longest = ctx.longest_run_mm(pair[np.isin(victims, failing)])
+    answered = set(failing[np.argsort(-totals[failing], kind="stable")][:SPACING_ANSWERS].tolist())
     for victim in failing:
         mine = by_victim[starts[victim]:starts[victim + 1]]
         total = float(totals[victim])
@@ -76,6 +77,8 @@ def check(rule, ctx):
         worst = int(rows[np.argmax(c.c12_pf[rows])])
         bbox, at, layers = run_place(ctx, rows, worst)
         scale = float(scales[victim])
+        c12_now = float(np_.c12_pf[pair[mine]].sum())
+        extra = extra_spacing_mm(ctx, rows, scale * c12_now) if ctx.what_if and int(victim) in answered else False
         others = len(order) - 1
         names = ctx.net_name(main) + (f" and {others} more" if others else "")
         how = "small-R limit" if small_r else "lumped model"
@@ -92,8 +95,8 @@ def check(rule, ctx):
                      f"({how}; budget {limit * 1e3:.3g} mV)"),
             c12_pf=float(np_.c12_pf[pair[mine]].sum()), noise_mv=total * 1e3,
             noise_model="transmission-line" if long_here else ("small-r" if small_r else "lumped"),
-            keep_fraction=scale, suggestion=shorten_text(scale, float(longest[pair[mine]].max()),
-                                                          float(np_.c12_pf[pair[mine]].sum())),
+            keep_fraction=scale, extra_spacing_mm=extra if extra is not False else None,
+            suggestion=shorten_text(scale, float(longest[pair[mine]].max()), c12_now, extra),
         )
 
 
