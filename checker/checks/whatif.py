@@ -36,29 +36,27 @@ def extra_spacing_mm(ctx, rows: np.ndarray, target_pf: float) -> float | None:
     same C12' models at the wider spacing (bisection); crossings keep their
     value (moving traces apart does not shrink a crossing). ``None`` when
     even ``MAX_EXTRA_SPACING_MM`` does not reach the target."""
-    from ..analysis import BROADSIDE, EDGE
+    from ..analysis import BROADSIDE
 
     c = ctx.couplings
     p = ctx.board.pieces
     fixed = float(c.c12_pf[rows][~c.parallel[rows]].sum())
+    parallel = rows[c.parallel[rows]]
+    row_group = ctx.net_pairs.row_group[parallel]  # the (kind, layer, layer) group of each row
     groups = []
-    for kind, lo, hi in {(int(k), int(a), int(b)) for k, a, b in
-                         zip(c.kind[rows], np.minimum(c.layer_a[rows], c.layer_b[rows]),
-                             np.maximum(c.layer_a[rows], c.layer_b[rows]))}:
-        mine = rows[c.parallel[rows] & (c.kind[rows] == kind)
-                    & (np.minimum(c.layer_a[rows], c.layer_b[rows]) == lo)
-                    & (np.maximum(c.layer_a[rows], c.layer_b[rows]) == hi)]
-        if mine.size == 0 or (kind, lo, hi) not in ctx.models:
+    for g in np.unique(row_group).tolist():
+        kind, lo, hi = ctx.net_pairs.layer_groups[g]
+        if (kind, lo, hi) not in ctx.models:
             continue
-        model = _wide_model(ctx, kind, lo, hi)
+        mine = parallel[row_group == g]
         up = np.where(p.layer[c.a[mine]] == lo, c.a[mine], c.b[mine])  # piece on the upper layer first
         dn = np.where(p.layer[c.a[mine]] == lo, c.b[mine], c.a[mine])
         spacing = np.abs(c.offset_mm[mine]) if kind == BROADSIDE else np.maximum(c.gap_mm[mine], 0.01)
-        groups.append((model, kind == EDGE, p.width[up], p.width[dn], spacing, c.length_mm[mine]))
+        groups.append((_wide_model(ctx, kind, lo, hi), p.width[up], p.width[dn], spacing, c.length_mm[mine]))
 
     def total(extra: float) -> float:
         out = fixed
-        for model, edge, wa, wb, spacing, length in groups:
+        for model, wa, wb, spacing, length in groups:
             per_m = model.c12_per_m(wa, wb, spacing + extra)
             out += float(np.sum(per_m * length)) * 1e-3 * 1e12
         return out
@@ -91,8 +89,7 @@ def _wide_model(ctx, kind: int, lo: int, hi: int):
     key = ("what-if", kind, lo, hi)
     if key not in ctx.models:
         c, p = ctx.couplings, ctx.board.pieces
-        rows = np.flatnonzero((c.kind == kind) & (np.minimum(c.layer_a, c.layer_b) == lo)
-                              & (np.maximum(c.layer_a, c.layer_b) == hi))
+        rows = np.flatnonzero(ctx.net_pairs.row_group == ctx.net_pairs.layer_groups.index((kind, lo, hi)))
         widths_lo = np.where(p.layer[c.a[rows]] == lo, p.width[c.a[rows]], p.width[c.b[rows]])
         widths_hi = np.where(p.layer[c.a[rows]] == lo, p.width[c.b[rows]], p.width[c.a[rows]])
         if kind == BROADSIDE:
