@@ -52,3 +52,18 @@ class WaiverError(InputError):
 
 class BaselineError(InputError):
     """A baseline report is missing or is not a couplint JSON report."""
+
+
+class FabError(BoardError):
+    """A fabrication export (Gerber, Excellon, IPC-D-356, Gerber job file,
+    stackup YAML) is missing, malformed or inconsistent.
+
+    ``place`` is ``line N`` for the line-oriented formats (the line the bad
+    command starts on) or a JSON path for the job file.
+    """
+
+    def __init__(self, file: str, line: int | None, message: str, place: str | None = None) -> None:
+        self.line = line
+        if place is None and line is not None:
+            place = f"line {line}"
+        super().__init__(file, place, message)
