@@ -251,7 +251,7 @@ def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=No
             c12 = _edge_c12(board, t, u, notes, accurate, models)
             tables.append((EDGE, t, c12))
     examined = sum(t.candidates for _, t, _ in tables)
-    couplings = _assemble(board, tables)
+    couplings = _assemble(board, tables, ruleset.pairs)
     return couplings, layer_pairs, examined
 
 
@@ -318,9 +318,14 @@ def _mask_words(board: Board, layer: int) -> str:
     return "under solder mask" if mask is not None else "bare outer layer, no solder mask given"
 
 
-def _assemble(board: Board, tables: list[tuple[int, PairTable, np.ndarray]]) -> Couplings:
+def _assemble(board: Board, tables: list[tuple[int, PairTable, np.ndarray]],
+              pairs: tuple[tuple[str, str], ...] = ()) -> Couplings:
     net = board.pieces.net
     partner = board.partner_of()
+    index = board.net_index()
+    for p, n in pairs:  # pairs the rule file declares (a fabrication package cannot say)
+        if p in index and n in index:
+            partner[index[p]], partner[index[n]] = index[n], index[p]
     cols: dict[str, list[np.ndarray]] = {name: [] for name in Couplings.__dataclass_fields__}
     for kind, t, c12 in tables:
         n = len(t)
@@ -428,7 +433,7 @@ def analyse(board: Board, ruleset: RuleSet, progress=None, accurate: bool = Fals
     """Run the whole physical analysis of ``board`` under ``ruleset``'s
     settings; ``progress(description)``, if given, is called before each of
     the :func:`analysis_steps` steps."""
-    notes: list[str] = []
+    notes: list[str] = list(board.notes)  # what the reader had to say about the input comes first
     names = [net.name for net in board.nets]
     classes = ruleset.classify(names)
     electrical = electrical_attributes(board, ruleset, classes)

@@ -180,7 +180,9 @@ class Board:
 
     ``sources[k]`` says where source ``k`` of the pieces came from, in the
     input's own terms (for JSON: ``tracks[3]`` or ``arcs[0]``), so a finding
-    can point back into the file.
+    can point back into the file. ``notes``: what the reader had to say
+    about the input (derived net names, unconnected copper, assumed layer
+    roles); reports show them with the analysis notes.
     """
 
     name: str
@@ -192,6 +194,7 @@ class Board:
     regions: tuple[Region, ...] = ()
     vias: Vias = field(default_factory=Vias.empty)
     outline: shapely.Polygon | None = None
+    notes: tuple[str, ...] = ()
 
     def net_index(self) -> dict[str, int]:
         return {net.name: i for i, net in enumerate(self.nets)}

@@ -60,7 +60,8 @@ ANY = "any"
 
 SEVERITIES: tuple[str, ...] = ("error", "warning")
 
-TOP_LEVEL_KEYS: tuple[str, ...] = ("version", "extends", "settings", "net_classes", "rules", "disable")
+TOP_LEVEL_KEYS: tuple[str, ...] = ("version", "extends", "settings", "net_classes", "differential_pairs", "rules",
+                                   "disable")
 
 #: Keys every rule may have besides the options of its kind.
 COMMON_RULE_KEYS: tuple[str, ...] = ("name", "kind", "aggressor", "victim", "severity", "description")
@@ -221,6 +222,7 @@ class RuleSet:
     settings: Settings
     classes: tuple[NetClass, ...]
     rules: tuple[Rule, ...]
+    pairs: tuple[tuple[str, str], ...] = ()
 
     def classify(self, net_names: Sequence[str]) -> list[tuple[str, ...]]:
         """Per net, the names of all classes it matches, in file order."""
@@ -235,7 +237,7 @@ class RuleSet:
 
     def to_dict(self) -> dict[str, Any]:
         """The resolved set as plain JSON-able data (internal units)."""
-        return _canonical(self.settings, self.classes, self.rules)
+        return _canonical(self.settings, self.classes, self.rules, self.pairs)
 
 
 # --------------------------------------------------------------------------
@@ -256,8 +258,9 @@ def load_ruleset(path: str | os.PathLike[str]) -> RuleSet:
     })
     classes = tuple(resolved.classes.values())
     rules = tuple(resolved.rules.values())
-    digest = hashlib.sha256(_canonical_json(settings, classes, rules).encode("utf-8")).hexdigest()
-    return RuleSet(path=file, sha256=digest, settings=settings, classes=classes, rules=rules)
+    pairs = tuple(resolved.pairs)
+    digest = hashlib.sha256(_canonical_json(settings, classes, rules, pairs).encode("utf-8")).hexdigest()
+    return RuleSet(path=file, sha256=digest, settings=settings, classes=classes, rules=rules, pairs=pairs)
 
 
 def default_ruleset() -> RuleSet:
@@ -331,6 +334,7 @@ class _Resolved:
     settings: dict[str, Any] = field(default_factory=dict)
     classes: dict[str, NetClass] = field(default_factory=dict)
     rules: dict[str, Rule] = field(default_factory=dict)
+    pairs: list[tuple[str, str]] = field(default_factory=list)
 
 
 @dataclass
@@ -358,6 +362,7 @@ def _load_file(path: pathlib.Path, file: str, chain: tuple[tuple[pathlib.Path, s
     own_settings = _parse_settings(data.get("settings", {}), file)
     own_classes = _parse_classes(data.get("net_classes", {}), file)
     own_rules = _parse_rules(data.get("rules", []), file)
+    own_pairs = _parse_pairs(data.get("differential_pairs", []), file)
 
     chain = (*chain, (path.resolve(), file))
     if "extends" in data:
@@ -377,6 +382,7 @@ def _load_file(path: pathlib.Path, file: str, chain: tuple[tuple[pathlib.Path, s
         settings={**base.settings, **own_settings},
         classes={**base.classes, **own_classes},
         rules={n: r for n, r in base.rules.items() if n not in disabled},
+        pairs=_merge_pairs(base.pairs, own_pairs, file),
     )
     for own in own_rules:
         merged.rules[own.rule.name] = own.rule
@@ -404,6 +410,35 @@ def _extends_target(value: Any, path: pathlib.Path, file: str) -> tuple[pathlib.
         reason = "is not a file" if target.exists() else "no such file"
         raise RuleError(file, "extends", f"{value!r}: {reason} (looked for {target_file}, relative to this file)")
     return target, target_file
+
+
+def _parse_pairs(value: Any, file: str) -> list[tuple[str, str]]:
+    """``differential_pairs: [[USB_DP, USB_DN], ...]``: nets that form a
+    declared differential pair, exempt from each other's checks (as a pair
+    declared in a board JSON file is)."""
+    if not isinstance(value, list):
+        raise RuleError(file, "differential_pairs", f"expected a list of [net, net] pairs, got {_describe(value)}")
+    pairs: list[tuple[str, str]] = []
+    seen: dict[str, int] = {}
+    for i, pair in enumerate(value):
+        place = f"differential_pairs[{i}]"
+        if not (isinstance(pair, list) and len(pair) == 2 and all(isinstance(n, str) and n.strip() for n in pair)):
+            raise RuleError(file, place, f"expected two net names, [positive, negative], got {_describe(pair)}")
+        a, b = pair
+        if a == b:
+            raise RuleError(file, place, f"a net cannot pair with itself ({a!r})")
+        for name in (a, b):
+            if name in seen:
+                raise RuleError(file, place, f"net {name!r} is already in differential_pairs[{seen[name]}]")
+            seen[name] = i
+        pairs.append((a, b))
+    return pairs
+
+
+def _merge_pairs(base: list[tuple[str, str]], own: list[tuple[str, str]], file: str) -> list[tuple[str, str]]:
+    """Inherited pairs plus this file's; a net paired differently here replaces the inherited pair."""
+    mine = {n for pair in own for n in pair}
+    return [p for p in base if not (set(p) & mine)] + own
 
 
 def _parse_disable(data: dict[str, Any], base: _Resolved, own_rules: list[_OwnRule], file: str) -> set[str]:
@@ -809,8 +844,9 @@ def _fmt(number: float, kind: str) -> str:
     return f"{number / UNITS[kind][unit]:g} {unit}".strip()
 
 
-def _canonical(settings: Settings, classes: Sequence[NetClass], rules: Sequence[Rule]) -> dict[str, Any]:
-    return {
+def _canonical(settings: Settings, classes: Sequence[NetClass], rules: Sequence[Rule],
+               pairs: Sequence[tuple[str, str]] = ()) -> dict[str, Any]:
+    out = {
         "version": SUPPORTED_VERSION,
         "settings": asdict(settings),
         "net_classes": [
@@ -840,8 +876,12 @@ def _canonical(settings: Settings, classes: Sequence[NetClass], rules: Sequence[
             for r in rules
         ],
     }
+    if pairs:  # only when given, so the hash of a set without pairs is unchanged
+        out["differential_pairs"] = [list(p) for p in pairs]
+    return out
 
 
-def _canonical_json(settings: Settings, classes: Sequence[NetClass], rules: Sequence[Rule]) -> str:
-    return json.dumps(_canonical(settings, classes, rules), sort_keys=True, separators=(",", ":"),
+def _canonical_json(settings: Settings, classes: Sequence[NetClass], rules: Sequence[Rule],
+                    pairs: Sequence[tuple[str, str]] = ()) -> str:
+    return json.dumps(_canonical(settings, classes, rules, pairs), sort_keys=True, separators=(",", ":"),
                       allow_nan=False, ensure_ascii=True)
