@@ -104,6 +104,27 @@ class NetPairs:
         return int(self.net_a.shape[0])
 
 
+@dataclass(frozen=True)
+class VictimNoise:
+    """One victim's coupled noise under one noise-budget rule, passing or not:
+    the summed noise (mV), the budget (mV), which model gave it
+    (``lumped``, ``small-r`` or ``transmission-line`` when any of its
+    aggressors' runs is electrically long), the worst aggressor and how many
+    aggressors contribute."""
+
+    rule: str
+    victim: str
+    noise_mv: float
+    budget_mv: float
+    model: str
+    worst_aggressor: str
+    aggressors: int
+
+    @property
+    def passes(self) -> bool:
+        return self.noise_mv <= self.budget_mv
+
+
 @dataclass
 class Analysis:
     """Everything the checks and the reports read about one board."""
@@ -127,6 +148,9 @@ class Analysis:
     #: work out the extra-spacing what-if answers (``--what-if``): it solves
     #: wider tables, so it is off by default
     what_if: bool = False
+    #: every victim each noise-budget rule looked at, passing or not (the
+    #: rule fills it; the reports list it per victim)
+    victim_noise: list[VictimNoise] = field(default_factory=list)
     _pair_groups: tuple[np.ndarray, np.ndarray] | None = field(default=None, repr=False)
 
     # --- helpers the checks share -------------------------------------

@@ -281,3 +281,42 @@ def test_spacing_what_if_meets_the_budget_when_applied(tmp_path):
     # the two boards' tables have different gap knots: agreement to their interpolation error
     # (<= 1.5 % between knots, docs/accuracy.md), here asserted at 3 %
     assert float(after.analysis.net_pairs.c12_pf.sum()) == pytest.approx(budget, rel=0.03, abs=0)
+
+
+def test_every_victim_is_listed_with_its_model_passing_or_not(tmp_path):
+    """The per-victim noise table: a long, fast run (transmission-line model,
+    over budget) and a short slow one (lumped model, within budget) both appear,
+    each with the number the rule compared and the rule's budget."""
+    from checker.physics import crosstalk
+    from checker.physics.tline import line_matrices, same_layer_section, transmission_line_crosstalk
+
+    path = tmp_path / "two.yaml"
+    path.write_text(textwrap.dedent("""
+        version: 1
+        net_classes:
+          fast: {nets: ["CLK*"], swing: 1 V, rise_time: 100 ps}
+          slow: {nets: ["SLOW*"], swing: 1 V, frequency: 1 kHz}
+          quiet: {nets: ["SENSE*", "REF*"], resistance: 50 ohm}
+        rules:
+          - {name: n, kind: noise-budget, aggressor: [fast, slow], victim: quiet, max_noise: 1 mV}
+    """))
+    b = board([track("TOP", "CLK", [[0, 0], [40, 0]]), track("TOP", "SENSE", [[0, 0.3], [40, 0.3]]),
+               track("TOP", "SLOW", [[0, 20], [5, 20]]), track("TOP", "REF", [[0, 20.3], [5, 20.3]])])
+    result = check_board(b, load_ruleset(path))
+    rows = {v.victim: v for v in result.analysis.victim_noise}
+    assert set(rows) == {"SENSE", "REF"}
+    long, short = rows["SENSE"], rows["REF"]
+    assert (long.model, long.passes, long.worst_aggressor) == ("transmission-line", False, "CLK")
+    assert (short.model, short.passes, short.worst_aggressor) == ("lumped", True, "SLOW")
+    assert long.budget_mv == short.budget_mv == pytest.approx(1.0, rel=1e-12, abs=0)
+    # the numbers are those of the models, evaluated here independently
+    m = line_matrices(same_layer_section(b.stackup, 0, 0.15, 0.15, 0.15))
+    xt = transmission_line_crosstalk(m, 0.040, 100e-12, 1.0)
+    assert long.noise_mv == pytest.approx(max(xt.next_v, xt.fext_v) * 1e3, rel=1e-6, abs=0)
+    a = result.analysis
+    pair = [k for k in range(len(a.net_pairs)) if {a.net_name(int(a.net_pairs.net_a[k])),
+                                                    a.net_name(int(a.net_pairs.net_b[k]))} == {"SLOW", "REF"}]
+    c12 = float(a.net_pairs.c12_pf[pair[0]]) * 1e-12
+    c2g = float(a.c2g_pf[b.net_index()["REF"]]) * 1e-12
+    expected = crosstalk.lumped_noise_v(50.0, c12, c2g, 1.0, 1e3)
+    assert short.noise_mv == pytest.approx(float(expected) * 1e3, rel=1e-9, abs=0)

@@ -9,7 +9,8 @@ aggressor's longest run onto the victim is electrically long (longer than
 the near-end saturation length tr*v/2), the lumped model does not hold and
 the larger of the run's near-end and far-end crosstalk replaces it (see
 :mod:`checker.longruns`; matched terminations assumed). The finding says
-which model gave the number. Fails when
+which model gave the number; every victim the rule looked at, passing or
+not, is listed with its noise, budget and model in the reports. Fails when
 it exceeds ``max_noise``. Aggressor nets whose class gives no swing, and
 victims whose class gives no resistance, are skipped.
 
@@ -64,6 +65,7 @@ def check(rule, ctx):
     totals = np.bincount(victims, weights=noise, minlength=len(ctx.board.nets))
     by_victim = np.argsort(victims, kind="stable")
     starts = np.searchsorted(victims[by_victim], np.arange(len(ctx.board.nets) + 1))
+    _record_victims(ctx, rule, victims, aggressors, noise, totals, by_victim, starts, long_runs, limit, small_r)
     failing = np.flatnonzero(totals > limit)
     scales = _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, limit, small_r)
     longest = ctx.longest_run_mm(pair[np.isin(victims, failing)])
@@ -98,6 +100,21 @@ def check(rule, ctx):
             keep_fraction=scale, extra_spacing_mm=extra if extra is not False else None,
             suggestion=shorten_text(scale, float(longest[pair[mine]].max()), c12_now, extra),
         )
+
+
+def _record_victims(ctx, rule, victims, aggressors, noise, totals, by_victim, starts, long_runs, limit,
+                    small_r) -> None:
+    """Every victim this rule looked at, passing or not, with the model that
+    gave its number (``Analysis.victim_noise``; the reports list them)."""
+    from ..analysis import VictimNoise
+
+    plain = "small-r" if small_r else "lumped"
+    for victim in np.unique(victims).tolist():
+        mine = by_victim[starts[victim]:starts[victim + 1]]
+        worst = int(mine[np.argmax(noise[mine])])
+        model = "transmission-line" if any(int(i) in long_runs for i in mine.tolist()) else plain
+        ctx.victim_noise.append(VictimNoise(rule.name, ctx.net_name(victim), float(totals[victim]) * 1e3,
+                                            limit * 1e3, model, ctx.net_name(int(aggressors[worst])), len(mine)))
 
 
 def _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, limit, small_r) -> np.ndarray:

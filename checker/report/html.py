@@ -78,6 +78,7 @@ def render_html(result: Result, *, inputs: list[str], generated: str | None = No
         _identity(result, inputs, when),
         _rule_summary(result),
         _findings_index(ctx),
+        _victims(result),
         _net_pairs(result),
         _overlay(ctx),
         _cards(ctx),
@@ -465,6 +466,30 @@ def _bar(fraction: float, css: str, label: str) -> str:
     return (f'<svg class="bar" viewBox="0 0 {BAR_W} 10" width="{BAR_W}" height="10" role="img" '
             f'aria-label="{_e(label)}"><rect class="track" x="0" y="0" width="{BAR_W}" height="10"/>'
             f'<rect class="{css}" x="0" y="0" width="{width:.2f}" height="10"/></svg>')
+
+
+def _victims(result: Result) -> str:
+    """Every victim of every noise-budget rule, passing or not: its noise,
+    the budget and the model that gave the number."""
+    rows = sorted(result.analysis.victim_noise, key=lambda v: (v.rule, -v.noise_mv, v.victim))
+    if not rows:
+        return ""
+    out = ['<section id="victims">\n<h2>Noise per victim</h2>\n',
+           '<p class="fine">Each victim a noise-budget rule covers, passing or not: the noise all its '
+           "aggressors couple onto it (summed, worst case in phase), the rule's budget, and the model that "
+           "gave the number: the lumped capacitive model, its small-R limit, or near-/far-end "
+           "transmission-line crosstalk where a run is electrically long.</p>\n",
+           '<table class="grid">\n<thead><tr><th>Rule</th><th>Victim</th><th class="r">Noise</th>'
+           '<th class="r">Budget</th><th>Model</th><th>Worst aggressor</th><th>Verdict</th></tr></thead>\n'
+           "<tbody>\n"]
+    for v in rows:
+        more = f" and {v.aggressors - 1} more" if v.aggressors > 1 else ""
+        verdict = "within budget" if v.passes else "over budget"
+        out.append(f"<tr><td>{_e(v.rule)}</td><td class=\"nets\">{_e(v.victim)}</td>"
+                   f'<td class="r">{_e(_num(v.noise_mv, 3))} mV</td><td class="r">{_e(_num(v.budget_mv, 3))} mV</td>'
+                   f"<td>{_e(v.model)}</td><td>{_e(v.worst_aggressor + more)}</td><td>{verdict}</td></tr>\n")
+    out.append("</tbody>\n</table>\n</section>\n")
+    return "".join(out)
 
 
 def _net_pairs(result: Result) -> str:

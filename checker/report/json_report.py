@@ -114,6 +114,19 @@ def net_pair_lines(result: Result, chunk: int = 50_000) -> Iterator[list[str]]:
         ]
 
 
+def victim_noise_rows(result: Result) -> list[dict]:
+    """Per noise-budget rule and victim, passing or not: noise, budget and the
+    model that gave the number, worst first within each rule."""
+    rows = sorted(result.analysis.victim_noise, key=lambda v: (v.rule, -v.noise_mv, v.victim))
+    return [{"rule": v.rule, "victim": v.victim, "noise_mv": _round6(v.noise_mv), "budget_mv": _round6(v.budget_mv),
+             "model": v.model, "passes": v.passes, "worst_aggressor": v.worst_aggressor,
+             "aggressors": v.aggressors} for v in rows]
+
+
+def _round6(value: float) -> float:
+    return float(f"{value:.6g}")
+
+
 def _group_name(a, group: tuple[int, int, int]) -> str:
     """``TOP/IN1`` for a broadside layer pair, ``IN1`` for edge coupling on one layer."""
     kind, lo, hi = group
@@ -174,6 +187,7 @@ def build_report(result: Result) -> dict:
         "layer_groups": by_layer_group(result),
         "findings": [finding_dict(result, f) for f in result.findings],
         "review": review_dict(result.review),
+        "victim_noise": victim_noise_rows(result),
         "net_pairs": _NET_PAIRS,
         "notes": sorted(set(a.notes)),
         "caution": CAUTION,

@@ -62,8 +62,9 @@ def render(result: Result, console: Console) -> None:
                 console.print(f"     waived: {_waiver_line(w)}", style="dim", highlight=False, markup=False)
     else:
         console.print(f"{title}: no findings", highlight=False)
+    _render_victims(result, console)
     for note in sorted(set(a.notes)):
-        console.print(f"[dim]note: {note}[/]", highlight=False)
+        console.print(f"[dim]note: {escape(note)}[/]", highlight=False)
     _render_review(result, console)
     s = summary(result)
     per_rule = ", ".join(f"{k} {v}" for k, v in s["findings_by_rule"].items())
@@ -80,6 +81,27 @@ def render(result: Result, console: Console) -> None:
     )
     console.print(f"[dim]{CAUTION}[/]", highlight=False)
     console.print(_verdict_line(result, s), highlight=False)
+
+
+#: victims listed per noise-budget rule on the terminal (all are in the JSON report)
+VICTIM_ROWS = 15
+
+
+def _render_victims(result: Result, console: Console) -> None:
+    """Noise per victim for each noise-budget rule, passing or not, worst first."""
+    rows = sorted(result.analysis.victim_noise, key=lambda v: (v.rule, -v.noise_mv, v.victim))
+    for rule in dict.fromkeys(v.rule for v in rows):
+        mine = [v for v in rows if v.rule == rule]
+        console.print(f"noise per victim ({rule}, budget {mine[0].budget_mv:.3g} mV):", highlight=False,
+                      markup=False)
+        for v in mine[:VICTIM_ROWS]:
+            mark = "ok  " if v.passes else "FAIL"
+            more = f" and {v.aggressors - 1} more" if v.aggressors > 1 else ""
+            console.print(f"  {mark} {v.victim}: {v.noise_mv:.3g} mV ({v.model}; from {v.worst_aggressor}{more})",
+                          highlight=False, markup=False)
+        if len(mine) > VICTIM_ROWS:
+            console.print(f"  ... {len(mine) - VICTIM_ROWS} more victims in the JSON report (victim_noise)",
+                          highlight=False, markup=False)
 
 
 def _waiver_line(w) -> str:
