@@ -31,11 +31,15 @@ def write_atomically(path: str | os.PathLike, emit: Callable[[TextIO], None]) ->
 
 
 def refuse_overwriting_inputs(out: str | os.PathLike, inputs: list[str | os.PathLike]) -> None:
-    """Raise :class:`UsageError` if ``out`` is one of ``inputs``."""
+    """Raise :class:`UsageError` if ``out`` is one of ``inputs``, or an
+    existing file inside an input folder (a fabrication package)."""
     target = os.path.realpath(out)
     for p in inputs:
-        if os.path.realpath(p) == target:
+        real = os.path.realpath(p)
+        if real == target:
             raise UsageError(f"{out}: an output path names an input file; refusing to overwrite it")
+        if os.path.isdir(real) and os.path.dirname(target) == real and os.path.exists(target):
+            raise UsageError(f"{out}: an output path names a file of the input folder {p}; refusing to overwrite it")
 
 
 def _mode_for(target: Path) -> int:

@@ -1,0 +1,303 @@
+"""Find the files of a fabrication package and say what each one is.
+
+A package is given as one folder, one ``.zip`` archive, or a list of files
+(folders and archives may not be mixed with loose files). Every file is
+*sniffed*: its first bytes decide its format, the file name only breaks a
+tie, so a renamed export still reads:
+
+* Gerber job file: JSON whose top level holds ``MaterialStackup``,
+  ``GeneralSpecs`` or ``FilesAttributes`` (``.gbrjob``);
+* Gerber: an ``%FS`` / ``%MO`` / ``%TF`` extended command or ``G04`` comment
+  among the first commands;
+* Excellon: an ``M48`` header;
+* IPC-D-356: fixed-column records (``P``, ``C``, ``317``, ``327``, ``999``);
+* anything else (a PDF, a readme, a pick-and-place list) is skipped and
+  named in a note.
+
+Which copper layer a Gerber file holds comes from its
+``TF.FileFunction,Copper,L<n>,...`` attribute. A file without that
+attribute is taken as copper layer *n* only when its name follows
+couplint's naming rule — the stem ends in ``-L<n>``, ``_L<n>`` or ``.L<n>``
+(``ctrl-board-L3.gbr``) — or when the user says so with
+``--layer FILE=L<n>``; it is never guessed from a vendor's file extension.
+"""
+
+from __future__ import annotations
+
+import io
+import os
+import re
+import zipfile
+from dataclasses import dataclass
+from pathlib import Path
+from typing import BinaryIO, Callable
+
+from ...errors import FabError, UsageError
+
+#: Largest file couplint reads from a package (bytes); a copper layer of a
+#: million draws is about 40 MB.
+MAX_MEMBER_BYTES = 1 << 30
+
+#: How much of a file's start is read to decide its format.
+SNIFF_BYTES = 1 << 16
+
+_NAMED_COPPER = re.compile(r"[-_.]L(\d{1,2})$", re.IGNORECASE)
+_NAMED_PROFILE = re.compile(r"[-_.]profile$", re.IGNORECASE)
+_FILE_FUNCTION = re.compile(rb"TF\.FileFunction,([^*%\r\n]*)")
+_GERBER_START = re.compile(rb"%(FS|MO|TF|TA|AD|AM)|G04|G0?1\*|D0?[123]\*")
+_IPC356_RECORD = re.compile(rb"^(P |C |317|327|367|378|389|999)", re.MULTILINE)
+
+
+@dataclass(frozen=True)
+class Member:
+    """One file of the package: ``name`` is what messages show (the path, or
+    ``archive.zip:member``), ``open()`` returns a binary stream."""
+
+    name: str
+    stem: str
+    size: int
+    open: Callable[[], BinaryIO]
+
+
+@dataclass(frozen=True)
+class Sorted:
+    """The package's files by format. ``copper`` maps a Gerber layer number
+    (1 = top) to its file and the role words its ``TF.FileFunction`` or the
+    user gave (``None`` if neither); ``profile`` is the board outline file."""
+
+    name: str
+    path: str
+    copper: dict[int, tuple[Member, str | None]]
+    profile: Member | None
+    drills: list[Member]
+    jobs: list[Member]
+    netlists: list[Member]
+    skipped: list[str]
+
+
+def is_package(paths: list[str]) -> bool:
+    """Whether ``paths`` name a fabrication package rather than one board
+    JSON file: a folder, an archive, or files that are not ``.json``."""
+    if len(paths) != 1:
+        return True
+    p = paths[0]
+    return os.path.isdir(p) or p.lower().endswith(".zip") or not p.lower().endswith(".json")
+
+
+def collect(paths: list[str], layer_overrides: dict[str, str] | None = None) -> Sorted:
+    """List and sort the package's files. ``layer_overrides`` maps a file
+    name (as given, or its base name) to ``L<n>[,role]``, ``profile`` or
+    ``ignore``."""
+    members, name, where = _members(paths)
+    overrides = dict(layer_overrides or {})
+    used: set[str] = set()
+    copper: dict[int, tuple[Member, str | None]] = {}
+    profile: Member | None = None
+    drills: list[Member] = []
+    jobs: list[Member] = []
+    netlists: list[Member] = []
+    skipped: list[str] = []
+    for m in members:
+        override = _override_for(m, overrides, used)
+        if override == "ignore":
+            skipped.append(f"{m.name} (--layer ignore)")
+            continue
+        head = _head(m)
+        kind = _kind(head, m.stem)
+        if override is not None and kind not in ("gerber", None):
+            raise UsageError(f"--layer {m.name}={override}: the file is {_KIND_WORDS[kind]}, not a Gerber layer")
+        if kind == "job":
+            jobs.append(m)
+        elif kind == "drill":
+            drills.append(m)
+        elif kind == "netlist":
+            netlists.append(m)
+        elif kind == "gerber" or override is not None:
+            layer, role, is_profile = _gerber_identity(m, head, override)
+            if is_profile:
+                if profile is not None:
+                    raise FabError(m.name, None, f"a second board outline (Profile) file; the first is {profile.name}")
+                profile = m
+            elif layer is None:
+                skipped.append(f"{m.name} ({_gerber_function_words(head)})")
+            else:
+                if layer in copper:
+                    raise FabError(m.name, None, f"copper layer L{layer} again: {copper[layer][0].name} holds it too")
+                copper[layer] = (m, role)
+        else:
+            skipped.append(f"{m.name} (not a Gerber, Excellon, IPC-D-356 or Gerber job file)")
+    unknown = sorted(set(overrides) - used)
+    if unknown:
+        raise UsageError(f"--layer {unknown[0]}=...: no file of that name in the package")
+    return Sorted(name, where, copper, profile, drills, jobs, netlists, skipped)
+
+
+_KIND_WORDS = {"job": "a Gerber job file", "drill": "an Excellon drill file", "netlist": "an IPC-D-356 netlist",
+               "gerber": "a Gerber file", None: "not a known format"}
+
+
+def parse_layer_override(text: str) -> tuple[str, str]:
+    """``FILE=L3``, ``FILE=L3,plane``, ``FILE=profile`` or ``FILE=ignore``
+    -> (file, value); a ``UsageError`` for anything else."""
+    file, sep, value = text.rpartition("=")
+    value = value.strip()
+    ok = re.fullmatch(r"L\d{1,2}(,(signal|plane|mixed))?|profile|ignore", value, re.IGNORECASE)
+    if not sep or not file or not ok:
+        raise UsageError(f"--layer {text}: give FILE=L<n>, FILE=L<n>,signal|plane|mixed, FILE=profile or FILE=ignore")
+    return file, value.lower() if not value.upper().startswith("L") else "L" + value[1:].lower()
+
+
+# --------------------------------------------------------------------------- listing
+
+
+def _members(paths: list[str]) -> tuple[list[Member], str, str]:
+    if not paths:
+        raise UsageError("no input given")
+    if len(paths) == 1 and os.path.isdir(paths[0]):
+        folder = Path(paths[0])
+        files = sorted(p for p in folder.iterdir() if p.is_file() and not p.name.startswith("."))
+        if not files:
+            raise FabError(str(folder), None, "the folder holds no files")
+        return [_file_member(p) for p in files], folder.resolve().name, str(folder)
+    if len(paths) == 1 and paths[0].lower().endswith(".zip"):
+        return _zip_members(paths[0]), Path(paths[0]).stem, paths[0]
+    members = []
+    for p in paths:
+        if os.path.isdir(p) or p.lower().endswith(".zip"):
+            raise UsageError(f"{p}: give one folder, one .zip, or a list of files, not a mix")
+        if not os.path.exists(p):
+            raise FabError(p, None, "no such file")
+        members.append(_file_member(Path(p)))
+    first = Path(paths[0])
+    return members, first.parent.resolve().name or first.stem, str(first.parent)
+
+
+def _file_member(p: Path) -> Member:
+    try:
+        size = p.stat().st_size
+    except OSError as exc:
+        raise FabError(str(p), None, f"cannot read: {exc.strerror or exc}") from None
+
+    def opener(p: Path = p) -> BinaryIO:
+        try:
+            return open(p, "rb")
+        except OSError as exc:
+            raise FabError(str(p), None, f"cannot read: {exc.strerror or exc}") from None
+
+    return Member(str(p), _stem(p.name), size, opener)
+
+
+def _zip_members(path: str) -> list[Member]:
+    try:
+        archive = zipfile.ZipFile(path)
+        infos = [i for i in archive.infolist() if not i.is_dir() and not Path(i.filename).name.startswith(".")]
+    except FileNotFoundError:
+        raise FabError(path, None, "no such file") from None
+    except (OSError, zipfile.BadZipFile, ValueError) as exc:
+        raise FabError(path, None, f"not a readable .zip archive: {exc}") from None
+    if not infos:
+        raise FabError(path, None, "the archive holds no files")
+    members = []
+    for info in sorted(infos, key=lambda i: i.filename):
+        name = f"{path}:{info.filename}"
+
+        def opener(info: zipfile.ZipInfo = info, name: str = name) -> BinaryIO:
+            try:
+                return archive.open(info)
+            except (OSError, zipfile.BadZipFile, RuntimeError, NotImplementedError, ValueError) as exc:
+                raise FabError(name, None, f"cannot extract from the archive: {exc}") from None
+
+        members.append(Member(name, _stem(Path(info.filename).name), info.file_size, opener))
+    return members
+
+
+def _stem(filename: str) -> str:
+    return filename.rsplit(".", 1)[0] if "." in filename.lstrip(".") else filename
+
+
+def _head(m: Member) -> bytes:
+    if m.size > MAX_MEMBER_BYTES:
+        raise FabError(m.name, None, f"the file is {m.size / 2**30:.1f} GiB; couplint reads files of up to "
+                                     f"{MAX_MEMBER_BYTES >> 30} GiB")
+    stream = m.open()
+    try:
+        return stream.read(SNIFF_BYTES)
+    except (OSError, zipfile.BadZipFile, EOFError, ValueError) as exc:
+        raise FabError(m.name, None, f"cannot read: {exc}") from None
+    finally:
+        stream.close()
+
+
+def _override_for(m: Member, overrides: dict[str, str], used: set[str]) -> str | None:
+    for key in (m.name, m.name.rsplit(":", 1)[-1], Path(m.name.rsplit(":", 1)[-1]).name):
+        if key in overrides:
+            used.add(key)
+            return overrides[key]
+    return None
+
+
+# --------------------------------------------------------------------------- sniffing
+
+
+def _kind(head: bytes, stem: str) -> str | None:
+    text = head.lstrip(b"\xef\xbb\xbf \t\r\n")
+    if text.startswith(b"{"):
+        keys = (b'"MaterialStackup"', b'"GeneralSpecs"', b'"FilesAttributes"')
+        return "job" if any(k in head for k in keys) else None
+    lines = [ln.strip() for ln in text.splitlines()[:50]]
+    body = [ln for ln in lines if ln and not ln.startswith(b";")]
+    if body and body[0].startswith(b"M48"):
+        return "drill"
+    if _GERBER_START.search(text[:4096]):
+        return "gerber"
+    if _IPC356_RECORD.search(text[:4096]) and any(ln.startswith((b"317", b"327", b"999")) for ln in lines):
+        return "netlist"
+    return None
+
+
+def _gerber_identity(m: Member, head: bytes, override: str | None) -> tuple[int | None, str | None, bool]:
+    """(copper layer number or None, role or None, is the profile)."""
+    if override is not None:
+        if override == "profile":
+            return None, None, True
+        number, _, role = override[1:].partition(",")
+        return int(number), role or None, False
+    found = _FILE_FUNCTION.search(head)
+    if found is not None:
+        fields = [f.strip() for f in found.group(1).decode("ascii", "replace").split(",")]
+        if fields[0] == "Copper":
+            if len(fields) < 3 or not re.fullmatch(r"L\d+", fields[1]):
+                raise FabError(m.name, _line_of(head, found.start()),
+                               f"TF.FileFunction,{','.join(fields)}: a copper layer needs Copper,L<n>,Top|Inr|Bot")
+            role = fields[3].lower() if len(fields) > 3 and fields[3] in ("Plane", "Signal", "Mixed") else None
+            return int(fields[1][1:]), role, False
+        if fields[0] == "Profile":
+            return None, None, True
+        return None, None, False
+    named = _NAMED_COPPER.search(m.stem)
+    if named is not None:
+        return int(named.group(1)), None, False
+    if _NAMED_PROFILE.search(m.stem):
+        return None, None, True
+    return None, None, False
+
+
+def _gerber_function_words(head: bytes) -> str:
+    found = _FILE_FUNCTION.search(head)
+    if found is not None:
+        return f"TF.FileFunction {found.group(1).decode('ascii', 'replace')}: not copper"
+    return ("a Gerber file without TF.FileFunction whose name does not follow the copper naming rule "
+            "(<name>-L<n>.gbr); if it is copper, name it with --layer FILE=L<n>")
+
+
+def _line_of(head: bytes, offset: int) -> int:
+    return head.count(b"\n", 0, offset) + 1
+
+
+def read_bytes_member(m: Member) -> io.BytesIO:
+    """The whole member in memory (small files: job files, netlists)."""
+    stream = m.open()
+    try:
+        return io.BytesIO(stream.read())
+    finally:
+        stream.close()

@@ -1,0 +1,115 @@
+"""Finding and sorting the files of a fabrication package
+(checker.readers.fab.package): formats are sniffed from content, copper
+layers identified by TF.FileFunction (Gerber Layer Format Specification,
+section 5.6.3 "FileFunction", from memory), by couplint's own naming rule
+(docs/fab-package.md), or by --layer; never guessed."""
+
+from __future__ import annotations
+
+import zipfile
+
+import pytest
+
+from checker.errors import FabError, UsageError
+from checker.readers.fab.package import collect, is_package, parse_layer_override
+
+COPPER = b"%TF.FileFunction,Copper,L{n},{side},Signal*%\n%FSLAX46Y46*%\n%MOMM*%\nM02*\n"
+SOLDERMASK = b"%TF.FileFunction,Soldermask,Top*%\n%FSLAX46Y46*%\n%MOMM*%\nM02*\n"
+PROFILE = b"%TF.FileFunction,Profile,NP*%\n%FSLAX46Y46*%\n%MOMM*%\nM02*\n"
+BARE = b"%FSLAX46Y46*%\n%MOMM*%\nM02*\n"
+DRILL = b"M48\nMETRIC\nT01C0.300\n%\nT01\nX1.0Y1.0\nM30\n"
+JOB = b'{"Header": {}, "GeneralSpecs": {"LayerNumber": 2}, "MaterialStackup": []}'
+NETLIST = b"C  invented test netlist\nP  UNITS CUST 1\n317GND    VIA   -     D0300PA00X 001000Y 001000\n999\n"
+
+
+def package(tmp_path, files: dict[str, bytes]):
+    for name, data in files.items():
+        (tmp_path / name).write_bytes(data)
+    return tmp_path
+
+
+def copper(n: int, side: str = "Inr") -> bytes:
+    return COPPER.replace(b"{n}", str(n).encode()).replace(b"{side}", side.encode())
+
+
+def test_formats_are_sniffed_from_content_not_names(tmp_path):
+    folder = package(tmp_path, {"a.txt": copper(1, "Top"), "b.txt": copper(2, "Bot"), "c.bin": DRILL,
+                                "d.dat": JOB, "e.foo": NETLIST, "f.gbr": SOLDERMASK, "g.gbr": PROFILE,
+                                "readme.md": b"# notes\n"})
+    found = collect([str(folder)])
+    assert {n: m.name.rsplit("/", 1)[-1] for n, (m, _) in found.copper.items()} == {1: "a.txt", 2: "b.txt"}
+    assert [m.name.rsplit("/", 1)[-1] for m in found.drills] == ["c.bin"]
+    assert [m.name.rsplit("/", 1)[-1] for m in found.jobs] == ["d.dat"]
+    assert [m.name.rsplit("/", 1)[-1] for m in found.netlists] == ["e.foo"]
+    assert found.profile is not None and found.profile.name.endswith("g.gbr")
+    assert any("f.gbr" in s and "Soldermask" in s for s in found.skipped)
+    assert any("readme.md" in s for s in found.skipped)
+    assert found.copper[1][1] == "signal"
+
+
+def test_naming_rule_and_override_identify_files_without_file_function(tmp_path):
+    folder = package(tmp_path, {"board-L1.gbr": BARE, "board_L2.gbr": BARE, "mystery.gbr": BARE})
+    found = collect([str(folder)])
+    assert sorted(found.copper) == [1, 2] and found.copper[1][1] is None
+    assert any("mystery.gbr" in s and "--layer" in s for s in found.skipped)
+    found = collect([str(folder)], {"mystery.gbr": "L3,plane"})
+    assert found.copper[3][1] == "plane"
+
+
+def test_a_layer_given_twice_is_an_error_naming_both_files(tmp_path):
+    folder = package(tmp_path, {"x.gbr": copper(2), "y.gbr": copper(2)})
+    with pytest.raises(FabError) as caught:
+        collect([str(folder)])
+    assert "L2 again" in str(caught.value) and "x.gbr" in str(caught.value) and "y.gbr" in str(caught.value)
+
+
+def test_zip_and_file_list_give_the_same_sorting(tmp_path):
+    files = {"top.gbr": copper(1, "Top"), "bot.gbr": copper(2, "Bot"), "holes.drl": DRILL, "job.gbrjob": JOB}
+    (tmp_path / "pkg").mkdir()
+    folder = package(tmp_path / "pkg", files)
+    archive = tmp_path / "pkg.zip"
+    with zipfile.ZipFile(archive, "w") as z:
+        for name, data in files.items():
+            z.writestr(f"out/{name}", data)
+    from_zip = collect([str(archive)])
+    from_list = collect([str(folder / n) for n in files])
+    for found in (from_zip, from_list):
+        assert sorted(found.copper) == [1, 2] and len(found.drills) == 1 and len(found.jobs) == 1
+    assert from_zip.copper[1][0].name == f"{archive}:out/top.gbr"
+    with from_zip.copper[1][0].open() as stream:
+        assert stream.read() == files["top.gbr"]
+
+
+def test_bad_packages_get_one_clear_message(tmp_path):
+    (tmp_path / "empty").mkdir()
+    with pytest.raises(FabError, match="holds no files"):
+        collect([str(tmp_path / "empty")])
+    (tmp_path / "bad.zip").write_bytes(b"not a zip")
+    with pytest.raises(FabError, match="not a readable .zip"):
+        collect([str(tmp_path / "bad.zip")])
+    with pytest.raises(FabError, match="no such file"):
+        collect([str(tmp_path / "missing.gbr")])
+    with pytest.raises(UsageError, match="no file of that name"):
+        collect([str(package(tmp_path / "empty", {"a.gbr": copper(1)}))], {"nothere.gbr": "L1"})
+    (tmp_path / "empty" / "d.drl").write_bytes(DRILL)
+    with pytest.raises(UsageError, match="not a Gerber layer"):
+        collect([str(tmp_path / "empty")], {"d.drl": "L2"})
+
+
+@pytest.mark.parametrize("text, expected", [
+    ("a.gbr=L3", ("a.gbr", "L3")), ("a.gbr=L3,Plane", ("a.gbr", "L3,plane")),
+    ("dir/x=y.gbr=profile", ("dir/x=y.gbr", "profile")), ("a.gbr=IGNORE", ("a.gbr", "ignore")),
+])
+def test_layer_overrides_parse(text, expected):
+    assert parse_layer_override(text) == expected
+
+
+@pytest.mark.parametrize("text", ["a.gbr", "a.gbr=3", "a.gbr=L3,ground", "=L1"])
+def test_bad_layer_overrides_are_usage_errors(text):
+    with pytest.raises(UsageError):
+        parse_layer_override(text)
+
+
+def test_is_package():
+    assert not is_package(["board.json"])
+    assert is_package(["fab.zip"]) and is_package(["a.gbr", "b.gbr"]) and is_package(["top.gbr"])
