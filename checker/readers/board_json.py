@@ -119,6 +119,18 @@ def read_board_dict(data: Any, file: str) -> Board:
     return _read(data, file, suspect=False)
 
 
+def read_stackup_dict(data: dict, file: str) -> Stackup:
+    """The stackup alone, from a dict holding ``units`` (optional) and
+    ``stackup`` as a board file would (the stackup YAML door uses it): the
+    same schema, rules and messages as a whole board file."""
+    data = {"format": FORMAT, "version": VERSION, "nets": [], **data}
+    _check_raw(data, file)
+    if not _fast_schema_check()(data):
+        _check_schema(data, file)
+    with np.errstate(over="ignore"):
+        return _Builder(data, file).stackup()
+
+
 def _read(data: Any, file: str, suspect: bool) -> Board:
     if not isinstance(data, dict):
         raise BoardError(file, None, f"must be a JSON object {{...}}, got {_describe(data)}")

@@ -126,7 +126,10 @@ class NetPoint:
     """One IPC-D-356 test point (317 through-hole / 327 surface record):
     ``net`` after NNAME aliases are resolved, ``None`` for N/C;
     ``access``: the copper layer number the point is reached from
-    (1 = top; ``None`` = both sides of a through hole); ``line``: the file line."""
+    (1 = top; ``None`` = both sides of a through hole); ``line``: the file line.
+    ``refdes`` / ``pin``: the reference designator (``VIA`` for a via) and
+    pin as written; ``plated``: the hole's P (True) / U (False) flag,
+    ``None`` without a hole or flag."""
 
     net: str | None
     x: float
@@ -134,6 +137,9 @@ class NetPoint:
     access: int | None
     hole: float | None
     line: int
+    refdes: str = ""
+    pin: str = ""
+    plated: bool | None = None
 
 
 @dataclass
@@ -151,7 +157,10 @@ class JobStackup:
     1 ...) of ``stackup.layers[i]``. ``board_thickness_mm`` and
     ``layer_count`` as the file states them (``None`` if absent).
     ``roles_given``: whether the file said each copper layer's role
-    (a job file does not; a stackup YAML does).
+    (a job file does not; a stackup YAML does). ``files``: a job file's
+    ``FilesAttributes`` as (path, file function, polarity) in file order
+    (polarity ``""`` if not given; empty for a stackup YAML).
+    ``size_mm``: ``GeneralSpecs.Size`` (X, Y) if the file gives it.
     """
 
     path: str
@@ -160,3 +169,5 @@ class JobStackup:
     board_thickness_mm: float | None
     layer_count: int | None
     roles_given: bool
+    files: tuple[tuple[str, str, str], ...] = ()
+    size_mm: tuple[float, float] | None = None

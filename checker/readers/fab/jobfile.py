@@ -1,0 +1,374 @@
+"""The Gerber job file (``.gbrjob``): the stackup and the list of files.
+
+``read_job(stream, name)`` reads a binary stream (a zip member will do),
+``load_job(path)`` a file; both return a
+:class:`~checker.readers.fab.layer.JobStackup` or raise one
+:class:`~checker.errors.FabError` naming the file and the JSON path
+(``board.gbrjob: MaterialStackup[3].Thickness: ...``), or the line for a
+JSON syntax error.
+
+Format: Ucamco, "Gerber Job Format" specification (2018 and later
+revisions), sections ``GeneralSpecs``, ``FilesAttributes`` and
+``MaterialStackup``; cited from memory. The file is JSON (RFC 8259,
+UTF-8). What is read:
+
+* ``GeneralSpecs`` (optional): ``Size`` ``{"X": mm, "Y": mm}``,
+  ``LayerNumber`` (the number of copper layers) and ``BoardThickness``
+  (mm). If ``LayerNumber`` is given it must equal the number of
+  ``Copper`` entries in ``MaterialStackup``.
+* ``FilesAttributes`` (optional): a list of ``{"Path", "FileFunction",
+  "FilePolarity"}``, returned as ``JobStackup.files`` = ((path, file
+  function, polarity), ...), the polarity ``""`` where not given.
+* ``MaterialStackup`` (required): the physical layers in order, top to
+  bottom, each an object with ``Type`` and, depending on it, ``Name``,
+  ``Thickness`` (mm), ``Material``, ``DielectricConstant`` and
+  ``LossTangent``. The last two may be numbers or strings, and a string
+  may use a decimal comma (``"4,2"``).
+
+How the model :class:`~checker.model.Stackup` is built from it:
+
+* every ``Copper`` entry is a copper layer, in order, named by its
+  ``Name`` (``L1``, ``L2`` ... if it has none; two copper entries may not
+  share a name) and with its ``Thickness`` (required, > 0). The role is
+  ``mixed`` and ``JobStackup.roles_given`` is False: a job file does not
+  say which layer is a plane (the Gerber files' ``TF.FileFunction``
+  does). ``copper_numbers`` are 1, 2, ... n in this order.
+* the ``Dielectric`` entries between two neighbouring copper layers
+  (a core and a prepreg, say) make one model dielectric. Each needs
+  ``Thickness`` (> 0) and ``DielectricConstant`` (>= 1); ``LossTangent``
+  (>= 0) is optional. The combined layer has the summed thickness
+  T = sum(t_i) and, as capacitors in series (a uniform field normal to
+  the layers), the permittivity
+
+      eps_eff = T / sum(t_i / eps_i)
+
+  and, with complex permittivities eps_i (1 - j tan_i) in the same
+  series rule, the loss tangent tan_eff = -Im(eps*_eff) / Re(eps*_eff)
+  (``None`` if any part lacks one). Its name is the parts' ``Name``
+  values joined by " + ". Any other ``Type`` between two copper layers
+  is refused, and so are two copper layers with nothing between them.
+* a ``SolderMask`` above the first copper layer is ``mask_top``, one
+  below the last is ``mask_bottom``; it needs ``Thickness`` and
+  ``DielectricConstant`` like a dielectric (a mask the file does not
+  describe fully is refused rather than guessed). At most one per side.
+* other types above the first / below the last copper layer
+  (``Legend``, ``SolderPaste`` ...) are ignored; a ``Dielectric`` there
+  is refused (the model has no place for it).
+
+Refused, with the JSON path: a file over :data:`MAX_FILE_BYTES`, bytes
+that are not UTF-8, invalid JSON (with the line), ``NaN`` / ``Infinity``,
+a key repeated in one object, wrong types, missing required values, and
+the stackup problems above. The input is never modified.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import re
+import zipfile
+import zlib
+from typing import Any, BinaryIO, NoReturn
+
+from ...errors import FabError
+from ...model import CopperLayer, Dielectric, Stackup
+from ..board_json import format_path
+from .layer import JobStackup
+
+#: Larger files are refused before they are read (256 MiB).
+MAX_FILE_BYTES = 256 * 1024 * 1024
+
+#: A length over 10 m is taken as a units mistake.
+MAX_LENGTH_MM = 10_000.0
+
+_DECIMAL = re.compile(r"\s*([+-]?(?:[0-9]+(?:[.,][0-9]*)?|[.,][0-9]+)(?:[eE][+-]?[0-9]+)?)\s*", re.ASCII)
+
+
+def load_job(path: str | os.PathLike[str]) -> JobStackup:
+    """Read the Gerber job file at ``path`` (see the module docstring)."""
+    file = os.fspath(path)
+    try:
+        with open(file, "rb") as stream:
+            return read_job(stream, file)
+    except FileNotFoundError:
+        raise FabError(file, None, "no such file") from None
+    except IsADirectoryError:
+        raise FabError(file, None, "is a folder, not a job file") from None
+    except OSError as exc:
+        raise FabError(file, None, f"cannot read the file: {exc.strerror or exc}") from None
+
+
+def read_job(stream: BinaryIO, name: str) -> JobStackup:
+    """Read a Gerber job file from a binary stream; ``name`` is used in
+    messages and as ``JobStackup.path``."""
+    data = _parse(stream, name)
+    return _Job(name, data).build()
+
+
+# --------------------------------------------------------------------------- JSON
+
+
+class _Repeated(dict):
+    """A JSON object in which ``repeated`` appeared more than once."""
+
+    repeated: str = ""
+
+
+def _parse(stream: BinaryIO, name: str) -> Any:
+    try:
+        raw = stream.read(MAX_FILE_BYTES + 1)
+    except (OSError, EOFError, zipfile.BadZipFile, zlib.error) as exc:
+        raise FabError(name, None, f"cannot read the file: {exc}") from None
+    if len(raw) > MAX_FILE_BYTES:
+        raise FabError(name, None, f"over the size limit of {MAX_FILE_BYTES:,} bytes: not read")
+    try:
+        text = bytes(raw).decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = raw.count(b"\n", 0, exc.start) + 1
+        raise FabError(name, line, f"not UTF-8 text (bad byte at offset {exc.start})") from None
+    if not text.strip():
+        raise FabError(name, None, "the file is empty")
+
+    def pairs(items: list[tuple[str, Any]]) -> dict:
+        out = dict(items)
+        if len(out) == len(items):
+            return out
+        seen: set[str] = set()
+        flagged = _Repeated(out)
+        flagged.repeated = next(k for k, _ in items if k in seen or seen.add(k))
+        return flagged
+
+    def constant(word: str) -> float:
+        raise _NonFinite(word)
+
+    try:
+        return json.loads(text, object_pairs_hook=pairs, parse_constant=constant)
+    except json.JSONDecodeError as exc:
+        raise FabError(name, exc.lineno, f"invalid JSON: {exc.msg} (column {exc.colno})") from None
+    except _NonFinite as exc:
+        raise FabError(name, None, f"invalid JSON: {exc.args[0]} is not a number JSON allows") from None
+    except RecursionError:
+        raise FabError(name, None, "invalid JSON: nested far too deeply") from None
+    except ValueError as exc:  # an integer with thousands of digits
+        raise FabError(name, None, f"invalid JSON: {exc}") from None
+
+
+class _NonFinite(ValueError):
+    pass
+
+
+# --------------------------------------------------------------------------- meaning
+
+
+class _Job:
+    def __init__(self, name: str, data: Any) -> None:
+        self.name = name
+        self.data = data
+
+    def fail(self, path: tuple, message: str) -> NoReturn:
+        raise FabError(self.name, None, message, place=format_path(path))
+
+    def obj(self, path: tuple, value: Any) -> dict:
+        if not isinstance(value, dict):
+            self.fail(path, f"must be a JSON object {{...}}, got {_describe(value)}")
+        if isinstance(value, _Repeated):
+            self.fail(path, f"key {value.repeated!r} appears more than once")
+        return value
+
+    def number(self, path: tuple, value: Any, *, minimum: float, exclusive: bool, text_ok: bool = False) -> float:
+        """A finite number >= (or >) ``minimum``; with ``text_ok`` also a
+        string such as ``"4.2"`` or ``"4,2"``."""
+        if isinstance(value, str) and text_ok:
+            m = _DECIMAL.fullmatch(value)
+            if not m:
+                self.fail(path, f"must be a number (or a number in a string), got {_describe(value)}")
+            number = float(m.group(1).replace(",", "."))
+        elif isinstance(value, (int, float)) and not isinstance(value, bool):
+            try:
+                number = float(value)
+            except OverflowError:
+                self.fail(path, f"number far too large, got {_describe(value)}")
+        else:
+            self.fail(path, f"must be a number, got {_describe(value)}")
+        if not math.isfinite(number):
+            self.fail(path, f"must be a finite number, got {_describe(value)}")
+        if number < minimum or (exclusive and number == minimum):
+            self.fail(path, f"must be {'>' if exclusive else '>='} {minimum:g}, got {_describe(value)}")
+        return number
+
+    def length(self, path: tuple, value: Any) -> float:
+        mm = self.number(path, value, minimum=0.0, exclusive=True)
+        if mm > MAX_LENGTH_MM:
+            self.fail(path, f"{mm:g} mm is more than 10 m (a job file gives lengths in mm)")
+        return mm
+
+    def text(self, path: tuple, value: Any) -> str:
+        if not isinstance(value, str):
+            self.fail(path, f"must be a string, got {_describe(value)}")
+        return value
+
+    # ---- sections
+
+    def build(self) -> JobStackup:
+        root = self.obj((), self.data)
+        size, layer_number, thickness = self.general(root)
+        files = self.files(root)
+        stackup = self.stackup(root)
+        n = len(stackup.layers)
+        if layer_number is not None and layer_number != n:
+            self.fail(("GeneralSpecs", "LayerNumber"), f"says {layer_number} copper layers but MaterialStackup "
+                      f"has {n} Copper entries")
+        return JobStackup(
+            path=self.name,
+            stackup=stackup,
+            copper_numbers=tuple(range(1, n + 1)),
+            board_thickness_mm=thickness,
+            layer_count=layer_number,
+            roles_given=False,
+            files=files,
+            size_mm=size,
+        )
+
+    def general(self, root: dict) -> tuple[tuple[float, float] | None, int | None, float | None]:
+        if "GeneralSpecs" not in root:
+            return None, None, None
+        here = ("GeneralSpecs",)
+        specs = self.obj(here, root["GeneralSpecs"])
+        size = None
+        if "Size" in specs:
+            box = self.obj(here + ("Size",), specs["Size"])
+            for axis in ("X", "Y"):
+                if axis not in box:
+                    self.fail(here + ("Size",), f"missing required key {axis!r}")
+            size = (self.length(here + ("Size", "X"), box["X"]), self.length(here + ("Size", "Y"), box["Y"]))
+        layers = None
+        if "LayerNumber" in specs:
+            value = specs["LayerNumber"]
+            if isinstance(value, bool) or not isinstance(value, int) or not 1 <= value <= 1000:
+                self.fail(here + ("LayerNumber",), f"must be a whole number 1 to 1000, got {_describe(value)}")
+            layers = value
+        thickness = self.length(here + ("BoardThickness",), specs["BoardThickness"]) if "BoardThickness" in specs \
+            else None
+        return size, layers, thickness
+
+    def files(self, root: dict) -> tuple[tuple[str, str, str], ...]:
+        if "FilesAttributes" not in root:
+            return ()
+        entries = root["FilesAttributes"]
+        if not isinstance(entries, list):
+            self.fail(("FilesAttributes",), f"must be a JSON array [...], got {_describe(entries)}")
+        out = []
+        for i, entry in enumerate(entries):
+            here = ("FilesAttributes", i)
+            entry = self.obj(here, entry)
+            for key in ("Path", "FileFunction"):
+                if key not in entry:
+                    self.fail(here, f"missing required key {key!r}")
+            polarity = self.text(here + ("FilePolarity",), entry["FilePolarity"]) if "FilePolarity" in entry else ""
+            out.append((self.text(here + ("Path",), entry["Path"]),
+                        self.text(here + ("FileFunction",), entry["FileFunction"]), polarity))
+        return tuple(out)
+
+    def stackup(self, root: dict) -> Stackup:
+        if "MaterialStackup" not in root:
+            self.fail((), "no MaterialStackup: this job file does not give the stackup")
+        entries = root["MaterialStackup"]
+        if not isinstance(entries, list):
+            self.fail(("MaterialStackup",), f"must be a JSON array [...], got {_describe(entries)}")
+        kinds = []
+        for i, entry in enumerate(entries):
+            entry = self.obj(("MaterialStackup", i), entry)
+            if "Type" not in entry:
+                self.fail(("MaterialStackup", i), "missing required key 'Type'")
+            kinds.append(self.text(("MaterialStackup", i, "Type"), entry["Type"]))
+        copper = [i for i, kind in enumerate(kinds) if kind == "Copper"]
+        if not copper:
+            self.fail(("MaterialStackup",), "has no Copper entry")
+        layers = [self.copper(i, entries[i], k + 1) for k, i in enumerate(copper)]
+        names: dict[str, int] = {}
+        for k, i in enumerate(copper):
+            if layers[k].name in names:
+                self.fail(("MaterialStackup", i, "Name"), f"copper layer name {layers[k].name!r} is already used "
+                          f"by MaterialStackup[{names[layers[k].name]}]")
+            names[layers[k].name] = i
+        dielectrics = []
+        for a, b in zip(copper, copper[1:]):
+            between = list(range(a + 1, b))
+            for i in between:
+                if kinds[i] != "Dielectric":
+                    self.fail(("MaterialStackup", i, "Type"), f"{kinds[i]!r} between two copper layers: only "
+                              "Dielectric entries can lie between copper layers")
+            if not between:
+                self.fail(("MaterialStackup", b), "two copper layers with no Dielectric entry between them")
+            dielectrics.append(self.combine([(i, entries[i]) for i in between]))
+        mask_top = self.outside(entries, kinds, range(0, copper[0]), "above the top")
+        mask_bottom = self.outside(entries, kinds, range(copper[-1] + 1, len(entries)), "below the bottom")
+        return Stackup(tuple(layers), tuple(dielectrics), mask_top, mask_bottom)
+
+    def copper(self, i: int, entry: dict, number: int) -> CopperLayer:
+        here = ("MaterialStackup", i)
+        if "Thickness" not in entry:
+            self.fail(here, "missing required key 'Thickness' (the copper thickness in mm)")
+        name = self.text(here + ("Name",), entry["Name"]) if "Name" in entry else f"L{number}"
+        if not name.strip():
+            self.fail(here + ("Name",), "must not be empty")
+        return CopperLayer(name, "mixed", self.length(here + ("Thickness",), entry["Thickness"]))
+
+    def layer(self, i: int, entry: dict, what: str) -> tuple[float, float, float | None, str | None]:
+        """(thickness, er, loss tangent, name) of a dielectric or mask entry."""
+        here = ("MaterialStackup", i)
+        for key in ("Thickness", "DielectricConstant"):
+            if key not in entry:
+                self.fail(here, f"missing required key {key!r}: {what} needs its thickness and permittivity")
+        thickness = self.length(here + ("Thickness",), entry["Thickness"])
+        er = self.number(here + ("DielectricConstant",), entry["DielectricConstant"], minimum=1.0,
+                         exclusive=False, text_ok=True)
+        tan_d = None
+        if "LossTangent" in entry:
+            tan_d = self.number(here + ("LossTangent",), entry["LossTangent"], minimum=0.0, exclusive=False,
+                                text_ok=True)
+        name = self.text(here + ("Name",), entry["Name"]) if "Name" in entry else None
+        return thickness, er, tan_d, name
+
+    def combine(self, parts: list[tuple[int, dict]]) -> Dielectric:
+        """One model dielectric from consecutive entries, by the series rule."""
+        layers = [self.layer(i, e, "a dielectric between copper layers") for i, e in parts]
+        total = sum(t for t, _, _, _ in layers)
+        er = total / sum(t / e for t, e, _, _ in layers)
+        tan_d = None
+        if all(tan is not None for _, _, tan, _ in layers):
+            eps = total / sum(t / (e * complex(1.0, -tan)) for t, e, tan, _ in layers)
+            tan_d = -eps.imag / eps.real
+        names = [n for _, _, _, n in layers if n]
+        return Dielectric(thickness_mm=total, er=er, loss_tangent=tan_d, name=" + ".join(names) or None)
+
+    def outside(self, entries: list, kinds: list[str], span: range, side: str) -> Dielectric | None:
+        masks = [i for i in span if kinds[i] == "SolderMask"]
+        for i in span:
+            if kinds[i] == "Dielectric":
+                self.fail(("MaterialStackup", i, "Type"), f"a Dielectric {side} copper layer cannot be modelled "
+                          "(only a SolderMask can lie outside the copper layers)")
+        if len(masks) > 1:
+            self.fail(("MaterialStackup", masks[1]), f"a second SolderMask {side} copper layer")
+        if not masks:
+            return None
+        thickness, er, tan_d, name = self.layer(masks[0], entries[masks[0]], "a solder mask")
+        return Dielectric(thickness_mm=thickness, er=er, loss_tangent=tan_d, name=name)
+
+
+def _describe(value: Any) -> str:
+    if value is None:
+        return "null"
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, (int, float)):
+        text = repr(value)
+        return text if len(text) <= 40 else text[:37] + "..."
+    if isinstance(value, str):
+        return json.dumps(value if len(value) <= 40 else value[:37] + "...")
+    if isinstance(value, list):
+        return "an array"
+    if isinstance(value, dict):
+        return "an object"
+    return type(value).__name__

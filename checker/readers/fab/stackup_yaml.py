@@ -1,0 +1,276 @@
+"""A stackup YAML file (``--stackup team-stackup.yaml``): the stackup of a
+fabrication package written by hand, with the roles a job file lacks.
+
+``load_stackup_yaml(path)`` reads a file, ``read_stackup_yaml(stream,
+name)`` a binary stream; both return a
+:class:`~checker.readers.fab.layer.JobStackup` with ``roles_given=True``
+and ``copper_numbers`` 1..n (top to bottom), or raise one
+:class:`~checker.errors.FabError`.
+
+The format is couplint's own: one YAML mapping (YAML 1.1 as PyYAML's safe
+loader reads it) with
+
+* ``stackup`` (required): the same list as the ``stackup`` key of the
+  neutral board JSON (``docs/board-format.md``, section Stackup): copper
+  ``{copper, role, thickness}``, dielectric ``{dielectric, thickness, er,
+  loss_tangent}`` and optional solder masks ``{mask, thickness, er,
+  loss_tangent}`` first / last, top to bottom, alternating copper and
+  dielectric;
+* ``units`` (optional): ``mm`` (default), ``mil``, ``um`` or ``in``, the
+  unit of every thickness, as in the board format;
+* ``description`` (optional): free text for people, ignored.
+
+Any other top-level key is refused. Numbers follow YAML 1.1: ``0.001``
+and ``1.0e-3`` are numbers, but ``1e-3`` (no dot) and ``1.0e3`` (no sign
+in the exponent) are strings, refused as not numbers. Example::
+
+    units: mm
+    stackup:
+      - {mask: top-mask, thickness: 0.015, er: 3.8}
+      - {copper: TOP, role: signal, thickness: 0.035}
+      - {dielectric: prepreg, thickness: 0.2, er: 4.2}
+      - {copper: GND, role: plane, thickness: 0.035}
+
+The list is checked by the board JSON door itself (its schema and its
+stackup rules), so both doors accept and refuse the same stackups with
+the same words. Errors: YAML syntax problems name the line and column (from
+the parser's marks); a key repeated in one mapping names both lines;
+schema and stackup problems name the key path and its line
+(``stackup[2].er (line 5): must be >= 1, got 0.5``). The input is never
+modified.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import zipfile
+import zlib
+from typing import Any, BinaryIO, NoReturn
+
+import yaml
+
+from ...errors import BoardError, FabError
+from ...model import Stackup
+from .. import board_json
+from .layer import JobStackup
+
+#: Larger files are refused before they are read (1 MiB: a stackup is small).
+MAX_FILE_BYTES = 1024 * 1024
+
+TOP_KEYS = ("units", "stackup", "description")
+
+_MERGE_TAG = "tag:yaml.org,2002:merge"
+_PATH_PART = re.compile(r'\.?([A-Za-z_][A-Za-z0-9_]*)|\[([0-9]+)\]|\[("(?:[^"\\]|\\.)*")\]')
+
+
+def load_stackup_yaml(path: str | os.PathLike[str]) -> JobStackup:
+    """Read the stackup YAML file at ``path`` (see the module docstring)."""
+    file = os.fspath(path)
+    try:
+        with open(file, "rb") as stream:
+            return read_stackup_yaml(stream, file)
+    except FileNotFoundError:
+        raise FabError(file, None, "no such file") from None
+    except IsADirectoryError:
+        raise FabError(file, None, "is a folder, not a stackup file") from None
+    except OSError as exc:
+        raise FabError(file, None, f"cannot read the file: {exc.strerror or exc}") from None
+
+
+def read_stackup_yaml(stream: BinaryIO, name: str) -> JobStackup:
+    """Read a stackup YAML file from a binary stream; ``name`` is used in
+    messages and as ``JobStackup.path``."""
+    text = _read_text(stream, name)
+    node, data = _load(text, name)
+    stackup = _validate(data, node, name)
+    n = len(stackup.layers)
+    return JobStackup(
+        path=name,
+        stackup=stackup,
+        copper_numbers=tuple(range(1, n + 1)),
+        board_thickness_mm=None,
+        layer_count=n,
+        roles_given=True,
+    )
+
+
+# --------------------------------------------------------------------------- text and YAML
+
+
+def _read_text(stream: BinaryIO, name: str) -> str:
+    try:
+        raw = stream.read(MAX_FILE_BYTES + 1)
+    except (OSError, EOFError, zipfile.BadZipFile, zlib.error) as exc:
+        raise FabError(name, None, f"cannot read the file: {exc}") from None
+    if len(raw) > MAX_FILE_BYTES:
+        raise FabError(name, None, f"over the size limit of {MAX_FILE_BYTES:,} bytes: not a stackup file")
+    try:
+        text = bytes(raw).decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = raw.count(b"\n", 0, exc.start) + 1
+        raise FabError(name, line, f"not UTF-8 text (bad byte at offset {exc.start})") from None
+    if not text.strip():
+        raise FabError(name, None, "the file is empty (a stackup file holds a 'stackup:' list)")
+    return text
+
+
+def _load(text: str, name: str) -> tuple[yaml.Node, Any]:
+    """The YAML node tree and the data built from it (safe tags only, one
+    document, no repeated keys, no alias bombs)."""
+    loader = None
+    try:
+        loader = yaml.SafeLoader(text)  # checks the characters already
+        node = loader.get_single_node()
+        if node is None:
+            raise FabError(name, None, "the file is empty (a stackup file holds a 'stackup:' list)")
+        _check_size(node, name)
+        _check_repeated_keys(node, "", name, set())
+        return node, loader.construct_document(node)
+    except yaml.MarkedYAMLError as exc:
+        mark = exc.problem_mark or exc.context_mark
+        message = " ".join(str(exc.problem or "").split())
+        if exc.context:
+            where = f" (line {exc.context_mark.line + 1})" if exc.context_mark is not None else ""
+            message = f"{' '.join(exc.context.split())}{where}, {message}"
+        if mark is None:
+            raise FabError(name, None, f"invalid YAML: {message}") from None
+        raise FabError(name, mark.line + 1, f"invalid YAML: {message}",
+                       place=f"line {mark.line + 1}, column {mark.column + 1}") from None
+    except yaml.YAMLError as exc:
+        position = getattr(exc, "position", None)
+        reason = getattr(exc, "reason", None) or " ".join(str(exc).split())
+        character = getattr(exc, "character", None)
+        if isinstance(character, int):  # a code point (the text is decoded already)
+            reason = f"character U+{character:04X}: {reason}"
+        if isinstance(position, int):
+            line = text.count("\n", 0, position) + 1
+            raise FabError(name, line, f"invalid YAML: {reason}") from None
+        raise FabError(name, None, f"invalid YAML: {reason}") from None
+    except (ValueError, OverflowError, TypeError) as exc:  # a value yaml cannot build, e.g. 2026-13-01
+        raise FabError(name, None, f"invalid YAML value: {exc}") from None
+    except RecursionError:
+        raise FabError(name, None, "invalid YAML: nested far too deeply") from None
+    finally:
+        if loader is not None:
+            loader.dispose()
+
+
+#: Most nodes a stackup file may hold once its aliases are expanded.
+MAX_NODES = 100_000
+
+#: Deepest nesting accepted (a stackup needs 3: stackup[i].key).
+MAX_DEPTH = 32
+
+
+def _check_size(root: yaml.Node, name: str) -> None:
+    """Refuse alias bombs (a few lines that expand to millions of nodes),
+    recursive aliases and absurd nesting, before anything walks the data."""
+    memo: dict[int, int] = {}
+    active: set[int] = set()
+
+    def size(node: yaml.Node, depth: int) -> int:
+        key = id(node)
+        if key in memo:
+            return memo[key]
+        line = node.start_mark.line + 1
+        if key in active:
+            raise FabError(name, line, "a recursive alias (a node that contains itself)")
+        if depth > MAX_DEPTH:
+            raise FabError(name, line, f"nested more than {MAX_DEPTH} levels deep")
+        active.add(key)
+        total = 1
+        if isinstance(node, yaml.SequenceNode):
+            total += sum(size(item, depth + 1) for item in node.value)
+        elif isinstance(node, yaml.MappingNode):
+            total += sum(size(k, depth + 1) + size(v, depth + 1) for k, v in node.value)
+        active.discard(key)
+        memo[key] = total
+        if total > MAX_NODES:
+            raise FabError(name, line, f"more than {MAX_NODES} values once aliases are expanded: "
+                           "not a stackup file")
+        return total
+
+    size(root, 0)
+
+
+def _check_repeated_keys(node: yaml.Node, path: str, name: str, seen: set[int]) -> None:
+    if id(node) in seen:  # an alias to a node already checked
+        return
+    seen.add(id(node))
+    if isinstance(node, yaml.MappingNode):
+        first: dict[tuple[str, str], int] = {}
+        for key_node, value_node in node.value:
+            if key_node.tag == _MERGE_TAG:
+                _check_repeated_keys(value_node, path, name, seen)
+                continue
+            key = key_node.value if isinstance(key_node, yaml.ScalarNode) else "?"
+            here = f"{path}.{key}" if path else str(key)
+            if isinstance(key_node, yaml.ScalarNode):
+                ident = (key_node.tag, key_node.value)
+                line = key_node.start_mark.line + 1
+                if ident in first:
+                    raise FabError(name, line, f"key {key!r} appears twice (lines {first[ident]} and {line}); "
+                                   "each key may appear once", place=f"{here} (line {line})")
+                first[ident] = line
+            _check_repeated_keys(value_node, here, name, seen)
+    elif isinstance(node, yaml.SequenceNode):
+        for i, item in enumerate(node.value):
+            _check_repeated_keys(item, f"{path}[{i}]", name, seen)
+
+
+# --------------------------------------------------------------------------- meaning
+
+
+def _validate(data: Any, node: yaml.Node, name: str) -> Stackup:
+    """The stackup, checked by the board JSON door's schema and rules;
+    its errors are given the YAML line of the place they name."""
+
+    def fail(place: str | None, message: str) -> NoReturn:
+        line = _line_of(node, place)
+        shown = f"{place} (line {line})" if place else f"line {line}"
+        raise FabError(name, line, message, place=shown)
+
+    if not isinstance(data, dict):
+        fail(None, f"must be a mapping with a 'stackup:' list, got {_kind(data)}")
+    for key in data:
+        if key not in TOP_KEYS:
+            shown = key if isinstance(key, str) else repr(key)
+            fail(shown if isinstance(key, str) else None,
+                 f"unknown key {shown!r} (allowed here: {', '.join(TOP_KEYS)})")
+    if "stackup" not in data:
+        fail(None, "missing required key 'stackup' (the list of copper, dielectric and mask entries)")
+    given = {k: data[k] for k in ("units", "stackup") if k in data}
+    try:
+        return board_json.read_stackup_dict(given, name)
+    except BoardError as exc:
+        fail(exc.place, exc.message)
+
+
+def _line_of(root: yaml.Node, place: str | None) -> int:
+    """The YAML line of the node at a JSON-style path (``stackup[2].er``);
+    the deepest node found on the way if the path leaves the tree."""
+    node = root
+    for m in _PATH_PART.finditer(place or ""):
+        key, index, quoted = m.groups()
+        if quoted is not None:
+            key = quoted[1:-1]
+        following: yaml.Node | None = None
+        if isinstance(node, yaml.MappingNode) and key is not None:
+            following = next((v for k, v in node.value if isinstance(k, yaml.ScalarNode) and k.value == key), None)
+        elif isinstance(node, yaml.SequenceNode) and index is not None and int(index) < len(node.value):
+            following = node.value[int(index)]
+        if following is None:
+            break
+        node = following
+    return node.start_mark.line + 1
+
+
+def _kind(value: Any) -> str:
+    if isinstance(value, list):
+        return "a list"
+    if value is None:
+        return "null"
+    if isinstance(value, str):
+        return "a string"
+    return type(value).__name__
