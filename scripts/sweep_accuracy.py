@@ -17,7 +17,8 @@ Estimates (``estimate`` column of the CSV)
 * ``c2g_plate``: eps0 er w / h (``parallel_plate_per_m``, both planes for
   stripline), shown only as the fringing-free baseline.
 * ``c2g_model``: ``edge.GroundModel.c_per_m`` when ``checker/physics/edge.py``
-  exists.
+  exists (built from the group's four widths: it solves each, plus fill-in
+  knots where two are more than twice apart, ``edge.ground_knots``).
 * ``edge_closed``: ``capacitance.edge_c12_per_m`` (Kirschning & Jansen 1984
   for microstrip, Cohn 1955 for stripline; zero-thickness models, mean width
   for unequal traces) against -C_M[0, 1] of two traces on one layer.
@@ -53,7 +54,9 @@ er, ratios) and, separately, over the query parameters: w 0.075-0.5 mm
 w the mean width, er 3-4.7. Each group draws four widths per layer (the
 table models' knots); half of its queries sit on knots and half between
 them (log-uniform between the smallest and largest), which is how the
-models are queried on a real board with more than four widths.
+models are queried on a real board with more than four widths (for
+``GroundModel``, which solves every distinct width up to 32, on a board
+with more than 32, or by a caller with widths not on the layer).
 
 Floors (issue): capacitance to plane within 3 %; mutual C12 within 15 %
 where the rule checks use it (edge gap <= the default ``edge_search`` 1 mm;

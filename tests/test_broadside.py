@@ -318,3 +318,38 @@ def test_mask_raises_outer_broadside_c12():
     c_bare = solve(broadside_section(masked_two_layer(None), 0, 1, 0.2, 0.2, 0.3), 1.0).c12
     c_mask = solve(broadside_section(masked_two_layer(Dielectric(0.02, 3.6)), 0, 1, 0.2, 0.2, 0.3), 1.0).c12
     assert c_mask > 1.02 * c_bare
+
+
+# ------------------------------------------------------------ shared solves
+
+
+def repeated_cores(er_second: float) -> Stackup:
+    """plane / S1 / S2 / plane / S3 / S4 / plane, every dielectric 0.13 mm of
+    er 3.9 except the S3-S4 core (``er_second``): with 3.9 the S3/S4 pair is
+    the S1/S2 pair moved down, the same electrostatic problem."""
+    layers = tuple(CopperLayer(n, r, 0.035) for n, r in (("g1", "plane"), ("s1", "signal"), ("s2", "signal"),
+                                                          ("g2", "plane"), ("s3", "signal"), ("s4", "signal"),
+                                                          ("g3", "plane")))
+    ers = (3.9, 3.9, 3.9, 3.9, er_second, 3.9)
+    return Stackup(layers, tuple(Dielectric(0.13, er) for er in ers))
+
+
+def test_repeated_layer_pair_reuses_the_solves_and_they_equal_its_own():
+    st = repeated_cores(3.9)
+    first = BroadsideModel(st, 1, 2, [0.13], [0.13], max_offset_mm=0.4)
+    second = BroadsideModel(st, 4, 5, [0.13], [0.13], max_offset_mm=0.4)
+    assert second.solves == first.solves and second.shared == second.solves
+    np.testing.assert_array_equal(second.table[0][0], first.table[0][0])
+    # the second pair's own cross-section, solved directly, is the same problem
+    off = float(second.offsets[0][0][3])
+    direct = solve(broadside_section(st, 4, 5, 0.13, 0.13, off), second.resolution).c12
+    assert float(second.c12_per_m(0.13, 0.13, off)) == approx(direct, 1e-9)
+
+
+def test_layer_pair_with_another_core_shares_nothing():
+    """er 4.4 between S3 and S4: a different problem, solved afresh."""
+    st = repeated_cores(4.4)
+    first = BroadsideModel(st, 1, 2, [0.13], [0.13], max_offset_mm=0.4)
+    second = BroadsideModel(st, 4, 5, [0.13], [0.13], max_offset_mm=0.4)
+    assert second.shared == 0
+    assert float(second.c12_per_m(0.13, 0.13, 0.0)) > 1.05 * float(first.c12_per_m(0.13, 0.13, 0.0))

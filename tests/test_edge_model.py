@@ -30,8 +30,18 @@ from scipy.constants import c as C0
 
 from checker.model import CopperLayer, Dielectric, Stackup
 from checker.physics import capacitance as cap
-from checker.physics.edge import EdgeModel, GroundModel, edge_section, gap_knots, ground_section
-from checker.physics.fieldsolve import solve
+from checker.physics.broadside import section_signature
+from checker.physics.edge import (
+    GROUND_KNOT_RATIO,
+    GROUND_MAX_WIDTHS,
+    EdgeModel,
+    GroundModel,
+    edge_section,
+    gap_knots,
+    ground_knots,
+    ground_section,
+)
+from checker.physics.fieldsolve import Conductor, CrossSection, Slab, solve
 
 
 def approx(value, rel: float):
@@ -76,18 +86,81 @@ def test_single_stripline_matches_cohn_1954(w):
     assert float(g.c_per_m(w)) == approx(float(exact), 0.01)
 
 
-@pytest.mark.parametrize("w, er", [(0.1, 4.3), (0.35, 4.3), (0.8, 3.0)])
-def test_single_microstrip_matches_hammerstad_jensen_via_scikit_rf(w, er):
+@pytest.mark.parametrize("w", [0.09, 0.13, 0.2, 0.3, 0.45])
+def test_single_stripline_between_far_apart_widths_matches_cohn_1954(w):
+    """Built from widths 0.075 and 0.5 mm only (6.7 times apart: knots
+    0.075, 0.141, 0.266, 0.5 with the fill-ins), queried between knots: the
+    interpolation (a w + F, F linear in ln w; edge docstring, 0.5 % at knots
+    2 times apart) and the solver together within 1 % of the exact value.
+    The interpolation used before (ln C' linear in ln w) errs 1.6 % at knots
+    2 times apart and 4-10 % at 3-6 times (edge docstring)."""
+    g = GroundModel(stripline(t=0.0), 1, [0.075, 0.5])
+    assert w not in g.widths_knots
+    exact = cap.stripline_c_per_m(w, 0.4, 0.0, 4.0).value  # Cohn 1954, exact for t = 0, centred
+    assert float(g.c_per_m(w)) == approx(float(exact), 0.01)
+
+
+def _hammerstad_jensen_c(w: float, h: float, t: float, er: float) -> float:
+    """C' = sqrt(er_eff) / (c0 Z0), F/m, from scikit-rf's Hammerstad-Jensen
+    ``MLine`` (no dispersion)."""
     skrf = pytest.importorskip("skrf")
     from skrf.media import MLine
 
-    h, t = 0.2, 0.035
     line = MLine(frequency=skrf.Frequency(10, 10, 1, unit="GHz"), w=w * 1e-3, h=h * 1e-3, t=t * 1e-3, ep_r=er,
                  tand=0.0, model="hammerstadjensen", disp="none", diel="frequencyinvariant")
     z0, er_eff = float(np.real(line.z0_characteristic[0])), float(np.real(line.ep_reff_f[0]))
-    c_hj = np.sqrt(er_eff) / (C0 * z0)  # F/m
+    return float(np.sqrt(er_eff) / (C0 * z0))
+
+
+@pytest.mark.parametrize("w, er", [(0.1, 4.3), (0.35, 4.3), (0.8, 3.0)])
+def test_single_microstrip_matches_hammerstad_jensen_via_scikit_rf(w, er):
+    h, t = 0.2, 0.035
+    c_hj = _hammerstad_jensen_c(w, h, t, er)
     g = GroundModel(microstrip(t=t, h=h, er=er), 0, [w])
     assert float(g.c_per_m(w)) == approx(c_hj, 0.02)
+
+
+@pytest.mark.parametrize("w", [0.1, 0.2, 0.4, 0.7])
+def test_microstrip_between_far_apart_widths_matches_hammerstad_jensen(w):
+    """Built from widths 0.08 and 1.0 mm only (knots 0.08, 0.15, 0.283,
+    0.532, 1.0 with the fill-ins), queried between knots: H-J's 1 % plus the
+    solver's 1 % (module docstring of this file)."""
+    h, t, er = 0.2, 0.035, 4.3
+    g = GroundModel(microstrip(t=t, h=h, er=er), 0, [0.08, 1.0])
+    assert w not in g.widths_knots
+    assert float(g.c_per_m(w)) == approx(_hammerstad_jensen_c(w, h, t, er), 0.02)
+
+
+def test_ground_knots_are_the_widths_present_with_fill_ins():
+    # five widths, neighbours at most 1.5 times apart: exactly those
+    assert ground_knots([0.3, 0.1, 0.15, 0.2, 0.25, 0.1]) == approx([0.1, 0.15, 0.2, 0.25, 0.3], 1e-12)
+    # 0.075 .. 0.5 is 6.67 times: ceil(log2 6.67) = 3 intervals of 1.882 each,
+    # 0.075 * 1.882 = 0.1411, 0.075 * 1.882**2 = 0.2656 (rounded to 1 um)
+    assert ground_knots([0.075, 0.5]) == approx([0.075, 0.141, 0.266, 0.5], 1e-12)
+    # one width: its double is the second knot
+    assert ground_knots([0.2]) == approx([0.2, 0.4], 1e-12)
+    # rounded to 1 um: 0.1016 and 0.1018 are one knot 0.102
+    assert ground_knots([0.1016, 0.1018, 0.15]) == approx([0.102, 0.15], 1e-12)
+    # more than GROUND_MAX_WIDTHS distinct widths: that many in geometric
+    # progression from the narrowest to the widest (0.1 .. 0.3: 3**(1/31) =
+    # 1.036 apart, +-1 um of rounding: at most 1.036 x 1.01 at 0.1 mm)
+    many = ground_knots(np.linspace(0.1, 0.3, 100))
+    assert many.size == GROUND_MAX_WIDTHS and many[0] == 0.1 and many[-1] == 0.3
+    assert np.max(many[1:] / many[:-1]) < 3 ** (1 / 31) * 1.01
+    for knots in (ground_knots([0.05, 3.0]), ground_knots([0.075, 0.09, 0.5, 2.0])):
+        assert np.max(knots[1:] / knots[:-1]) <= GROUND_KNOT_RATIO * 1.001
+
+
+def test_ground_model_solves_every_width_present():
+    """Up to GROUND_MAX_WIDTHS distinct widths, a queried width on the
+    layer is a knot: the model answers its own solve of that width."""
+    st = microstrip(mask=Dielectric(0.015, 3.8))
+    widths = [0.1, 0.12, 0.127, 0.15, 0.2, 0.254, 0.3, 0.35, 0.4, 0.45]
+    g = GroundModel(st, 0, widths)
+    assert g.widths_knots == approx(widths, 1e-12) and g.solves == len(widths)
+    for w in (0.127, 0.254):
+        direct = solve(ground_section(st, 0, w), g.resolution, richardson=True).extrapolated[0].sum()
+        assert float(g.c_per_m(w)) == approx(float(direct), 1e-12)
 
 
 # ------------------------------------------------------------ the table
@@ -185,3 +258,59 @@ def test_stripline_table_far_beyond_the_plane_spacing_stays_positive():
     m = EdgeModel(s, 1, [0.1], max_gap_mm=0.9, min_gap_mm=0.1)
     values = m.c12_per_m(0.1, 0.1, np.array([0.2, 0.4, 0.6, 0.85]))
     assert np.all(values > 0) and np.all(np.diff(values) < 0)
+
+
+# ------------------------------------------------------------ shared solves
+
+
+def _two_sided(mask_bottom: Dielectric | None) -> Stackup:
+    """top / 0.15 mm er 4.2 / gnd / 0.15 mm er 4.2 / bottom, a 15 um er 3.8
+    mask on top and ``mask_bottom`` below: with the same mask on both sides
+    the bottom layer's cross-sections are the top layer's mirrored."""
+    return Stackup((CopperLayer("top", "signal", 0.035), CopperLayer("gnd", "plane", 0.035),
+                    CopperLayer("bot", "signal", 0.035)), (Dielectric(0.15, 4.2), Dielectric(0.15, 4.2)),
+                   mask_top=Dielectric(0.015, 3.8), mask_bottom=mask_bottom)
+
+
+def test_mirror_image_layer_reuses_the_solves_and_they_equal_its_own():
+    st = _two_sided(Dielectric(0.015, 3.8))
+    top = EdgeModel(st, 0, [0.11, 0.23], max_gap_mm=0.3).solve_all()
+    bottom = EdgeModel(st, 2, [0.11, 0.23], max_gap_mm=0.3).solve_all()
+    assert bottom.solves == top.solves and bottom.shared == bottom.solves
+    np.testing.assert_array_equal(bottom.table, top.table)
+    # the bottom layer's own cross-section, solved directly, is the same problem
+    for wa, wb, k in ((0.11, 0.23, 0), (0.23, 0.23, 3)):
+        gap = float(bottom.gaps[k])
+        assert float(bottom.c12_per_m(wa, wb, gap)) == approx(direct_c12(st, 2, wa, wb, gap, bottom.resolution), 1e-9)
+    g_top, g_bottom = GroundModel(st, 0, [0.11, 0.23]), GroundModel(st, 2, [0.11, 0.23])
+    assert g_bottom.shared == g_bottom.solves and np.array_equal(g_bottom.table, g_top.table)
+
+
+def test_layers_with_different_surroundings_share_nothing():
+    """A thicker bottom mask (25 um of er 3.4) makes a different problem."""
+    st = _two_sided(Dielectric(0.025, 3.4))
+    top = EdgeModel(st, 0, [0.11], max_gap_mm=0.2).solve_all()
+    bottom = EdgeModel(st, 2, [0.11], max_gap_mm=0.2).solve_all()
+    assert bottom.shared == 0
+    assert float(bottom.c12_per_m(0.11, 0.11, 0.1)) != approx(float(top.c12_per_m(0.11, 0.11, 0.1)), 1e-3)
+
+
+def test_section_signature_ignores_translation_and_reflection_only():
+    cs = CrossSection((Conductor(-0.2, -0.1, -0.035, 0.0, 0), Conductor(0.1, 0.3, -0.035, 0.0, 1)),
+                      (Slab(-0.235, -0.035, 4.2), Slab(-0.035, 0.015, 3.8)), (-0.235,))
+
+    def moved(c: CrossSection, dy: float, sign: float) -> CrossSection:
+        return CrossSection(tuple(Conductor(k.x0, k.x1, *sorted((sign * k.y0 + dy, sign * k.y1 + dy)), k.net)
+                                  for k in c.conductors),
+                            tuple(Slab(*sorted((sign * s.y0 + dy, sign * s.y1 + dy)), s.er) for s in c.slabs),
+                            tuple(sign * p + dy for p in c.planes))
+
+    key = section_signature(cs, 0.5, True)
+    assert section_signature(moved(cs, -1.37, 1.0), 0.5, True) == key
+    assert section_signature(moved(cs, 0.42, -1.0), 0.5, True) == key
+    assert section_signature(cs, 1.0, True) != key and section_signature(cs, 0.5, False) != key
+    swapped = CrossSection((Conductor(-0.2, -0.1, -0.035, 0.0, 1), Conductor(0.1, 0.3, -0.035, 0.0, 0)),
+                           cs.slabs, cs.planes)
+    assert section_signature(swapped, 0.5, True) != key  # conductor numbering matters
+    other = CrossSection(cs.conductors, (Slab(-0.235, -0.035, 4.3), Slab(-0.035, 0.015, 3.8)), cs.planes)
+    assert section_signature(other, 0.5, True) != key

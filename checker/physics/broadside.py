@@ -83,7 +83,30 @@ The table
   (a lower estimate where there is no plane, whose tail is algebraic).
 * Cost: 4 x 4 width knots, 2 mm: about 200 solves, 2.5-4 s on a shared
   2-core machine (more with no plane at all: the far box adds grid lines);
-  2 x 2 knots about 0.6 s. ``solves`` and ``build_seconds`` report it.
+  2 x 2 knots about 0.6 s. ``solves`` (table values field-solved, here or
+  shared, see below), ``shared`` (of those, taken from an identical
+  cross-section solved before) and ``build_seconds`` report it.
+
+Shared solves
+-------------
+The table models here and in ``checker.physics.edge`` solve through
+``solve_shared``, which keeps the results of recent solves (at most
+``SHARED_CACHE_SIZE``, least recently used dropped first) under the
+cross-section's ``section_signature``: its conductors, slabs and planes moved
+so the lowest conductor bottom is at y = 0, and of that and its mirror image
+(y -> -y) the one that sorts first, every length rounded to 1 nm, with the
+resolution and whether Richardson extrapolation was asked for. Two
+cross-sections with the same signature are the same electrostatic problem (a
+translation, or a reflection, of the same conductors, dielectrics and
+planes), so a layer (or layer pair) whose surroundings repeat those of
+another one reuses its solves instead of repeating them: the two outer
+layers of a board symmetric about its middle, the inner layers of a stackup
+built from repeated cores, and the wider tables of the what-if answers,
+whose knots are mostly the analysis's own. Solving the moved or mirrored
+grid instead gives the same matrix to rounding (measured: within 1.2e-15
+relative on a dual stripline pair, mirrored and moved by 0.3 and 1.2 mm),
+so a value does not depend, beyond rounding, on which layer was solved
+first.
 
 Crossings
 ---------
@@ -131,7 +154,9 @@ from __future__ import annotations
 
 import math
 import os
+import threading
 import time
+from collections import OrderedDict
 from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
@@ -139,7 +164,7 @@ from scipy.constants import epsilon_0
 
 from ..model import Stackup
 from ..stackup import effective_er, separation_mm
-from .fieldsolve import Conductor, CrossSection, Slab, solve
+from .fieldsolve import CapacitanceResult, Conductor, CrossSection, Slab, solve
 
 #: Solver resolution used for the tables (see ``fieldsolve``): 1.0-1.6 %
 #: high on broadside pairs, 5-30 ms a solve.
@@ -150,6 +175,77 @@ MAX_WIDTH_KNOTS = 4
 
 #: Growth of the offset steps beyond the overlap.
 _GROWTH = 1.7
+
+#: Most solves ``solve_shared`` keeps (a few hundred bytes each).
+SHARED_CACHE_SIZE = 20_000
+
+#: Lengths in a ``section_signature`` are rounded to this many decimals of a
+#: mm (1 nm).
+_SIGNATURE_DECIMALS = 6
+
+_shared: OrderedDict[tuple, CapacitanceResult] = OrderedDict()
+_shared_lock = threading.Lock()
+
+
+def section_signature(cs: CrossSection, resolution: float, richardson: bool = False) -> tuple | None:
+    """The key under which ``solve_shared`` shares solves of ``cs`` (module
+    docstring, "Shared solves"): ``cs`` moved so its lowest conductor bottom
+    is at y = 0, and of that and its mirror image (y -> -y) the one that sorts
+    first, lengths rounded to 1 nm; with ``resolution`` and ``richardson``.
+    None (not shared) for a cross-section with round conductors or a given
+    box, which the table models do not build."""
+    if not cs.conductors or not all(isinstance(c, Conductor) for c in cs.conductors) or cs.box is not None:
+        return None
+
+    def r(v: float) -> float:
+        return round(float(v), _SIGNATURE_DECIMALS) + 0.0  # + 0.0: no -0.0
+
+    def moved(sign: float) -> tuple:
+        ys = [sign * c.y0 for c in cs.conductors] + [sign * c.y1 for c in cs.conductors]
+        base = min(ys)
+
+        def y(v: float) -> float:
+            return r(sign * v - base)
+
+        conductors = tuple((r(c.x0), r(c.x1), *sorted((y(c.y0), y(c.y1))), c.net) for c in cs.conductors)
+        slabs = tuple(sorted((*sorted((y(s.y0), y(s.y1))), r(s.er)) for s in cs.slabs))
+        planes = tuple(sorted(y(p) for p in cs.planes))
+        return conductors, slabs, planes
+
+    return (min(moved(1.0), moved(-1.0)), r(cs.box_margin), float(resolution), bool(richardson))
+
+
+def solve_shared(sections: list[CrossSection], resolution: float,
+                 richardson: bool = False) -> tuple[list[CapacitanceResult], int]:
+    """``fieldsolve.solve(cs, resolution, richardson=richardson)`` of each of
+    ``sections``, two solves at a time, results in input order; a section
+    whose ``section_signature`` was solved before (or earlier in the list)
+    takes that result instead of being solved again. Returns the results and
+    how many were taken rather than solved."""
+    keys = [section_signature(cs, resolution, richardson) for cs in sections]
+    results: list[CapacitanceResult | None] = [None] * len(sections)
+    todo: dict[tuple | int, int] = {}  # key (or index, unshared) -> first index to solve
+    with _shared_lock:
+        for i, key in enumerate(keys):
+            if key is not None and key in _shared:
+                _shared.move_to_end(key)
+                results[i] = _shared[key]
+            else:
+                todo.setdefault(i if key is None else key, i)
+    first = sorted(todo.values())
+    workers = max(1, min(2, os.cpu_count() or 1))
+    with ThreadPoolExecutor(max_workers=workers) as pool:
+        solved = dict(zip(first, pool.map(lambda i: solve(sections[i], resolution, richardson=richardson), first)))
+    with _shared_lock:
+        for i in first:
+            if keys[i] is not None:
+                _shared[keys[i]] = solved[i]
+        while len(_shared) > SHARED_CACHE_SIZE:
+            _shared.popitem(last=False)
+    for i, key in enumerate(keys):
+        if results[i] is None:
+            results[i] = solved[todo[i if key is None else key]]
+    return results, len(sections) - len(first)  # type: ignore[return-value]
 
 
 def _layer_bands(stackup: Stackup) -> tuple[np.ndarray, np.ndarray]:
@@ -305,8 +401,10 @@ class BroadsideModel:
 
     The grid, the interpolation and the cross-section are described in the
     module docstring. ``widths_a_knots``, ``widths_b_knots``, ``offsets``
-    (per width pair) and ``table`` (F/m) hold what was solved;
-    ``build_seconds`` how long it took.
+    (per width pair) and ``table`` (F/m) hold what was solved; ``solves``
+    how many values, ``shared`` how many of them were taken from identical
+    cross-sections solved before (``solve_shared``), ``build_seconds`` how
+    long it took.
     """
 
     def __init__(self, stackup, upper: int, lower: int, widths_a, widths_b, max_offset_mm: float):
@@ -339,9 +437,8 @@ class BroadsideModel:
             for j in range(nb)
             for k, off in enumerate(self.offsets[i][j])
         ]
-        workers = max(1, min(2, os.cpu_count() or 1))
-        with ThreadPoolExecutor(max_workers=workers) as pool:
-            values = list(pool.map(lambda job: solve(job[3], self.resolution).c12, jobs))
+        solved, self.shared = solve_shared([job[3] for job in jobs], self.resolution)
+        values = [r.c12 for r in solved]
         self.table: list[list[np.ndarray]] = [[np.empty(len(self.offsets[i][j])) for j in range(nb)] for i in range(na)]
         for (i, j, k, _), v in zip(jobs, values):
             if not v > 0:
