@@ -67,8 +67,20 @@ def _parser() -> argparse.ArgumentParser:
                        help="solve every distinct coupled cross-section directly instead of interpolating "
                             "field-solved tables (slower; the report says which mode was used)")
 
-    check = sub.add_parser("check", help="check a board file")
-    check.add_argument("board", help="board geometry (neutral JSON)")
+    check = sub.add_parser(
+        "check", help="check a board: a neutral JSON file, or a fabrication package (folder, .zip or files)")
+    check.add_argument("board", nargs="+", metavar="BOARD",
+                       help="board geometry: one neutral JSON file, or a fabrication package given as one folder, "
+                            "one .zip, or its files (Gerber X2 copper layers, Excellon drills, a Gerber job file, "
+                            "an IPC-D-356 netlist; see docs/fab-package.md)")
+    check.add_argument("--stackup", metavar="FILE",
+                       help="stackup YAML for a fabrication package (instead of its Gerber job file)")
+    check.add_argument("--netlist", metavar="FILE",
+                       help="IPC-D-356 netlist naming the nets of copper that carries no TO.N attribute")
+    check.add_argument("--layer", metavar="FILE=L<n>[,ROLE]", action="append", default=[],
+                       help="say what a Gerber file of the package is: copper layer n (1 = top), optionally "
+                            "with its role (signal, plane, mixed), 'profile' (the board outline) or 'ignore'; "
+                            "repeatable")
     output_options(check)
     demo = sub.add_parser("demo", help="check the built-in demo board")
     output_options(demo)
@@ -104,8 +116,8 @@ def main(argv: list[str] | None = None) -> int:
             return _kinds(args.kind)
         if args.command == "waive":
             return _waive(args)
-        board_path = str(demo_board_path()) if args.command == "demo" else args.board
-        return _check(board_path, args)
+        board_paths = [str(demo_board_path())] if args.command == "demo" else args.board
+        return _check(board_paths, args)
     except CouplintError as exc:
         print(f"couplint: error: {exc}", file=sys.stderr)
         return EXIT_BAD_INPUT
@@ -123,19 +135,36 @@ def main(argv: list[str] | None = None) -> int:
         return EXIT_INTERNAL
 
 
-def _check(board_path: str, args: argparse.Namespace) -> int:
+def _load(board_paths: list[str], args: argparse.Namespace):
+    """The board from a JSON file or a fabrication package."""
     from .readers import load_board
+    from .readers.fab.package import is_package
+
+    package_options = [f"--{k}" for k in ("stackup", "netlist", "layer") if getattr(args, k, None)]
+    if not is_package(board_paths):
+        if package_options:
+            raise UsageError(f"{package_options[0]} is for fabrication packages; {board_paths[0]} is a board "
+                             "JSON file")
+        return load_board(board_paths[0])
+    from .readers.fab.assemble import load_package
+
+    return load_package(board_paths, stackup=getattr(args, "stackup", None), netlist=getattr(args, "netlist", None),
+                        layers=getattr(args, "layer", None))
+
+
+def _check(board_paths: list[str], args: argparse.Namespace) -> int:
     from .report import json_report, terminal
     from .review import build_review, load_baseline, load_waivers, today
     from .ruleset import default_ruleset, load_ruleset
     from .runner import check_board
 
     outputs = [p for p in (args.out, args.svg, args.html, args.junit) if p]
-    inputs = [board_path] + [p for p in (args.rules, args.waivers, args.baseline) if p]
+    inputs = list(board_paths) + [p for p in (args.rules, args.waivers, args.baseline, getattr(args, "stackup", None),
+                                                getattr(args, "netlist", None)) if p]
     for out in outputs:
         refuse_overwriting_inputs(out, inputs)
     ruleset = load_ruleset(args.rules) if args.rules else default_ruleset()
-    board = load_board(board_path)
+    board = _load(board_paths, args)
     # every input is read and validated before the (possibly long) check
     waivers = load_waivers(args.waivers) if args.waivers else None
     baseline = load_baseline(args.baseline) if args.baseline else None

@@ -1,0 +1,575 @@
+"""Join the files of a fabrication package into one :class:`Board`.
+
+``load_package(paths, stackup=..., netlist=..., layers=...)`` is the
+fabrication door's counterpart of ``load_board``: it sorts the package
+(``package.py``), reads every file with its format's reader, and builds the
+same model the JSON door builds.
+
+* **Stackup**: from the stackup YAML given with ``--stackup`` if any, else
+  from the package's Gerber job file; with neither it stops — couplint never
+  assumes a thickness or a permittivity. Copper layer *i* of the stackup is
+  the Gerber file whose ``TF.FileFunction`` says ``L<i>``; a layer without
+  a file (or a file without a layer) is an error.
+* **Layer roles**: the ``TF.FileFunction`` type field (``Plane``,
+  ``Signal``, ``Mixed``), else the role the stackup YAML gives, else
+  ``mixed`` — which never counts as a shield, so a missing role can only
+  add findings, never hide one — with a note.
+* **Copper**: round-aperture draws and arcs become pieces (one source per
+  stroke), every other copper object becomes a region; a via pad flashed
+  over a plated hole becomes part of that via instead. A negative layer
+  (``TF.FilePolarity,Negative``) is a plane: the board outline (or, without
+  a Profile file, the bounding box of all copper) minus what the file draws.
+* **Nets**: ``TO.N`` where the exporter gave it. Copper without it gets its
+  net by connectivity — objects that touch on a layer, joined through plated
+  holes, are one net — named after any ``TO.N`` in it, else an IPC-D-356
+  test point on it, else ``derived:<layer>@<x>,<y>`` (a name that says it
+  was derived) if it joins two or more terminals (pads, plated holes; a
+  via's pads and hole are one). Copper that joins fewer and has no name is
+  *unconnected copper*: it keeps no net and a note counts it per layer. An empty
+  ``TO.N`` or ``N/C`` marks copper the exporter says is on no net.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from collections import Counter
+
+import numpy as np
+import shapely
+from scipy.sparse import coo_matrix
+from scipy.sparse.csgraph import connected_components
+from shapely.geometry.polygon import orient
+
+from ...errors import FabError
+from ...model import NO_NET, Board, CopperLayer, Net, Pieces, Region, Stackup, Vias
+from .excellon import read_excellon
+from .gerber import read_gerber
+from .ipc356 import read_ipc356
+from .jobfile import read_job
+from .layer import NET_UNKNOWN, DrillFile, GerberLayer, JobStackup, Netlist
+from .package import Member, Sorted, collect, parse_layer_override
+from .stackup_yaml import load_stackup_yaml
+
+#: Two copper objects closer than this (mm) touch (coordinates are exact to
+#: 1 nm in a Gerber file with 6 decimals; this absorbs the rounding).
+TOUCH_TOLERANCE_MM = 1e-4
+
+#: A via pad belongs to a plated hole whose centre is within this (mm).
+PAD_AT_HOLE_MM = 1e-3
+
+#: Resolution of the round ends of traces when a negative plane subtracts them.
+_ROUND_SEGMENTS = 16
+
+#: Explicitly on no net: TO.N with an empty value, or N/C (Gerber X2).
+_NO_NET_NAMES = ("", "N/C")
+
+
+def load_package(paths: list[str], stackup: str | None = None, netlist: str | None = None,
+                 layers: list[str] | None = None) -> Board:
+    """Read the fabrication package named by ``paths`` (one folder, one
+    ``.zip``, or a list of files) into a Board. ``stackup``: a stackup YAML
+    file (wins over the job file); ``netlist``: an IPC-D-356 file outside
+    the package; ``layers``: ``FILE=L<n>[,role]`` / ``FILE=profile`` /
+    ``FILE=ignore`` identifications."""
+    overrides = dict(parse_layer_override(text) for text in (layers or []))
+    found = collect(paths, overrides)
+    notes: list[str] = []
+    job = _stackup_of(found, stackup, notes)
+    copper = _copper_files(found, job)
+    gerbers = {n: _read(member, read_gerber) for n, (member, _) in copper.items()}
+    drills = [_read(m, read_excellon) for m in found.drills]
+    nets_file = _netlist_of(found, netlist)
+    outline = _outline(found.profile, notes)
+    stack = _with_roles(job, copper, gerbers, notes)
+    return _Builder(found, job, stack, gerbers, drills, nets_file, outline, notes).build()
+
+
+def _read(member: Member, reader):
+    stream = member.open()
+    try:
+        return reader(stream, member.name)
+    finally:
+        stream.close()
+
+
+# --------------------------------------------------------------------------- stackup and layers
+
+
+def _stackup_of(found: Sorted, stackup: str | None, notes: list[str]) -> JobStackup:
+    if stackup is not None:
+        job = load_stackup_yaml(stackup)
+        if found.jobs:
+            notes.append(f"stackup from {stackup} (--stackup); the job file {found.jobs[0].name} was not used for it")
+        return job
+    if len(found.jobs) > 1:
+        raise FabError(found.jobs[1].name, None, f"a second Gerber job file; the first is {found.jobs[0].name}")
+    if not found.jobs:
+        raise FabError(found.path, None, "no stackup: the package has no Gerber job file (.gbrjob) and no "
+                                         "--stackup FILE was given; couplint does not assume layer "
+                                         "thicknesses or permittivities (see docs/fab-package.md)")
+    return _read(found.jobs[0], read_job)
+
+
+def _copper_files(found: Sorted, job: JobStackup) -> dict[int, tuple[Member, str | None]]:
+    wanted = set(job.copper_numbers)
+    have = set(found.copper)
+    missing = sorted(wanted - have)
+    extra = sorted(have - wanted)
+    if extra:
+        member = found.copper[extra[0]][0]
+        raise FabError(member.name, None, f"copper layer L{extra[0]}, but the stackup ({job.path}) has "
+                                          f"{len(wanted)} copper layers (L{min(wanted)}..L{max(wanted)})")
+    if missing:
+        unnamed = [s for s in found.skipped if "naming rule" in s]
+        hint = f"; files not identified: {', '.join(s.split(' (')[0] for s in unnamed)} (name them with --layer " \
+               f"FILE=L<n>)" if unnamed else ""
+        raise FabError(found.path, None, f"no Gerber file for copper layer(s) "
+                                         f"{', '.join(f'L{n}' for n in missing)} of the stackup ({job.path}){hint}")
+    return {n: found.copper[n] for n in job.copper_numbers}
+
+
+def _with_roles(job: JobStackup, copper: dict[int, tuple[Member, str | None]],
+                gerbers: dict[int, GerberLayer], notes: list[str]) -> Stackup:
+    layers = []
+    assumed = []
+    for layer, number in zip(job.stackup.layers, job.copper_numbers):
+        member, given = copper[number]
+        ff = gerbers[number].file_function
+        from_file = ff[3].lower() if ff is not None and len(ff) > 3 and ff[3] in ("Plane", "Signal", "Mixed") else None
+        role = given or from_file or (layer.role if job.roles_given else None)
+        if role is None:
+            role = "plane" if gerbers[number].negative else "mixed"
+            if not gerbers[number].negative:
+                assumed.append(layer.name)
+        elif from_file and job.roles_given and from_file != layer.role and not given:
+            notes.append(f"layer {layer.name}: role {from_file} from {member.name} (TF.FileFunction), "
+                         f"not {layer.role} as the stackup file says")
+        layers.append(dataclasses.replace(layer, role=role))
+    if assumed:
+        notes.append(f"layer role not given for {', '.join(assumed)} (no TF.FileFunction type, no stackup role): "
+                     "taken as mixed, which never shields; give it with --layer FILE=L<n>,plane|signal|mixed")
+    names = [layer.name for layer in layers]
+    if len(set(names)) != len(names) or not all(names):
+        layers = [dataclasses.replace(layer, name=f"L{n}") for layer, n in zip(layers, job.copper_numbers)]
+        notes.append("the stackup's copper layer names are missing or repeated: layers are named L1, L2, ...")
+    return dataclasses.replace(job.stackup, layers=tuple(layers))
+
+
+def _netlist_of(found: Sorted, netlist: str | None) -> Netlist | None:
+    if netlist is not None:
+        from .ipc356 import load_ipc356
+        return load_ipc356(netlist)
+    if len(found.netlists) > 1:
+        raise FabError(found.netlists[1].name, None, f"a second IPC-D-356 netlist; the first is "
+                                                     f"{found.netlists[0].name}")
+    return _read(found.netlists[0], read_ipc356) if found.netlists else None
+
+
+def _outline(profile: Member | None, notes: list[str]) -> shapely.Polygon | None:
+    if profile is None:
+        return None
+    drawn = _read(profile, read_gerber)
+    t = drawn.traces
+    lines = shapely.linestrings(np.stack([np.column_stack((t.x1, t.y1)), np.column_stack((t.x2, t.y2))], axis=1)) \
+        if len(t) else np.empty(0, dtype=object)
+    faces = [g for g in shapely.get_parts(shapely.polygonize(list(lines))) if g.area > 0] if len(lines) else []
+    faces += [p for s in drawn.shapes for p in shapely.get_parts(s.polygon) if p.area > 0]
+    if not faces:
+        notes.append(f"the board outline in {profile.name} is not a closed shape; no outline used")
+        return None
+    return orient(max(faces, key=lambda g: g.area), 1.0)
+
+
+# --------------------------------------------------------------------------- the board
+
+
+class _Builder:
+    """Turns the read files into Board columns; one instance per load."""
+
+    def __init__(self, found: Sorted, job: JobStackup, stackup: Stackup, gerbers: dict[int, GerberLayer],
+                 drills: list[DrillFile], netlist: Netlist | None, outline, notes: list[str]) -> None:
+        self.found = found
+        self.job = job
+        self.stackup = stackup
+        self.numbers = job.copper_numbers
+        self.layers = [gerbers[n] for n in self.numbers]
+        self.drills = drills
+        self.netlist = netlist
+        self.outline = outline
+        self.notes = notes
+        self.net_names: list[str] = []
+        self.net_index: dict[str, int] = {}
+        self.hole_nets: np.ndarray | None = None  # set by _connect
+
+    def net(self, name: str) -> int:
+        if name not in self.net_index:
+            self.net_index[name] = len(self.net_names)
+            self.net_names.append(name)
+        return self.net_index[name]
+
+    # ---- build ----------------------------------------------------------------
+
+    def build(self) -> Board:
+        self._negative_planes()
+        holes = self._plated_holes()
+        # per layer: the net label of each trace piece and shape, as global net
+        # indices, NO_NET for "on no net", NET_UNKNOWN_GLOBAL for "find out"
+        piece_nets = [self._known(layer, layer.traces.net) for layer in self.layers]
+        shape_nets = [self._known(layer, np.array([s.net for s in layer.shapes], dtype=np.int64))
+                      for layer in self.layers]
+        if any((a == _UNKNOWN).any() for a in piece_nets + shape_nets):
+            self._connect(piece_nets, shape_nets, holes)
+        vias, pad_used = self._vias(holes, shape_nets)
+        pieces, sources = self._pieces(piece_nets)
+        regions = self._regions(shape_nets, pad_used)
+        if len(pieces) == 0 and not regions:
+            raise FabError(self.found.path, None, "no copper in the package's copper layers")
+        nets = tuple(Net(name) for name in self.net_names)
+        return Board(name=self.found.name, path=self.found.path, stackup=self.stackup, nets=nets, pieces=pieces,
+                     sources=tuple(sources), regions=tuple(regions), vias=vias, outline=self.outline,
+                     notes=tuple(self.notes + [f"not read: {s}" for s in self.found.skipped]))
+
+    def _known(self, layer: GerberLayer, local: np.ndarray) -> np.ndarray:
+        table = np.array([NO_NET if n in _NO_NET_NAMES else self.net(n) for n in layer.net_names] + [_UNKNOWN],
+                         dtype=np.int64)
+        local = np.asarray(local, dtype=np.int64)
+        return table[np.where(local == NET_UNKNOWN, len(layer.net_names), local)]
+
+    # ---- negative planes ---------------------------------------------------------
+
+    def _negative_planes(self) -> None:
+        negatives = [i for i, layer in enumerate(self.layers) if layer.negative]
+        if not negatives:
+            return
+        frame = self.outline
+        if frame is None:
+            drawn = [_copper_union(layer) for layer in self.layers]
+            frame = shapely.envelope(shapely.union_all([d for d in drawn if d is not None and not d.is_empty]))
+            self.notes.append("negative plane layer(s) without a board outline (Profile file): the plane is taken "
+                              "to fill the bounding box of all copper")
+        for i in negatives:
+            layer = self.layers[i]
+            voids = _copper_union(layer)
+            plane = frame if voids is None else shapely.difference(frame, voids)
+            from .layer import GerberShape, GerberTraces  # local: only negative layers need them
+            parts = [p for p in shapely.get_parts(plane) if p.area > 0]
+            self.layers[i] = dataclasses.replace(
+                layer, negative=False, traces=_no_traces(GerberTraces),
+                shapes=[GerberShape("region", orient(p, 1.0), NET_UNKNOWN, 0, "Plane") for p in parts])
+            self.notes.append(f"layer {self.stackup.layers[i].name}: negative file {layer.path}: plane copper is "
+                              f"the {'outline' if self.outline is not None else 'copper bounding box'} minus "
+                              "what the file draws")
+
+    # ---- holes and connectivity -----------------------------------------------------
+
+    def _plated_holes(self) -> dict:
+        """Plated hits as arrays: x, y, diameter, first/last stackup index,
+        function, where."""
+        n = len(self.numbers)
+        pos = {number: i for i, number in enumerate(self.numbers)}
+        cols: dict[str, list] = {k: [] for k in ("x", "y", "d", "first", "last", "function", "where")}
+        through = []
+        for f in self.drills:
+            if f.plated is False:
+                continue
+            if f.span is None:
+                first, last = 0, n - 1
+                if len(f.x):
+                    through.append(f.path)
+            else:
+                a, b = sorted(f.span)
+                if a not in pos or b not in pos:
+                    raise FabError(f.path, None, f"TF.FileFunction spans layers {a} to {b}, but the stackup has "
+                                                 f"copper layers {self.numbers[0]}..{self.numbers[-1]}")
+                first, last = pos[a], pos[b]
+            k = len(f.x)
+            cols["x"].append(f.x)
+            cols["y"].append(f.y)
+            cols["d"].append(f.diameter)
+            cols["first"].append(np.full(k, first))
+            cols["last"].append(np.full(k, last))
+            cols["function"] += list(f.function)
+            cols["where"] += [f"{f.path}: line {int(line)}" for line in f.line]
+        if through:
+            self.notes.append(f"drill file(s) without TF.FileFunction span ({', '.join(through)}): holes taken as "
+                              "plated through the whole board")
+        out = {k: (np.concatenate(v) if v and k not in ("function", "where") else v) for k, v in cols.items()}
+        for k in ("x", "y", "d"):
+            out[k] = np.asarray(out[k], dtype=np.float64) if len(out[k]) else np.zeros(0)
+        for k in ("first", "last"):
+            out[k] = np.asarray(out[k], dtype=np.int64) if len(out[k]) else np.zeros(0, dtype=np.int64)
+        return out
+
+    def _connect(self, piece_nets: list[np.ndarray], shape_nets: list[np.ndarray], holes: dict) -> None:
+        """Give every object of unknown net the net of its connected copper
+        (modifies the arrays in place)."""
+        offsets = []  # node id of each layer's first piece and first shape
+        total = 0
+        for layer in self.layers:
+            offsets.append((total, total + len(layer.traces)))
+            total += len(layer.traces) + len(layer.shapes)
+        hole0 = total
+        total += len(holes["x"])
+        edges_a: list[np.ndarray] = []
+        edges_b: list[np.ndarray] = []
+        geoms_of: list[tuple[np.ndarray, np.ndarray, np.ndarray]] = []
+        for i, layer in enumerate(self.layers):
+            geoms, radius, node = _layer_geometry(layer, offsets[i])
+            on = np.flatnonzero((holes["first"] <= i) & (holes["last"] >= i))
+            if len(on):
+                geoms = np.concatenate([geoms, shapely.points(holes["x"][on], holes["y"][on])])
+                radius = np.concatenate([radius, holes["d"][on] / 2])
+                node = np.concatenate([node, hole0 + on])
+            geoms_of.append((geoms, radius, node))
+            if len(geoms) < 2:
+                continue
+            tree = shapely.STRtree(geoms)
+            reach = radius + float(radius.max()) + TOUCH_TOLERANCE_MM
+            a, b = tree.query(geoms, predicate="dwithin", distance=reach)
+            keep = a < b
+            a, b = a[keep], b[keep]
+            gap = shapely.distance(geoms[a], geoms[b])
+            touch = gap <= radius[a] + radius[b] + TOUCH_TOLERANCE_MM
+            edges_a.append(node[a[touch]])
+            edges_b.append(node[b[touch]])
+        a = np.concatenate(edges_a) if edges_a else np.zeros(0, dtype=np.int64)
+        b = np.concatenate(edges_b) if edges_b else np.zeros(0, dtype=np.int64)
+        graph = coo_matrix((np.ones(len(a), dtype=np.int8), (a, b)), shape=(total, total))
+        _, label = connected_components(graph, directed=False)
+
+        label_net = np.concatenate([np.concatenate([piece_nets[i], shape_nets[i]]) for i in range(len(self.layers))]
+                                   + [np.full(len(holes["x"]), _UNKNOWN, dtype=np.int64)])
+        names = self._component_names(label, label_net, offsets, hole0, holes, geoms_of)
+        for i, layer in enumerate(self.layers):
+            p0, s0 = offsets[i]
+            for arr, start in ((piece_nets[i], p0), (shape_nets[i], s0)):
+                unknown = np.flatnonzero(arr == _UNKNOWN)
+                if len(unknown):
+                    arr[unknown] = names[label[start + unknown]]
+        self.hole_nets = names[label[hole0:]] if len(holes["x"]) else np.zeros(0, dtype=np.int64)
+
+    def _component_names(self, label, label_net, offsets, hole0, holes, geoms_of) -> np.ndarray:
+        """Global net index per component (NO_NET for unconnected copper)."""
+        count = int(label.max()) + 1 if len(label) else 0
+        names = np.full(count, _UNKNOWN, dtype=np.int64)
+        known = label_net >= 0
+        shorts = []
+        votes: dict[int, Counter] = {}
+        for comp, net in zip(label[known].tolist(), label_net[known].tolist()):
+            votes.setdefault(comp, Counter())[net] += 1
+        for comp, counter in votes.items():
+            best = sorted(counter.items(), key=lambda kv: (-kv[1], self.net_names[kv[0]]))
+            names[comp] = best[0][0]
+            if len(best) > 1:
+                shorts.append(" / ".join(self.net_names[k] for k, _ in best))
+        if shorts:
+            self.notes.append(f"copper of different nets touches ({len(shorts)} place(s), e.g. {shorts[0]}); "
+                              "copper of unknown net there takes the net with most objects")
+        needs = np.zeros(count, dtype=bool)
+        needs[label[label_net == _UNKNOWN]] = True
+        needs &= names == _UNKNOWN
+        if self.netlist is not None and needs.any():
+            self._names_from_netlist(label, names, needs, geoms_of)
+        self._derived_names(label, names, needs & (names == _UNKNOWN), offsets, hole0, holes)
+        return names
+
+    def _names_from_netlist(self, label, names, needs, geoms_of) -> None:
+        n = len(self.layers)
+        votes: dict[int, Counter] = {}
+        trees = [shapely.STRtree(g) if len(g) else None for g, _, _ in geoms_of]
+        for p in self.netlist.points:
+            if p.net is None:
+                continue
+            if p.access is None or p.access == 0:
+                on = range(n)
+            else:
+                on = [i for i, number in enumerate(self.numbers) if number == p.access]
+            point = shapely.Point(p.x, p.y)
+            for i in on:
+                if trees[i] is None:
+                    continue
+                geoms, radius, node = geoms_of[i]
+                hit = trees[i].query(point, predicate="dwithin", distance=float(radius.max()) + TOUCH_TOLERANCE_MM)
+                hit = hit[shapely.distance(geoms[hit], point) <= radius[hit] + TOUCH_TOLERANCE_MM]
+                for comp in set(label[node[hit]].tolist()):
+                    if needs[comp]:
+                        votes.setdefault(comp, Counter())[p.net] += 1
+        conflicts = 0
+        for comp, counter in votes.items():
+            best = sorted(counter.items(), key=lambda kv: (-kv[1], kv[0]))
+            names[comp] = self.net(best[0][0])
+            conflicts += len(best) > 1
+        if conflicts:
+            self.notes.append(f"{conflicts} piece(s) of connected copper carry test points of more than one net in "
+                              f"{self.netlist.path}; each took the net with most points")
+
+    def _derived_names(self, label, names, todo, offsets, hole0, holes) -> None:
+        """Name the components no TO.N or test point named: ``derived:...``
+        if they join two or more terminals (pads, plated holes), else they
+        are unconnected copper."""
+        if not todo.any():
+            return
+        comp, layer, x, y = [], [], [], []
+        term_comp, term_key = [label[hole0:]], [_keys(holes["x"], holes["y"])]
+        for i, gl in enumerate(self.layers):
+            p0, s0 = offsets[i]
+            t = gl.traces
+            comp.append(label[p0:p0 + len(t)])
+            layer.append(np.full(len(t), i))
+            x.append(np.minimum(t.x1, t.x2))
+            y.append(np.minimum(t.y1, t.y2))
+            bounds = np.array([sh.polygon.bounds for sh in gl.shapes]).reshape(-1, 4)
+            comp.append(label[s0:s0 + len(gl.shapes)])
+            layer.append(np.full(len(gl.shapes), i))
+            x.append(bounds[:, 0])
+            y.append(bounds[:, 1])
+            pads = [k for k, sh in enumerate(gl.shapes) if sh.kind == "pad" and sh.at is not None]
+            term_comp.append(label[s0 + np.asarray(pads, dtype=np.int64)])
+            term_key.append(_keys(np.array([gl.shapes[k].at[0] for k in pads]),
+                                  np.array([gl.shapes[k].at[1] for k in pads])))
+        comp, layer, x, y = (np.concatenate(v) for v in (comp, layer, x, y))
+        # a net joins at least two terminals (pads or plated holes; a via's pads
+        # and its hole are one terminal): copper reaching fewer is floating
+        terminals = np.unique(np.column_stack((np.concatenate(term_comp), np.concatenate(term_key))), axis=0)
+        reaches = np.bincount(terminals[:, 0], minlength=len(names)) >= 2 if len(terminals) else \
+            np.zeros(len(names), dtype=bool)
+        mine = np.flatnonzero(todo[comp])
+        order = mine[np.lexsort((np.round(y[mine], 3), np.round(x[mine], 3), layer[mine], comp[mine]))]
+        firsts = order[np.r_[True, comp[order][1:] != comp[order][:-1]]] if len(order) else order
+        names[todo] = NO_NET  # a hole with no copper around it stays on no net
+        derived = 0
+        unconnected: Counter = Counter()
+        for k in firsts.tolist():
+            c = int(comp[k])
+            where = self.stackup.layers[int(layer[k])].name
+            if reaches[c]:
+                names[c] = self.net(f"derived:{where}@{x[k]:.3f},{y[k]:.3f}")
+                derived += 1
+            else:
+                unconnected[where] += 1
+        if derived:
+            self.notes.append(f"{derived} net(s) without a name in the package were found by connectivity and "
+                              "named derived:<layer>@<x>,<y> (their lowest-left copper)")
+        if unconnected:
+            self.notes.append("unconnected copper (no net name, no test point, fewer than two pads or holes): " +
+                              ", ".join(f"{n} island(s) on {name}" for name, n in sorted(unconnected.items())))
+
+    # ---- vias, pieces, regions --------------------------------------------------------
+
+    def _vias(self, holes: dict, shape_nets: list[np.ndarray]) -> tuple[Vias, set]:
+        """Vias from plated via holes (and holes of unknown function); the pad
+        is the largest flash centred on the hole on the layers it spans."""
+        used: set[tuple[int, int]] = set()
+        keep = [k for k, f in enumerate(holes["function"]) if f in ("", "ViaDrill") or f.startswith("Via")]
+        pads: dict[tuple[int, int], list[tuple[int, int]]] = {}
+        for i, layer in enumerate(self.layers):
+            for k, s in enumerate(layer.shapes):
+                if s.kind == "pad" and s.at is not None:
+                    pads.setdefault(_grid(s.at), []).append((i, k))
+        hole_nets = self.hole_nets
+        x, y, d, pad, first, last, net = [], [], [], [], [], [], []
+        for k in keep:
+            hx, hy = float(holes["x"][k]), float(holes["y"][k])
+            lo, hi = int(holes["first"][k]), int(holes["last"][k])
+            best, best_net = 0.0, NO_NET
+            for i, j in pads.get(_grid((hx, hy)), []):
+                s = self.layers[i].shapes[j]
+                if lo <= i <= hi and math.dist(s.at, (hx, hy)) <= PAD_AT_HOLE_MM:
+                    x0, y0, x1, y1 = s.polygon.bounds
+                    best = max(best, min(x1 - x0, y1 - y0))
+                    if shape_nets[i][j] >= 0 and best_net == NO_NET:
+                        best_net = int(shape_nets[i][j])
+                    if s.function in (None, "ViaPad"):
+                        used.add((i, j))
+            if hole_nets is not None and hole_nets[k] >= 0:
+                best_net = int(hole_nets[k])
+            x.append(hx)
+            y.append(hy)
+            d.append(float(holes["d"][k]))
+            pad.append(max(best, float(holes["d"][k])))
+            first.append(lo)
+            last.append(hi)
+            net.append(best_net)
+        f = lambda v: np.asarray(v, dtype=np.float64)  # noqa: E731
+        i32 = lambda v: np.asarray(v, dtype=np.int32)  # noqa: E731
+        return Vias(f(x), f(y), f(d), f(pad), i32(first), i32(last), i32(net)), used
+
+    def _pieces(self, piece_nets: list[np.ndarray]) -> tuple[Pieces, list[str]]:
+        cols: dict[str, list[np.ndarray]] = {k: [] for k in Pieces.__dataclass_fields__}
+        sources: list[str] = []
+        for i, layer in enumerate(self.layers):
+            t = layer.traces
+            if len(t) == 0:
+                continue
+            for k in ("x1", "y1", "x2", "y2", "width", "ordinal"):
+                cols[k].append(getattr(t, k))
+            cols["net"].append(piece_nets[i])
+            cols["layer"].append(np.full(len(t), i))
+            cols["source"].append(np.asarray(t.stroke, dtype=np.int64) + len(sources))
+            sources += [f"{layer.path}: line {int(line)}" for line in t.stroke_line]
+        if not cols["x1"]:
+            return Pieces.empty(), sources
+        return Pieces.from_columns(*(np.concatenate(cols[k]) for k in Pieces.__dataclass_fields__)), sources
+
+    def _regions(self, shape_nets: list[np.ndarray], pad_used: set) -> list[Region]:
+        out = []
+        for i, layer in enumerate(self.layers):
+            for k, s in enumerate(layer.shapes):
+                if (i, k) in pad_used:
+                    continue
+                net = int(shape_nets[i][k])
+                for part in shapely.get_parts(s.polygon):
+                    if part.area > 0:
+                        where = f"{layer.path}: line {s.line}" if s.line else layer.path
+                        out.append(Region(i, net if net >= 0 else NO_NET, orient(part, 1.0), where))
+        return out
+
+
+#: Net label meaning "not known yet" in the builder's global-index arrays.
+_UNKNOWN = -2
+
+
+def _keys(x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """One int64 per position on the ``PAD_AT_HOLE_MM`` grid (x in the high half)."""
+    gx = np.round(np.asarray(x, dtype=np.float64) / PAD_AT_HOLE_MM).astype(np.int64)
+    gy = np.round(np.asarray(y, dtype=np.float64) / PAD_AT_HOLE_MM).astype(np.int64)
+    return (gx << 32) + (gy & 0xFFFFFFFF)
+
+
+def _grid(xy: tuple[float, float]) -> tuple[int, int]:
+    return (round(xy[0] / PAD_AT_HOLE_MM), round(xy[1] / PAD_AT_HOLE_MM))
+
+
+def _layer_geometry(layer: GerberLayer, offsets: tuple[int, int]):
+    """(geometries, radius, node id) of a layer's pieces (centrelines with
+    half their width) and shapes (polygons, radius 0)."""
+    t = layer.traces
+    p0, s0 = offsets
+    if len(t):
+        coords = np.stack([np.column_stack((t.x1, t.y1)), np.column_stack((t.x2, t.y2))], axis=1)
+        lines = shapely.linestrings(coords)
+    else:
+        lines = np.empty(0, dtype=object)
+    shapes = np.array([s.polygon for s in layer.shapes], dtype=object)
+    geoms = np.concatenate([lines, shapes]) if len(shapes) else lines
+    radius = np.concatenate([np.asarray(t.width, dtype=np.float64) / 2, np.zeros(len(shapes))])
+    node = np.concatenate([p0 + np.arange(len(t)), s0 + np.arange(len(shapes))])
+    return geoms, radius, node
+
+
+def _copper_union(layer: GerberLayer):
+    t = layer.traces
+    parts = []
+    if len(t):
+        coords = np.stack([np.column_stack((t.x1, t.y1)), np.column_stack((t.x2, t.y2))], axis=1)
+        parts += list(shapely.buffer(shapely.linestrings(coords), np.asarray(t.width) / 2,
+                                     quad_segs=_ROUND_SEGMENTS // 4))
+    parts += [s.polygon for s in layer.shapes]
+    return shapely.union_all(parts) if parts else None
+
+
+def _no_traces(cls):
+    f = np.zeros(0, dtype=np.float64)
+    i = np.zeros(0, dtype=np.int64)
+    return cls(f, f.copy(), f.copy(), f.copy(), f.copy(), i, i.copy(), i.copy(), i.copy())

@@ -1,0 +1,93 @@
+"""`couplint check` on a fabrication package: the folder, .zip or file-list
+door from the command line, its options (--stackup, --netlist, --layer) and
+its errors (one line naming the file and place, exit 2, no traceback, no
+output file left behind)."""
+
+from __future__ import annotations
+
+import json
+import pathlib
+import shutil
+
+import pytest
+
+from checker.cli import main
+
+ROOT = pathlib.Path(__file__).resolve().parent.parent
+SIX = ROOT / "fixtures" / "fab" / "six_layer"
+
+
+def run(capsys, *argv):
+    code = main([str(a) for a in argv])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def test_folder_check_reports_findings_and_reader_notes(capsys):
+    code, out, err = run(capsys, "check", SIX, "--format", "json")
+    assert code == 1, err
+    report = json.loads(out)
+    assert report["board"]["name"] == "six_layer"
+    assert [c["copper"] for c in report["board"]["stackup"] if "copper" in c] == \
+        ["TOP", "GND", "IN2", "IN3", "PWR", "BOT"]
+    assert report["summary"]["findings"] > 0
+    assert any(n.startswith("unconnected copper") for n in report["notes"])
+
+
+def test_stackup_yaml_replaces_a_missing_job_file(capsys, tmp_path):
+    folder = tmp_path / "nojob"
+    shutil.copytree(SIX, folder)
+    (folder / "six-layer-fab.gbrjob").unlink()
+    code, _, err = run(capsys, "check", folder)
+    assert code == 2
+    assert "no stackup" in err and "--stackup" in err and "Traceback" not in err
+    board = json.loads((ROOT / "fixtures" / "six_layer_fab.json").read_text())
+    import yaml
+    stack = tmp_path / "stack.yaml"
+    stack.write_text(yaml.safe_dump({"units": board.get("units", "mm"), "stackup": board["stackup"]}))
+    code, out, err = run(capsys, "check", folder, "--stackup", stack, "--format", "json")
+    assert code == 1, err
+    with_job = json.loads(run(capsys, "check", SIX, "--format", "json")[1])
+    assert [f["id"] for f in json.loads(out)["findings"]] == [f["id"] for f in with_job["findings"]]
+
+
+def test_unidentified_copper_file_is_named_and_layer_option_fixes_it(capsys, tmp_path):
+    folder = tmp_path / "renamed"
+    shutil.copytree(SIX, folder)
+    text = (folder / "six-layer-fab-L3.gbr").read_text()
+    (folder / "six-layer-fab-L3.gbr").unlink()
+    stripped = "\n".join(line for line in text.splitlines() if "TF.FileFunction" not in line) + "\n"
+    (folder / "inner-a.gbr").write_text(stripped)
+    code, _, err = run(capsys, "check", folder)
+    assert code == 2 and "L3" in err and "inner-a.gbr" in err and "--layer" in err
+    code, out, err = run(capsys, "check", folder, "--layer", "inner-a.gbr=L3,signal", "--format", "json")
+    assert code == 1, err
+
+
+def test_bad_gerber_gives_one_line_with_file_and_line(capsys, tmp_path):
+    folder = tmp_path / "bad"
+    shutil.copytree(SIX, folder)
+    path = folder / "six-layer-fab-L2.gbr"
+    lines = path.read_text().splitlines()
+    lines.insert(20, "D999*")
+    path.write_text("\n".join(lines) + "\n")
+    out_file = tmp_path / "report.json"
+    code, _, err = run(capsys, "check", folder, "--format", "json", "--out", out_file)
+    assert code == 2
+    assert err.count("\n") == 1 and "six-layer-fab-L2.gbr" in err and "line 21" in err
+    assert "Traceback" not in err and not out_file.exists()
+
+
+def test_package_options_refused_for_a_json_board(capsys):
+    code, _, err = run(capsys, "check", ROOT / "fixtures" / "six_layer_fab.json", "--stackup", "x.yaml")
+    assert code == 2 and "--stackup is for fabrication packages" in err
+
+
+def test_output_may_not_overwrite_a_package_file(capsys, tmp_path):
+    folder = tmp_path / "pkg"
+    shutil.copytree(SIX, folder)
+    target = folder / "six-layer-fab-L1.gbr"
+    before = target.read_bytes()
+    code, _, err = run(capsys, "check", folder, "--out", target)
+    assert code == 2 and "refusing to overwrite" in err
+    assert target.read_bytes() == before
