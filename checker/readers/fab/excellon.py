@@ -82,6 +82,7 @@ import numpy as np
 
 from ...errors import FabError
 from .layer import DrillFile
+from .source import read_path
 
 #: Larger files are refused before they are read (256 MiB).
 MAX_FILE_BYTES = 256 * 1024 * 1024
@@ -112,16 +113,7 @@ _ATTRIBUTE = re.compile(r";\s*#@!\s*(.*)")
 
 def load_excellon(path: str | os.PathLike[str]) -> DrillFile:
     """Read the Excellon file at ``path`` (see the module docstring)."""
-    file = os.fspath(path)
-    try:
-        with open(file, "rb") as stream:
-            return read_excellon(stream, file)
-    except FileNotFoundError:
-        raise FabError(file, None, "no such file") from None
-    except IsADirectoryError:
-        raise FabError(file, None, "is a folder, not a drill file") from None
-    except OSError as exc:
-        raise FabError(file, None, f"cannot read the file: {exc.strerror or exc}") from None
+    return read_path(path, read_excellon, "a drill file")
 
 
 def read_excellon(stream: BinaryIO, name: str) -> DrillFile:

@@ -66,6 +66,7 @@ from typing import BinaryIO, NoReturn
 
 from ...errors import FabError
 from .layer import Netlist, NetPoint
+from .source import read_path
 
 #: Larger files are refused before they are read (256 MiB).
 MAX_FILE_BYTES = 256 * 1024 * 1024
@@ -93,16 +94,7 @@ _NNAME = re.compile(r"NNAME[0-9]+", re.ASCII)
 
 def load_ipc356(path: str | os.PathLike[str]) -> Netlist:
     """Read the IPC-D-356 file at ``path`` (see the module docstring)."""
-    file = os.fspath(path)
-    try:
-        with open(file, "rb") as stream:
-            return read_ipc356(stream, file)
-    except FileNotFoundError:
-        raise FabError(file, None, "no such file") from None
-    except IsADirectoryError:
-        raise FabError(file, None, "is a folder, not a netlist file") from None
-    except OSError as exc:
-        raise FabError(file, None, f"cannot read the file: {exc.strerror or exc}") from None
+    return read_path(path, read_ipc356, "a netlist file")
 
 
 def read_ipc356(stream: BinaryIO, name: str) -> Netlist:

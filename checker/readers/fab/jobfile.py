@@ -75,6 +75,7 @@ from ...errors import FabError
 from ...model import CopperLayer, Dielectric, Stackup
 from ..board_json import format_path
 from .layer import JobStackup
+from .source import read_path
 
 #: Larger files are refused before they are read (256 MiB).
 MAX_FILE_BYTES = 256 * 1024 * 1024
@@ -87,16 +88,7 @@ _DECIMAL = re.compile(r"\s*([+-]?(?:[0-9]+(?:[.,][0-9]*)?|[.,][0-9]+)(?:[eE][+-]
 
 def load_job(path: str | os.PathLike[str]) -> JobStackup:
     """Read the Gerber job file at ``path`` (see the module docstring)."""
-    file = os.fspath(path)
-    try:
-        with open(file, "rb") as stream:
-            return read_job(stream, file)
-    except FileNotFoundError:
-        raise FabError(file, None, "no such file") from None
-    except IsADirectoryError:
-        raise FabError(file, None, "is a folder, not a job file") from None
-    except OSError as exc:
-        raise FabError(file, None, f"cannot read the file: {exc.strerror or exc}") from None
+    return read_path(path, read_job, "a job file")
 
 
 def read_job(stream: BinaryIO, name: str) -> JobStackup:

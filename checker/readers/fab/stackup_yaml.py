@@ -54,6 +54,7 @@ from ...errors import BoardError, FabError
 from ...model import Stackup
 from .. import board_json
 from .layer import JobStackup
+from .source import read_path
 
 #: Larger files are refused before they are read (1 MiB: a stackup is small).
 MAX_FILE_BYTES = 1024 * 1024
@@ -66,16 +67,7 @@ _PATH_PART = re.compile(r'\.?([A-Za-z_][A-Za-z0-9_]*)|\[([0-9]+)\]|\[("(?:[^"\\]
 
 def load_stackup_yaml(path: str | os.PathLike[str]) -> JobStackup:
     """Read the stackup YAML file at ``path`` (see the module docstring)."""
-    file = os.fspath(path)
-    try:
-        with open(file, "rb") as stream:
-            return read_stackup_yaml(stream, file)
-    except FileNotFoundError:
-        raise FabError(file, None, "no such file") from None
-    except IsADirectoryError:
-        raise FabError(file, None, "is a folder, not a stackup file") from None
-    except OSError as exc:
-        raise FabError(file, None, f"cannot read the file: {exc.strerror or exc}") from None
+    return read_path(path, read_stackup_yaml, "a stackup file")
 
 
 def read_stackup_yaml(stream: BinaryIO, name: str) -> JobStackup:
