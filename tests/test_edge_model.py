@@ -40,6 +40,7 @@ from checker.physics.edge import (
     gap_knots,
     ground_knots,
     ground_section,
+    plate_decay_per_mm,
 )
 from checker.physics.fieldsolve import Conductor, CrossSection, Slab, solve
 
@@ -77,6 +78,46 @@ def test_zero_thickness_stripline_pair_matches_cohn_1955(w, gap, rel):
     m = EdgeModel(st, 1, [w], max_gap_mm=gap)
     exact = cap.coupled_stripline_modes(w, gap, 0.4, 4.0).c12_per_m  # Cohn 1955, exact
     assert float(m.c12_per_m(w, w, gap)) == approx(float(exact), rel)
+
+
+@pytest.mark.parametrize("w", [0.1, 0.2])
+@pytest.mark.parametrize("gap", [0.8, 1.0, 1.6, 2.4])
+def test_far_stripline_tail_matches_cohn_1955(w, gap):
+    """Two to six plane spacings apart (b = 0.4 mm), where C12' has fallen by
+    1e2-1e7 and a direct solve at the table's resolution is off by tens of
+    percent, the between-planes decay law from the anchor knot keeps the
+    model on Cohn's exact value (measured: within 0.65 %)."""
+    m = EdgeModel(stripline(t=0.0), 1, [w], max_gap_mm=gap)
+    exact = cap.coupled_stripline_modes(w, gap, 0.4, 4.0).c12_per_m  # Cohn 1955, exact
+    assert float(m.c12_per_m(w, w, gap)) == approx(float(exact), 0.01)
+
+
+def test_plate_decay_of_one_dielectric_is_pi_over_b():
+    """Separation of variables between grounded planes b apart: the slowest
+    mode is sin(pi y / b) exp(-pi x / b), whatever the permittivity."""
+    for b, er in ((0.4, 4.0), (0.1427, 3.58), (1.2, 1.0)):
+        assert plate_decay_per_mm((0.0, b), (Slab(0.0, b, er),)) == approx(np.pi / b, 1e-6)
+
+
+@pytest.mark.parametrize("d1, e1, d2, e2", [(0.1, 3.0, 0.3, 4.5), (0.2, 4.2, 0.05, 2.0), (0.15, 1.0, 0.15, 4.0)])
+def test_plate_decay_of_two_dielectrics_solves_the_interface_condition(d1, e1, d2, e2):
+    """Two slabs: Y = sin(k y) below the interface, sin(k (b - y)) above; Y and
+    eps Y' continuous give eps1 cot(k d1) + eps2 cot(k d2) = 0, whose smallest
+    root is found here with scipy's brentq, independently of the solver."""
+    from scipy.optimize import brentq
+
+    def condition(k):
+        return e1 / np.tan(k * d1) + e2 / np.tan(k * d2)
+
+    upper = np.pi / max(d1, d2)  # the first pole of the thicker slab's cotangent
+    root = brentq(condition, 1e-9 + 1e-6 * upper, upper * (1 - 1e-9))
+    got = plate_decay_per_mm((0.0, d1 + d2), (Slab(0.0, d1, e1), Slab(d1, d1 + d2, e2)))
+    assert got == approx(root, 1e-5)
+
+
+def test_no_decay_law_without_two_planes():
+    assert plate_decay_per_mm((0.0,), (Slab(-0.2, 0.0, 4.3),)) is None
+    assert plate_decay_per_mm((), ()) is None
 
 
 @pytest.mark.parametrize("w", [0.1, 0.2, 0.5])
