@@ -1,7 +1,8 @@
 """``couplint batch``: check many boards in parallel and report for CI.
 
-Targets are board files, folders (every ``*.json`` directly inside) and glob
-patterns. Each board is checked by :func:`check_one` in a worker: a local
+Targets are board files, fabrication packages (a folder holding Gerber
+files or a Gerber job file and no ``*.json``, or a ``.zip``), folders
+(every ``*.json`` directly inside) and glob patterns. Each board is checked by :func:`check_one` in a worker: a local
 process pool (``--jobs``) or a Dask distributed cluster (``--scheduler``).
 A worker loads the rule set itself (from its path), checks the board and
 returns a :class:`BoardOutcome` with the board's JSON report as text; the
@@ -93,24 +94,32 @@ class BoardOutcome:
 # --------------------------------------------------------------------------- worker
 
 def check_one(path: str, rules: str | None, fail_on: str = "warning", waivers: str | None = None,
-              baseline: str | None = None, today: datetime.date | None = None) -> BoardOutcome:
+              baseline: str | None = None, today: datetime.date | None = None,
+              stackup: str | None = None) -> BoardOutcome:
     """Check one board file; runs in a worker. Never raises: a board that
     cannot be loaded or checked comes back with ``verdict="error"`` and the
     message in ``error``.
 
     ``rules``, ``waivers`` (a waiver file) and ``baseline`` (an earlier JSON
     report of this board) are paths the worker reads itself; ``today`` is the
-    date waiver expiry is judged on (default: the worker's today)."""
+    date waiver expiry is judged on (default: the worker's today);
+    ``stackup``: a stackup YAML for fabrication packages without a job file."""
     start = time.perf_counter()
-    name = os.path.splitext(os.path.basename(path))[0]
+    name = board_stem(path)
     try:
         from .readers import load_board
+        from .readers.fab.package import is_package
         from .report import json_report, junit
         from .ruleset import default_ruleset, load_ruleset
         from .runner import check_board
 
         ruleset = load_ruleset(rules) if rules else default_ruleset()
-        board = load_board(path)
+        if is_package([path]):
+            from .readers.fab.assemble import load_package
+
+            board = load_package([path], stackup=stackup)
+        else:
+            board = load_board(path)
         name = board.name
         waiver_file = baseline_report = None
         if waivers or baseline:  # read every input before the check
@@ -185,8 +194,10 @@ def _positive_float(text: str) -> float:
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     """The options of ``couplint batch``."""
     parser.add_argument("targets", nargs="+", metavar="TARGET",
-                        help="board files, folders (every *.json directly inside) or glob patterns "
-                             "(quote them; ** recurses)")
+                        help="board files, fabrication packages (a folder of Gerber files or a .zip), folders "
+                             "(every *.json directly inside) or glob patterns (quote them; ** recurses)")
+    parser.add_argument("--stackup", metavar="FILE",
+                        help="stackup YAML for fabrication packages that have no Gerber job file")
     parser.add_argument("--rules", metavar="FILE",
                         help="rule file (YAML); default: the shipped 'default' rule set")
     parser.add_argument("--out-dir", required=True, metavar="DIR",
@@ -243,7 +254,8 @@ def run(args: argparse.Namespace) -> int:
 
         load_waivers(args.waivers)
         today = review_today()  # one date for every board, also on remote workers
-    options = {"rules": args.rules, "fail_on": args.fail_on, "waivers": args.waivers, "today": today}
+    options = {"rules": args.rules, "fail_on": args.fail_on, "waivers": args.waivers, "today": today,
+               "stackup": args.stackup}
     if args.scheduler:
         source = _dask_outcomes(boards, baselines, options, args.scheduler, args.connect_timeout)
     else:
@@ -305,10 +317,11 @@ def expand_targets(targets: Iterable[str]) -> list[str]:
     nothing."""
     found: list[str] = []
     for target in targets:
+        target = target.rstrip("/\\") or target
         if os.path.isdir(target):
-            inside = _json_in(target)
+            inside = _boards_in(target)
             if not inside:
-                raise UsageError(f"{target}: no *.json files in this folder")
+                raise UsageError(f"{target}: no *.json files and no fabrication package in this folder")
             found.extend(inside)
         elif os.path.isfile(target):
             found.append(target)
@@ -316,7 +329,10 @@ def expand_targets(targets: Iterable[str]) -> list[str]:
             matches = sorted(glob.glob(target, recursive=True))
             files = []
             for m in matches:
-                files.extend(_json_in(m) if os.path.isdir(m) else [m] if os.path.isfile(m) else [])
+                if os.path.isdir(m):
+                    files.extend(_boards_in(m.rstrip("/\\")))
+                elif os.path.isfile(m):
+                    files.append(m)
             if not files:
                 raise UsageError(f"{target}: the pattern matches no files")
             found.extend(files)
@@ -334,6 +350,39 @@ def expand_targets(targets: Iterable[str]) -> list[str]:
     return out
 
 
+def _boards_in(folder: str) -> list[str]:
+    """The boards a folder target stands for: its ``*.json`` files, or, if
+    it has none but holds Gerber files or a Gerber job file, the folder
+    itself (one fabrication package)."""
+    inside = _json_in(folder)
+    if inside:
+        return inside
+    return [folder] if _looks_like_package(folder) else []
+
+
+def _looks_like_package(folder: str) -> bool:
+    """Whether a folder holds a Gerber job file or a Gerber file (by content,
+    as the package reader sniffs them)."""
+    from .readers.fab.package import sniff_kind
+
+    try:
+        names = sorted(os.listdir(folder))
+    except OSError:
+        return False
+    for n in names:
+        p = os.path.join(folder, n)
+        if os.path.isfile(p) and not n.startswith(".") and sniff_kind(p) in ("gerber", "job"):
+            return True
+    return False
+
+
+def board_stem(path: str) -> str:
+    """The name a board's report is filed under: the file or folder name
+    without its extension (``rev-c/`` -> ``rev-c``, ``rev-c.zip`` -> ``rev-c``)."""
+    base = os.path.basename(path.rstrip("/\\")) or path
+    return base if os.path.isdir(path) else os.path.splitext(base)[0]
+
+
 def _json_in(folder: str) -> list[str]:
     try:
         names = sorted(os.listdir(folder))
@@ -349,7 +398,7 @@ def report_names(boards: list[str]) -> dict[str, str]:
     path order, the first keeps ``<stem>.json`` and the others get
     ``<stem>-2.json``, ``<stem>-3.json``, ... skipping any name already in
     use. Depends only on the list of paths."""
-    stems = {b: os.path.splitext(os.path.basename(b))[0] for b in boards}
+    stems = {b: board_stem(b) for b in boards}
     counts: dict[str, int] = {}
     for s in stems.values():
         counts[s.casefold()] = counts.get(s.casefold(), 0) + 1

@@ -190,7 +190,7 @@ def test_glob_and_folder_targets(boards, capsys):
 @pytest.mark.parametrize("target, message", [
     ("nope.json", "nope.json: no such file or folder"),
     ("boards/*.yaml", "boards/*.yaml: the pattern matches no files"),
-    ("empty", "empty: no *.json files in this folder"),
+    ("empty", "empty: no *.json files and no fabrication package in this folder"),
 ])
 def test_targets_that_name_nothing(boards, capsys, target, message):
     Path("empty").mkdir()
@@ -288,7 +288,8 @@ def test_waivers_and_baseline_dir(boards, capsys):
 
 def test_check_one_never_raises(tmp_path):
     outcome = batch.check_one(str(tmp_path), None, "warning")
-    assert outcome.verdict == "error" and outcome.error == f"{tmp_path}: is a folder, not a board file"
+    # a folder is read as a fabrication package: an empty one is an error row, not an exception
+    assert outcome.verdict == "error" and outcome.error == f"{tmp_path}: the folder holds no files"
     outcome = batch.check_one(str(demo_board_path()), str(tmp_path / "missing.yaml"), "warning")
     assert outcome.verdict == "error" and "missing.yaml" in outcome.error and outcome.report_text is None
 
@@ -384,3 +385,30 @@ def test_dask_cluster_gives_the_same_summary(boards, capsys):
     assert Path("dask.xml").read_bytes() == Path("pool.xml").read_bytes()
     assert snapshot(Path("out")) == pool_reports
     assert "4 boards: 3 fail, 1 error" in out
+
+
+def test_fabrication_packages_are_batch_targets(tmp_path, monkeypatch, capsys):
+    """Revisions as exported: a package folder, a .zip of it and a JSON board in
+    one batch; each package is one board, reported under its folder or archive
+    name, with the same findings as a single check of it."""
+    import zipfile
+
+    monkeypatch.chdir(tmp_path)
+    package = Path(__file__).resolve().parent.parent / "fixtures" / "fab" / "six_layer"
+    Path("revs").mkdir()
+    shutil.copytree(package, "revs/rev-a")
+    with zipfile.ZipFile("revs/rev-b.zip", "w") as z:
+        for p in sorted(package.iterdir()):
+            z.write(p, p.name)
+    shutil.copy(FIXTURES / GOOD[1], "revs/" + GOOD[1])
+    code, out, err = run_batch(capsys, "revs/*", "--out-dir", "out", "--summary-json", "s.json", "--jobs", "1")
+    assert code == 1, err
+    rows = {b["path"]: b for b in json.loads(Path("s.json").read_text())["boards"]}
+    assert set(rows) == {"revs/rev-a", "revs/rev-b.zip", "revs/" + GOOD[1]}
+    assert rows["revs/rev-a"]["verdict"] == rows["revs/rev-b.zip"]["verdict"] == "fail"
+    a = json.loads(Path("out/rev-a.json").read_text())
+    b = json.loads(Path("out/rev-b.json").read_text())
+    assert [f["id"] for f in a["findings"]] == [f["id"] for f in b["findings"]]
+    assert cli_main(["check", "revs/rev-a", "--format", "json", "--out", "single.json"]) == 1
+    assert [f["id"] for f in json.loads(Path("single.json").read_text())["findings"]] == \
+        [f["id"] for f in a["findings"]]

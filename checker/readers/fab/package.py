@@ -239,6 +239,17 @@ def _override_for(m: Member, overrides: dict[str, str], used: set[str]) -> str |
 # --------------------------------------------------------------------------- sniffing
 
 
+def sniff_kind(path: str) -> str | None:
+    """``gerber``, ``job``, ``drill``, ``netlist`` or ``None`` for the file
+    at ``path``, from its first bytes (unreadable files: ``None``)."""
+    try:
+        with open(path, "rb") as stream:
+            head = stream.read(SNIFF_BYTES)
+    except OSError:
+        return None
+    return _kind(head, _stem(os.path.basename(path)))
+
+
 def _kind(head: bytes, stem: str) -> str | None:
     text = head.lstrip(b"\xef\xbb\xbf \t\r\n")
     if text.startswith(b"{"):
