@@ -195,12 +195,24 @@ def _check(board_paths: list[str], args: argparse.Namespace) -> int:
         if not console.is_terminal:  # piped or captured: room for the whole table
             console = Console(width=max(console.width, 132))
         emit = lambda handle: terminal.render(result, console)  # noqa: E731
-    _write_deliverables(result, args, inputs + ([] if args.rules else [result.analysis.ruleset.path]))
+    _write_deliverables(result, args, _files_of(inputs) + ([] if args.rules else [result.analysis.ruleset.path]))
     if args.out:
         write_atomically(args.out, emit)
     else:
         emit(sys.stdout)
     return EXIT_FINDINGS if result.failing() else EXIT_CLEAN
+
+
+def _files_of(paths: list[str]) -> list[str]:
+    """The input files to list (with their SHA-256) in the sign-off report:
+    a package folder stands for every file directly inside it."""
+    out = []
+    for p in paths:
+        if os.path.isdir(p):
+            out += sorted(str(f) for f in Path(p).iterdir() if f.is_file() and not f.name.startswith("."))
+        else:
+            out.append(p)
+    return out
 
 
 def _write_deliverables(result, args: argparse.Namespace, inputs: list[str]) -> None:

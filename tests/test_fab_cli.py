@@ -91,3 +91,17 @@ def test_output_may_not_overwrite_a_package_file(capsys, tmp_path):
     code, _, err = run(capsys, "check", folder, "--out", target)
     assert code == 2 and "refusing to overwrite" in err
     assert target.read_bytes() == before
+
+
+def test_signoff_report_lists_every_file_of_the_package_with_its_sha256(capsys, tmp_path):
+    import hashlib
+
+    page = tmp_path / "signoff.html"
+    overlay = tmp_path / "overlay.svg"
+    code, _, err = run(capsys, "check", SIX, "--html", page, "--svg", overlay)
+    assert code == 1, err
+    html = page.read_text()
+    for f in sorted(SIX.iterdir()):
+        assert f.name in html
+        assert hashlib.sha256(f.read_bytes()).hexdigest() in html  # FIPS 180-4 digest, by hashlib
+    assert overlay.read_text().startswith("<svg") or "<svg" in overlay.read_text()[:200]
