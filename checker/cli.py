@@ -140,6 +140,9 @@ def _load(board_paths: list[str], args: argparse.Namespace):
     from .readers import load_board
     from .readers.fab.package import is_package
 
+    if len(board_paths) > 1 and all(p.lower().endswith(".json") for p in board_paths):
+        raise UsageError("check takes one board JSON file (or one fabrication package); for several boards use "
+                         "'couplint batch'")
     package_options = [f"--{k}" for k in ("stackup", "netlist", "layer") if getattr(args, k, None)]
     if not is_package(board_paths):
         if package_options:

@@ -105,3 +105,9 @@ def test_signoff_report_lists_every_file_of_the_package_with_its_sha256(capsys, 
         assert f.name in html
         assert hashlib.sha256(f.read_bytes()).hexdigest() in html  # FIPS 180-4 digest, by hashlib
     assert overlay.read_text().startswith("<svg") or "<svg" in overlay.read_text()[:200]
+
+
+def test_several_json_boards_point_to_batch(capsys):
+    board = ROOT / "fixtures" / "six_layer_fab.json"
+    code, _, err = run(capsys, "check", board, board)
+    assert code == 2 and "couplint batch" in err
