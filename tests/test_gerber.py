@@ -1355,3 +1355,14 @@ M02*
     layer = read_raw(data)
     assert len(pads(layer)) == 13 and len([s for s in layer.shapes if s.kind == "region"]) == 1  # 5+1+1+1+1+2+2
     assert_same_copper(copper_by_net(layer), gerbonara_copper_by_net(data))
+
+
+def test_unknown_commands_are_ignored_with_a_warning():
+    """Gerber Layer Format Specification 2021.02, 2.14: an unknown command is
+    ignored and the reader warns. Known no-effect codes (G54, M01, G04) give
+    no warning; more than MAX_WARNINGS unknown commands are counted, not listed."""
+    layer = read("%ADD10C,0.1*%\nG04 a comment*\nG54D10*\nM01*\nG99*\n%XY1*%\nX0Y0D02*\nG01*\nX1000000Y0D01*\n")
+    assert layer.warnings == ["line 7: unknown command G99 ignored", "line 8: unknown command %XY1% ignored"]
+    assert len(layer.traces) == 1
+    many = read("%ADD10C,0.1*%\n" + "G98*\n" * 9)
+    assert len(many.warnings) == 6 and many.warnings[-1] == "4 more unknown command(s) ignored"

@@ -82,6 +82,7 @@ def load_package(paths: list[str], stackup: str | None = None, netlist: str | No
     nets_file = _netlist_of(found, netlist)
     outline = _outline(found.profile, notes)
     stack = _with_roles(job, copper, gerbers, notes)
+    notes += [f"{g.path}: {w}" for g in gerbers.values() for w in g.warnings]
     return _Builder(found, job, stack, gerbers, drills, nets_file, outline, notes).build()
 
 

@@ -110,6 +110,9 @@ READ_CHUNK = 1 << 16
 CHECK_EVERY = 1 << 16
 
 #: Aperture functions whose objects are not copper at all (5.6.10): dropped from copper layers.
+#: Unknown-command warnings kept per file (the rest are counted).
+MAX_WARNINGS = 5
+
 DROPPED_FUNCTIONS = frozenset({"NonMaterial", "Profile"})
 #: Aperture functions of copper that conducts nothing: kept as flagged shapes.
 NON_CONDUCTOR_FUNCTIONS = frozenset({"NonConductor", "NonConductorDraw"})
@@ -228,6 +231,8 @@ class _GerberReader:
         self.name = name
         self.size_limit = size_limit
         self.line = 0
+        self.warnings: list[str] = []
+        self.unknown_count = 0
         # coordinate format and unit (4.2)
         self.zeros: str | None = None
         self.x_digits = self.y_digits = (0, 0)
@@ -391,8 +396,18 @@ class _GerberReader:
         self._check_limits(self.line)
         non_conductors = {self.function_index[f] for f in NON_CONDUCTOR_FUNCTIONS if f in self.function_index}
         traces, shapes = build(self.image, self.functions, non_conductors)
+        warnings = list(self.warnings)
+        if self.unknown_count > len(warnings):
+            warnings.append(f"{self.unknown_count - len(warnings)} more unknown command(s) ignored")
         return GerberLayer(self.name, self.file_function, self.negative, list(self.net_names), traces, shapes,
-                           dict(self.file_attributes))
+                           dict(self.file_attributes), warnings)
+
+    def _unknown(self, line: int, command: str) -> None:
+        """Spec 2.14: an unknown command is ignored, with a warning (the first
+        ``MAX_WARNINGS`` are kept, the rest counted)."""
+        self.unknown_count += 1
+        if len(self.warnings) < MAX_WARNINGS:
+            self.warnings.append(f"line {line}: unknown command {command} ignored")
 
     def _check_limits(self, line: int) -> None:
         sinks = [self.image] + [s.sink for s in self.statements]
@@ -495,7 +510,8 @@ class _GerberReader:
             code = int(mcode)
             if code in (0, 2):
                 self._end_of_file(line)
-            # M01 (optional stop) has no effect (8.1.1); other M codes are ignored
+            elif code != 1:  # M01 (optional stop) has no effect (8.1.1)
+                self._unknown(line, f"M{code:02d}")
 
     def _comment(self, data: bytes, line: int) -> None:
         if b"#@!" not in data:
@@ -533,7 +549,8 @@ class _GerberReader:
         elif code == 91:
             raise self.error(line, "G91 sets incremental coordinates, which this reader does not support "
                              "(deprecated since 2012, spec 8.1.1); export absolute coordinates")
-        # other G codes are unknown and ignored (2.14)
+        else:
+            self._unknown(line, f"G{code:02d}")  # 2.14
 
     # ------------------------------------------------------------------ coordinates
 
@@ -829,7 +846,8 @@ class _GerberReader:
                 raise self.error(line, f"%{text}*%: image scaling is not supported (deprecated, spec 8.1.9)")
         elif code == "IF":
             raise self.error(line, "include files (%IF...%) are not supported")
-        # anything else is an unknown command: ignored (2.14)
+        else:  # anything else is an unknown command: ignored, with a warning (2.14)
+            self._unknown(line, f"%{text[:12]}...%" if len(text) > 12 else f"%{text}%")
 
     def _decimal(self, text: str, what: str, line: int) -> float:
         if not _DECIMAL.fullmatch(text):

@@ -92,6 +92,8 @@ class GerberLayer:
     traces: GerberTraces
     shapes: list[GerberShape]
     attributes: dict[str, tuple[str, ...]] = field(default_factory=dict)
+    #: what the reader ignored and a user should know (unknown commands, spec 2.14)
+    warnings: list[str] = field(default_factory=list)
 
 
 @dataclass
