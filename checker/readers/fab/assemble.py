@@ -376,26 +376,36 @@ class _Builder:
         return names
 
     def _names_from_netlist(self, label, names, needs, geoms_of) -> None:
-        n = len(self.layers)
-        votes: dict[int, Counter] = {}
-        trees = [shapely.STRtree(g) if len(g) else None for g, _, _ in geoms_of]
-        for p in self.netlist.points:
-            if p.net is None:
+        """Name the components that need a name from the netlist's test points:
+        a point names every component whose copper on the point's access layer
+        (any layer for A00) it lies on; each point votes once per component."""
+        points = [p for p in self.netlist.points if p.net is not None]
+        if not points:
+            return
+        xy = np.array([(p.x, p.y) for p in points], dtype=np.float64)
+        access = np.array([0 if p.access is None else p.access for p in points], dtype=np.int64)
+        net_names = sorted({p.net for p in points})
+        net_of = {name: k for k, name in enumerate(net_names)}
+        point_net = np.array([net_of[p.net] for p in points], dtype=np.int64)
+        pairs = []
+        for i, (geoms, radius, node) in enumerate(geoms_of):
+            mine = np.flatnonzero((access == 0) | (access == self.numbers[i]))
+            if not len(geoms) or not len(mine):
                 continue
-            if p.access is None or p.access == 0:
-                on = range(n)
-            else:
-                on = [i for i, number in enumerate(self.numbers) if number == p.access]
-            point = shapely.Point(p.x, p.y)
-            for i in on:
-                if trees[i] is None:
-                    continue
-                geoms, radius, node = geoms_of[i]
-                hit = trees[i].query(point, predicate="dwithin", distance=float(radius.max()) + TOUCH_TOLERANCE_MM)
-                hit = hit[shapely.distance(geoms[hit], point) <= radius[hit] + TOUCH_TOLERANCE_MM]
-                for comp in set(label[node[hit]].tolist()):
-                    if needs[comp]:
-                        votes.setdefault(comp, Counter())[p.net] += 1
+            tree = shapely.STRtree(geoms)
+            shapes = shapely.points(xy[mine])
+            at, hit = tree.query(shapes, predicate="dwithin", distance=float(radius.max()) + TOUCH_TOLERANCE_MM)
+            on = shapely.distance(geoms[hit], shapes[at]) <= radius[hit] + TOUCH_TOLERANCE_MM
+            pairs.append(np.column_stack((mine[at[on]], label[node[hit[on]]])))
+        if not pairs:
+            return
+        pt_comp = np.unique(np.concatenate(pairs), axis=0)  # one vote per point and component
+        pt_comp = pt_comp[needs[pt_comp[:, 1]]]
+        votes: dict[int, Counter] = {}
+        tally, count = np.unique(np.column_stack((pt_comp[:, 1], point_net[pt_comp[:, 0]])), axis=0,
+                                 return_counts=True)
+        for (comp, net), n in zip(tally.tolist(), count.tolist()):
+            votes.setdefault(comp, Counter())[net_names[net]] += n
         conflicts = 0
         for comp, counter in votes.items():
             best = sorted(counter.items(), key=lambda kv: (-kv[1], kv[0]))
