@@ -42,7 +42,7 @@ from scipy.sparse.csgraph import connected_components
 from shapely.geometry.polygon import orient
 
 from ...errors import FabError
-from ...model import NO_NET, Board, CopperLayer, Net, Pieces, Region, Stackup, Vias
+from ...model import NO_NET, Board, Net, Pieces, Region, Stackup, Vias
 from .excellon import read_excellon
 from .gerber import read_gerber
 from .ipc356 import read_ipc356

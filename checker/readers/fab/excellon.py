@@ -74,15 +74,13 @@ from __future__ import annotations
 
 import os
 import re
-import zipfile
-import zlib
 from typing import BinaryIO, NoReturn
 
 import numpy as np
 
 from ...errors import FabError
 from .layer import DrillFile
-from .source import read_path
+from .source import read_lines, read_path
 
 #: Larger files are refused before they are read (256 MiB).
 MAX_FILE_BYTES = 256 * 1024 * 1024
@@ -119,25 +117,8 @@ def load_excellon(path: str | os.PathLike[str]) -> DrillFile:
 def read_excellon(stream: BinaryIO, name: str) -> DrillFile:
     """Read an Excellon file from a binary stream; ``name`` is used in
     messages and as ``DrillFile.path``."""
-    lines = _read_lines(stream, name)
+    lines = read_lines(stream, name, MAX_FILE_BYTES)
     return _Parser(name).parse(lines)
-
-
-def _read_lines(stream: BinaryIO, name: str) -> list[str]:
-    """The stream as text lines (UTF-8, a byte-order mark allowed), with
-    the size limit and the line of a bad byte reported."""
-    try:
-        raw = stream.read(MAX_FILE_BYTES + 1)
-    except (OSError, EOFError, zipfile.BadZipFile, zlib.error) as exc:
-        raise FabError(name, None, f"cannot read the file: {exc}") from None
-    if len(raw) > MAX_FILE_BYTES:
-        raise FabError(name, None, f"over the size limit of {MAX_FILE_BYTES:,} bytes: not read")
-    try:
-        text = bytes(raw).decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        line = raw.count(b"\n", 0, exc.start) + 1
-        raise FabError(name, line, f"not UTF-8 text (bad byte at offset {exc.start})") from None
-    return re.split(r"\r\n|\r|\n", text)
 
 
 class _Parser:

@@ -67,15 +67,13 @@ import json
 import math
 import os
 import re
-import zipfile
-import zlib
 from typing import Any, BinaryIO, NoReturn
 
 from ...errors import FabError
 from ...model import CopperLayer, Dielectric, Stackup
 from ..board_json import format_path
 from .layer import JobStackup
-from .source import read_path
+from .source import read_path, read_text
 
 #: Larger files are refused before they are read (256 MiB).
 MAX_FILE_BYTES = 256 * 1024 * 1024
@@ -108,17 +106,7 @@ class _Repeated(dict):
 
 
 def _parse(stream: BinaryIO, name: str) -> Any:
-    try:
-        raw = stream.read(MAX_FILE_BYTES + 1)
-    except (OSError, EOFError, zipfile.BadZipFile, zlib.error) as exc:
-        raise FabError(name, None, f"cannot read the file: {exc}") from None
-    if len(raw) > MAX_FILE_BYTES:
-        raise FabError(name, None, f"over the size limit of {MAX_FILE_BYTES:,} bytes: not read")
-    try:
-        text = bytes(raw).decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        line = raw.count(b"\n", 0, exc.start) + 1
-        raise FabError(name, line, f"not UTF-8 text (bad byte at offset {exc.start})") from None
+    text = read_text(stream, name, MAX_FILE_BYTES)
     if not text.strip():
         raise FabError(name, None, "the file is empty")
 

@@ -44,8 +44,6 @@ from __future__ import annotations
 
 import os
 import re
-import zipfile
-import zlib
 from typing import Any, BinaryIO, NoReturn
 
 import yaml
@@ -54,7 +52,7 @@ from ...errors import BoardError, FabError
 from ...model import Stackup
 from .. import board_json
 from .layer import JobStackup
-from .source import read_path
+from .source import read_path, read_text
 
 #: Larger files are refused before they are read (1 MiB: a stackup is small).
 MAX_FILE_BYTES = 1024 * 1024
@@ -91,17 +89,7 @@ def read_stackup_yaml(stream: BinaryIO, name: str) -> JobStackup:
 
 
 def _read_text(stream: BinaryIO, name: str) -> str:
-    try:
-        raw = stream.read(MAX_FILE_BYTES + 1)
-    except (OSError, EOFError, zipfile.BadZipFile, zlib.error) as exc:
-        raise FabError(name, None, f"cannot read the file: {exc}") from None
-    if len(raw) > MAX_FILE_BYTES:
-        raise FabError(name, None, f"over the size limit of {MAX_FILE_BYTES:,} bytes: not a stackup file")
-    try:
-        text = bytes(raw).decode("utf-8-sig")
-    except UnicodeDecodeError as exc:
-        line = raw.count(b"\n", 0, exc.start) + 1
-        raise FabError(name, line, f"not UTF-8 text (bad byte at offset {exc.start})") from None
+    text = read_text(stream, name, MAX_FILE_BYTES, "not a stackup file")
     if not text.strip():
         raise FabError(name, None, "the file is empty (a stackup file holds a 'stackup:' list)")
     return text
