@@ -232,7 +232,7 @@ def parse_waivers(text: str, file: str) -> WaiverFile:
         raise WaiverError(file, None, "the file is empty (a waiver file starts with 'version: 1' and a "
                                       "'waivers:' list; see docs/waivers.md)")
     try:
-        _check_duplicate_keys(node, "", file, set())
+        _check_duplicate_keys(node, file)
     except RuleError as exc:  # the rule loader's check, reported as a waiver-file error
         raise WaiverError(file, exc.place, exc.message) from None
     top = _mapping(node, "", file, "a mapping with 'version' and 'waivers'")

@@ -45,6 +45,7 @@ from .checks import REGISTRY
 from .checks.options import Option
 from .errors import RuleError
 from .units import DEFAULT_UNIT, UNITS, UnitError, parse_quantity
+from .yamlkeys import first_repeated_key
 
 #: The only rule-file format version this loader reads.
 SUPPORTED_VERSION = 1
@@ -736,7 +737,7 @@ def _read_yaml(path: pathlib.Path, file: str) -> Any:
         node = loader.get_single_node()
         if node is None:
             raise RuleError(file, None, "the file is empty (a rule file starts with 'version: 1')")
-        _check_duplicate_keys(node, "", file, set())
+        _check_duplicate_keys(node, file)
         return loader.construct_document(node)
     except yaml.MarkedYAMLError as e:
         mark = e.problem_mark or e.context_mark
@@ -765,32 +766,12 @@ def _read_yaml(path: pathlib.Path, file: str) -> Any:
             loader.dispose()
 
 
-_MERGE_TAG = "tag:yaml.org,2002:merge"
-
-
-def _check_duplicate_keys(node: yaml.Node, path: str, file: str, seen: set[int]) -> None:
-    if id(node) in seen:  # an alias to a node already checked
-        return
-    seen.add(id(node))
-    if isinstance(node, yaml.MappingNode):
-        first: dict[tuple[str, str], int] = {}
-        for key_node, value_node in node.value:
-            if key_node.tag == _MERGE_TAG:
-                _check_duplicate_keys(value_node, path, file, seen)
-                continue
-            key = key_node.value if isinstance(key_node, yaml.ScalarNode) else "?"
-            if isinstance(key_node, yaml.ScalarNode):
-                ident = (key_node.tag, key_node.value)
-                line = key_node.start_mark.line + 1
-                if ident in first:
-                    raise RuleError(file, _join(path, key),
-                                    f"duplicate key at line {line}, column {key_node.start_mark.column + 1} "
-                                    f"(first given at line {first[ident]}; each key may appear once)")
-                first[ident] = line
-            _check_duplicate_keys(value_node, _join(path, key), file, seen)
-    elif isinstance(node, yaml.SequenceNode):
-        for i, item in enumerate(node.value):
-            _check_duplicate_keys(item, f"{path}[{i}]", file, seen)
+def _check_duplicate_keys(node: yaml.Node, file: str) -> None:
+    """A RuleError at the first key given twice in one mapping of the document ``node``."""
+    found = first_repeated_key(node, _join)
+    if found is not None:
+        raise RuleError(file, found.path, f"duplicate key at line {found.line}, column {found.column} "
+                                          f"(first given at line {found.first_line}; each key may appear once)")
 
 
 # --------------------------------------------------------------------------

@@ -50,6 +50,7 @@ import yaml
 
 from ...errors import BoardError, FabError
 from ...model import Stackup
+from ...yamlkeys import first_repeated_key
 from .. import board_json
 from .layer import JobStackup
 from .source import read_path, read_text
@@ -59,7 +60,6 @@ MAX_FILE_BYTES = 1024 * 1024
 
 TOP_KEYS = ("units", "stackup", "description")
 
-_MERGE_TAG = "tag:yaml.org,2002:merge"
 _PATH_PART = re.compile(r'\.?([A-Za-z_][A-Za-z0-9_]*)|\[([0-9]+)\]|\[("(?:[^"\\]|\\.)*")\]')
 
 
@@ -105,7 +105,7 @@ def _load(text: str, name: str) -> tuple[yaml.Node, Any]:
         if node is None:
             raise FabError(name, None, "the file is empty (a stackup file holds a 'stackup:' list)")
         _check_size(node, name)
-        _check_repeated_keys(node, "", name, set())
+        _check_repeated_keys(node, name)
         return node, loader.construct_document(node)
     except yaml.MarkedYAMLError as exc:
         mark = exc.problem_mark or exc.context_mark
@@ -174,29 +174,11 @@ def _check_size(root: yaml.Node, name: str) -> None:
     size(root, 0)
 
 
-def _check_repeated_keys(node: yaml.Node, path: str, name: str, seen: set[int]) -> None:
-    if id(node) in seen:  # an alias to a node already checked
-        return
-    seen.add(id(node))
-    if isinstance(node, yaml.MappingNode):
-        first: dict[tuple[str, str], int] = {}
-        for key_node, value_node in node.value:
-            if key_node.tag == _MERGE_TAG:
-                _check_repeated_keys(value_node, path, name, seen)
-                continue
-            key = key_node.value if isinstance(key_node, yaml.ScalarNode) else "?"
-            here = f"{path}.{key}" if path else str(key)
-            if isinstance(key_node, yaml.ScalarNode):
-                ident = (key_node.tag, key_node.value)
-                line = key_node.start_mark.line + 1
-                if ident in first:
-                    raise FabError(name, line, f"key {key!r} appears twice (lines {first[ident]} and {line}); "
-                                   "each key may appear once", place=f"{here} (line {line})")
-                first[ident] = line
-            _check_repeated_keys(value_node, here, name, seen)
-    elif isinstance(node, yaml.SequenceNode):
-        for i, item in enumerate(node.value):
-            _check_repeated_keys(item, f"{path}[{i}]", name, seen)
+def _check_repeated_keys(node: yaml.Node, name: str) -> None:
+    found = first_repeated_key(node, lambda path, key: f"{path}.{key}" if path else str(key))
+    if found is not None:
+        raise FabError(name, found.line, f"key {found.key!r} appears twice (lines {found.first_line} and "
+                       f"{found.line}); each key may appear once", place=f"{found.path} (line {found.line})")
 
 
 # --------------------------------------------------------------------------- meaning
