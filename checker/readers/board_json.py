@@ -133,7 +133,7 @@ def read_stackup_dict(data: dict, file: str) -> Stackup:
 
 def _read(data: Any, file: str, suspect: bool) -> Board:
     if not isinstance(data, dict):
-        raise BoardError(file, None, f"must be a JSON object {{...}}, got {_describe(data)}")
+        raise BoardError(file, None, f"must be a JSON object {{...}}, got {describe_json_value(data)}")
     _check_header(data, file)
     if suspect or not _fast_schema_check()(data):
         # Something is off: find it, slowly, with the path and a good message.
@@ -229,13 +229,17 @@ def format_path(parts: Any) -> str | None:
     return out or None
 
 
-def _describe(value: Any) -> str:
+def describe_json_value(value: Any) -> str:
+    """A JSON value as an error message shows it: ``null``, ``true``, a
+    number or a quoted string (cut to 40 characters), ``an array``,
+    ``an object``."""
     if value is None:
         return "null"
     if isinstance(value, bool):
         return "true" if value else "false"
     if isinstance(value, (int, float)):
-        return f"{value!r}"
+        text = repr(value)
+        return text if len(text) <= 40 else text[:37] + "..."
     if isinstance(value, str):
         return json.dumps(value if len(value) <= 40 else value[:37] + "...")
     if isinstance(value, list):
@@ -289,11 +293,11 @@ def _check_header(data: dict, file: str) -> None:
     version, they explain more than any other error would."""
     fmt = data.get("format")
     if fmt != FORMAT:
-        got = "missing" if "format" not in data else f"got {_describe(fmt)}"
+        got = "missing" if "format" not in data else f"got {describe_json_value(fmt)}"
         raise BoardError(file, "format", f'must be "{FORMAT}" ({got}; is this a couplint board file?)')
     version = data.get("version")
     if isinstance(version, bool) or version != VERSION:
-        got = "missing" if "version" not in data else f"got {_describe(version)}"
+        got = "missing" if "version" not in data else f"got {describe_json_value(version)}"
         raise BoardError(file, "version", f"must be {VERSION} ({got}; this couplint reads board format version {VERSION})")
 
 
@@ -331,12 +335,12 @@ def _schema_message(error: jsonschema.exceptions.ValidationError) -> str:
     custom = schema.get("x-messages", {}).get(error.validator) or schema.get("x-message")
     if custom:
         if error.validator == "type":
-            return f"{custom}, got {_describe(instance)}"
+            return f"{custom}, got {describe_json_value(instance)}"
         return custom
     v, value = error.validator, error.validator_value
     if v == "type":
         kinds = [value] if isinstance(value, str) else list(value)
-        return f"must be {' or '.join(_JSON_TYPES.get(k, k) for k in kinds)}, got {_describe(instance)}"
+        return f"must be {' or '.join(_JSON_TYPES.get(k, k) for k in kinds)}, got {describe_json_value(instance)}"
     if v == "required":
         missing = [k for k in value if k not in instance]
         return f"missing required key {missing[0]!r}" if missing else error.message
@@ -345,17 +349,17 @@ def _schema_message(error: jsonschema.exceptions.ValidationError) -> str:
         extra = [k for k in instance if k not in allowed]
         return f"unknown key {extra[0]!r} (allowed here: {', '.join(allowed)})" if extra else error.message
     if v == "exclusiveMinimum":
-        return f"must be > {value:g}, got {_describe(instance)}"
+        return f"must be > {value:g}, got {describe_json_value(instance)}"
     if v == "minimum":
-        return f"must be >= {value:g}, got {_describe(instance)}"
+        return f"must be >= {value:g}, got {describe_json_value(instance)}"
     if v == "maximum":
-        return f"must be <= {value:g}, got {_describe(instance)}"
+        return f"must be <= {value:g}, got {describe_json_value(instance)}"
     if v == "exclusiveMaximum":
-        return f"must be < {value:g}, got {_describe(instance)}"
+        return f"must be < {value:g}, got {describe_json_value(instance)}"
     if v == "enum":
-        return f"must be one of {', '.join(json.dumps(x) for x in value)}, got {_describe(instance)}"
+        return f"must be one of {', '.join(json.dumps(x) for x in value)}, got {describe_json_value(instance)}"
     if v == "const":
-        return f"must be {json.dumps(value)}, got {_describe(instance)}"
+        return f"must be {json.dumps(value)}, got {describe_json_value(instance)}"
     if v == "minLength":
         return "must not be empty"
     if v == "minItems":

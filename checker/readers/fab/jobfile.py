@@ -71,7 +71,7 @@ from typing import Any, BinaryIO, NoReturn
 
 from ...errors import FabError
 from ...model import CopperLayer, Dielectric, Stackup
-from ..board_json import format_path
+from ..board_json import describe_json_value, format_path
 from .layer import JobStackup
 from .source import read_path, read_text
 
@@ -151,7 +151,7 @@ class _Job:
 
     def obj(self, path: tuple, value: Any) -> dict:
         if not isinstance(value, dict):
-            self.fail(path, f"must be a JSON object {{...}}, got {_describe(value)}")
+            self.fail(path, f"must be a JSON object {{...}}, got {describe_json_value(value)}")
         if isinstance(value, _Repeated):
             self.fail(path, f"key {value.repeated!r} appears more than once")
         return value
@@ -162,19 +162,19 @@ class _Job:
         if isinstance(value, str) and text_ok:
             m = _DECIMAL.fullmatch(value)
             if not m:
-                self.fail(path, f"must be a number (or a number in a string), got {_describe(value)}")
+                self.fail(path, f"must be a number (or a number in a string), got {describe_json_value(value)}")
             number = float(m.group(1).replace(",", "."))
         elif isinstance(value, (int, float)) and not isinstance(value, bool):
             try:
                 number = float(value)
             except OverflowError:
-                self.fail(path, f"number far too large, got {_describe(value)}")
+                self.fail(path, f"number far too large, got {describe_json_value(value)}")
         else:
-            self.fail(path, f"must be a number, got {_describe(value)}")
+            self.fail(path, f"must be a number, got {describe_json_value(value)}")
         if not math.isfinite(number):
-            self.fail(path, f"must be a finite number, got {_describe(value)}")
+            self.fail(path, f"must be a finite number, got {describe_json_value(value)}")
         if number < minimum or (exclusive and number == minimum):
-            self.fail(path, f"must be {'>' if exclusive else '>='} {minimum:g}, got {_describe(value)}")
+            self.fail(path, f"must be {'>' if exclusive else '>='} {minimum:g}, got {describe_json_value(value)}")
         return number
 
     def length(self, path: tuple, value: Any) -> float:
@@ -185,7 +185,7 @@ class _Job:
 
     def text(self, path: tuple, value: Any) -> str:
         if not isinstance(value, str):
-            self.fail(path, f"must be a string, got {_describe(value)}")
+            self.fail(path, f"must be a string, got {describe_json_value(value)}")
         return value
 
     # ---- sections
@@ -226,7 +226,7 @@ class _Job:
         if "LayerNumber" in specs:
             value = specs["LayerNumber"]
             if isinstance(value, bool) or not isinstance(value, int) or not 1 <= value <= 1000:
-                self.fail(here + ("LayerNumber",), f"must be a whole number 1 to 1000, got {_describe(value)}")
+                self.fail(here + ("LayerNumber",), f"must be a whole number 1 to 1000, got {describe_json_value(value)}")
             layers = value
         thickness = self.length(here + ("BoardThickness",), specs["BoardThickness"]) if "BoardThickness" in specs \
             else None
@@ -237,7 +237,7 @@ class _Job:
             return ()
         entries = root["FilesAttributes"]
         if not isinstance(entries, list):
-            self.fail(("FilesAttributes",), f"must be a JSON array [...], got {_describe(entries)}")
+            self.fail(("FilesAttributes",), f"must be a JSON array [...], got {describe_json_value(entries)}")
         out = []
         for i, entry in enumerate(entries):
             here = ("FilesAttributes", i)
@@ -255,7 +255,7 @@ class _Job:
             self.fail((), "no MaterialStackup: this job file does not give the stackup")
         entries = root["MaterialStackup"]
         if not isinstance(entries, list):
-            self.fail(("MaterialStackup",), f"must be a JSON array [...], got {_describe(entries)}")
+            self.fail(("MaterialStackup",), f"must be a JSON array [...], got {describe_json_value(entries)}")
         kinds = []
         for i, entry in enumerate(entries):
             entry = self.obj(("MaterialStackup", i), entry)
@@ -335,20 +335,3 @@ class _Job:
             return None
         thickness, er, tan_d, name = self.layer(masks[0], entries[masks[0]], "a solder mask")
         return Dielectric(thickness_mm=thickness, er=er, loss_tangent=tan_d, name=name)
-
-
-def _describe(value: Any) -> str:
-    if value is None:
-        return "null"
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    if isinstance(value, (int, float)):
-        text = repr(value)
-        return text if len(text) <= 40 else text[:37] + "..."
-    if isinstance(value, str):
-        return json.dumps(value if len(value) <= 40 else value[:37] + "...")
-    if isinstance(value, list):
-        return "an array"
-    if isinstance(value, dict):
-        return "an object"
-    return type(value).__name__
