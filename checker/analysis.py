@@ -9,19 +9,22 @@ resulting :class:`Analysis`; they never search geometry themselves.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
 from .finder.pairs import PairTable, find_broadside, find_edge
 from .finder.runs import run_labels
-from .model import NO_NET, Board
+from .model import NO_NET, Board, Pieces
 from .physics import crosstalk
 from .physics.broadside import BroadsideModel, broadside_c12_pf
 from .physics.accurate import ExactBroadside, ExactEdge, ExactGround
 from .physics.edge import EdgeModel, GroundModel
 from .ruleset import NetClass, Rule, RuleSet
-from .stackup import broadside_pairs, reference_of
+from .shielding import (ReferenceCopper, effective_stackup, exposed_pieces, reference_copper, reference_mask,
+                        role_notes,
+                        search_band_mm, split_shielded)
+from .stackup import reference_of, separation_mm
 
 BROADSIDE, EDGE = 0, 1
 
@@ -56,6 +59,12 @@ class Couplings:
     x: np.ndarray
     y: np.ndarray
     c12_pf: np.ndarray
+    #: broadside rows: the share of the coupled length that no reference
+    #: copper of the layers between shields (1 on edge rows), already
+    #: applied to ``c12_pf``; and the layer between whose reference copper
+    #: shields the rest (-1: none)
+    open_fraction: np.ndarray
+    shield_layer: np.ndarray
 
     def __len__(self) -> int:
         return int(self.a.shape[0])
@@ -151,6 +160,8 @@ class Analysis:
     #: every victim each noise-budget rule looked at, passing or not (the
     #: rule fills it; the reports list it per victim)
     victim_noise: list[VictimNoise] = field(default_factory=list)
+    #: the reference copper that decided shielding (``checker.shielding``)
+    reference: ReferenceCopper | None = field(default=None, repr=False)
     _pair_groups: tuple[np.ndarray, np.ndarray] | None = field(default=None, repr=False)
 
     # --- helpers the checks share -------------------------------------
@@ -241,42 +252,106 @@ def electrical_attributes(board: Board, ruleset: RuleSet, classes: list[tuple[st
     return out
 
 
+def _signal_layers(board: Board, is_reference: np.ndarray) -> list[int]:
+    """Layers with copper of a net that is not a reference net."""
+    p = board.pieces
+    if not len(p):
+        return []
+    net = p.net.astype(np.int64)
+    live = (net != NO_NET)
+    live[live] = ~is_reference[net[live]]
+    return [int(k) for k in np.unique(p.layer[live])]
+
+
 def analysis_steps(board: Board, ruleset: RuleSet) -> int:
     """How many times :func:`analyse` calls its ``progress`` callback."""
-    layers = np.unique(board.pieces.layer).size if len(board.pieces) else 0
-    return len(broadside_pairs(board.stackup, ruleset.settings.planes_shield)) + layers + 1
+    is_ref = reference_mask([n.name for n in board.nets], ruleset.settings.reference_nets)
+    k = len(_signal_layers(board, is_ref))
+    return k * (k - 1) // 2 + k + 1
 
 
 def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=None,
-                   accurate: bool = False, models: dict | None = None
+                   accurate: bool = False, models: dict | None = None,
+                   ref: ReferenceCopper | None = None
                    ) -> tuple[Couplings, list[tuple[int, int]], int]:
-    """Search every neighbouring layer pair (broadside) and every layer
-    (edge); ``progress(description)`` is called before each search. The
-    C12' models used are left in ``models`` by (kind, layer, layer)."""
+    """Search every pair of layers (broadside) and every layer (edge) that
+    carry copper of nets other than the reference nets; ``progress(description)``
+    is called before each search. Broadside runs are split into shielded and
+    open stretches by the reference copper of the layers between
+    (``checker.shielding``). The C12' models used are left in ``models`` by
+    (kind, layer, layer)."""
     models = {} if models is None else models
     s = ruleset.settings
-    pieces = board.pieces
+    ref = ref if ref is not None else reference_copper(board, s.reference_nets)
     stackup = board.stackup
-    layer_pairs = broadside_pairs(stackup, s.planes_shield)
-    present = np.unique(pieces.layer) if len(pieces) else np.zeros(0, np.int32)
-    edge_layers = [int(k) for k in present]
-    tasks = [("broadside", u, l) for u, l in layer_pairs] + [("edge", k, k) for k in edge_layers]
+    pieces = board.pieces
+    # reference-net copper is ground, not an aggressor or a victim
+    net = pieces.net.astype(np.int64)
+    ground = net != NO_NET
+    ground[ground] = ref.is_reference[net[ground]]
+    signal = replace(pieces, net=np.where(ground, NO_NET, pieces.net).astype(np.int32)) if ground.any() else pieces
+    layers = _signal_layers(board, ref.is_reference)
+    layer_pairs = [(u, l) for n, u in enumerate(layers) for l in layers[n + 1:]]
+    tasks = [("broadside", u, l) for u, l in layer_pairs] + [("edge", k, k) for k in layers]
     tables: list[tuple[int, PairTable, np.ndarray]] = []
+    searched: list[tuple[int, int]] = []
+    covered: list[str] = []
+    shielded_rows = 0
     for kind, u, l in tasks:
         if progress is not None:
             where = stackup.layers[u].name + (f"/{stackup.layers[l].name}" if u != l else "")
             progress(f"{kind} coupling on {where}")
         if kind == "broadside":
-            t = find_broadside(pieces, u, l, s.broadside_search_mm, s.parallel_angle_deg)
-            c12 = _broadside_c12(board, t, u, l, s.broadside_search_mm, accurate, notes, models)
-            tables.append((BROADSIDE, t, c12))
+            band = search_band_mm(stackup, u, l, s.broadside_search_mm)
+            shield = ref.between(u, l) if s.planes_shield else None
+            sub = _exposed(signal, u, l, shield, band + separation_mm(stackup, u, l))
+            if sub is None:
+                if shield is not None:
+                    covered.append(f"{stackup.layers[u].name}/{stackup.layers[l].name}")
+                continue
+            searched.append((u, l))
+            t = find_broadside(sub, u, l, band, s.parallel_angle_deg)
+            split = split_shielded(board, ref, t, u, l) if shield is not None else None
+            if split is not None:
+                keep = split.open_fraction > 0
+                shielded_rows += int(np.count_nonzero(~keep))
+                t, fraction = t.take(keep), split.open_fraction[keep]
+                shield_layer = split.shield_layer[keep]
+            else:
+                fraction, shield_layer = np.ones(len(t)), np.full(len(t), -1, np.int32)
+            c12 = _broadside_c12(board, t, u, l, band, accurate, notes, models) * fraction
+            tables.append((BROADSIDE, t, c12, fraction, shield_layer))
         else:
-            t = find_edge(pieces, u, s.edge_search_mm, s.parallel_angle_deg)
+            t = find_edge(signal, u, s.edge_search_mm, s.parallel_angle_deg)
             c12 = _edge_c12(board, t, u, notes, accurate, models)
-            tables.append((EDGE, t, c12))
-    examined = sum(t.candidates for _, t, _ in tables)
+            tables.append((EDGE, t, c12, np.ones(len(t)), np.full(len(t), -1, np.int32)))
+    if covered:
+        notes.append("shielded everywhere by reference copper between the layers (no broadside pair to "
+                     "measure): " + ", ".join(covered))
+    if shielded_rows:
+        notes.append(f"{shielded_rows} broadside piece pairs lie wholly over reference copper of the layers "
+                     "between them (shielded, C12 = 0)")
+    examined = sum(t.candidates for _, t, *_ in tables)
     couplings = _assemble(board, tables, ruleset.pairs)
-    return couplings, layer_pairs, examined
+    return couplings, searched, examined
+
+
+def _exposed(signal: Pieces, u: int, l: int, shield, grow_mm: float) -> Pieces | None:
+    """``signal`` with only the pieces of layers u and l that reference
+    copper between them does not wholly cover (grown by ``grow_mm``) left on
+    a net; None when either layer has none."""
+    live = signal.net != NO_NET
+    iu = np.flatnonzero(live & (signal.layer == u))
+    il = np.flatnonzero(live & (signal.layer == l))
+    if shield is None:
+        return signal if iu.size and il.size else None
+    iu, il = exposed_pieces(signal, iu, shield, grow_mm), exposed_pieces(signal, il, shield, grow_mm)
+    if iu.size == 0 or il.size == 0:
+        return None
+    net = np.full(len(signal), NO_NET, np.int32)
+    keep = np.concatenate([iu, il])
+    net[keep] = signal.net[keep]
+    return replace(signal, net=net)
 
 
 def _broadside_c12(board: Board, t: PairTable, upper: int, lower: int, search_mm: float,
@@ -342,7 +417,7 @@ def _mask_words(board: Board, layer: int) -> str:
     return "under solder mask" if mask is not None else "bare outer layer, no solder mask given"
 
 
-def _assemble(board: Board, tables: list[tuple[int, PairTable, np.ndarray]],
+def _assemble(board: Board, tables: list[tuple],
               pairs: tuple[tuple[str, str], ...] = ()) -> Couplings:
     net = board.pieces.net
     partner = board.partner_of()
@@ -351,7 +426,7 @@ def _assemble(board: Board, tables: list[tuple[int, PairTable, np.ndarray]],
         if p in index and n in index:
             partner[index[p]], partner[index[n]] = index[n], index[p]
     cols: dict[str, list[np.ndarray]] = {name: [] for name in Couplings.__dataclass_fields__}
-    for kind, t, c12 in tables:
+    for kind, t, c12, fraction, shield_layer in tables:
         n = len(t)
         a, b = t.a.astype(np.int64), t.b.astype(np.int64)
         la = np.full(n, t.layer_a, np.int32)
@@ -362,7 +437,8 @@ def _assemble(board: Board, tables: list[tuple[int, PairTable, np.ndarray]],
         values = dict(kind=np.full(n, kind, np.int8), a=a2, b=b2, net_a=net[a2].astype(np.int64),
                       net_b=net[b2].astype(np.int64), layer_a=la2, layer_b=lb2, angle_deg=t.angle_deg,
                       parallel=t.parallel, length_mm=t.length_mm, offset_mm=t.offset_mm, gap_mm=t.gap_mm,
-                      overlap_mm2=t.overlap_mm2, x=t.x, y=t.y, c12_pf=c12)
+                      overlap_mm2=t.overlap_mm2, x=t.x, y=t.y, c12_pf=c12,
+                      open_fraction=fraction, shield_layer=shield_layer)
         for name, v in values.items():
             cols[name].append(np.asarray(v))
     if not tables:
@@ -370,6 +446,7 @@ def _assemble(board: Board, tables: list[tuple[int, PairTable, np.ndarray]],
         for name in ("a", "b", "net_a", "net_b"):
             empty[name] = np.zeros(0, np.int64)
         empty["parallel"] = np.zeros(0, bool)
+        empty["shield_layer"] = np.zeros(0, np.int32)
         return Couplings(**empty)
     c = Couplings(**{name: np.concatenate(v) for name, v in cols.items()})
     # declared differential-pair partners are exempt from each other's checks
@@ -458,14 +535,18 @@ def analyse(board: Board, ruleset: RuleSet, progress=None, accurate: bool = Fals
     settings; ``progress(description)``, if given, is called before each of
     the :func:`analysis_steps` steps."""
     notes: list[str] = list(board.notes)  # what the reader had to say about the input comes first
+    ref = reference_copper(board, ruleset.settings.reference_nets)
+    notes += role_notes(board.stackup, ref, board)
+    # the physics sees each layer's role as its copper decides it (checker.shielding)
+    board = replace(board, stackup=effective_stackup(board.stackup, ref))
     names = [net.name for net in board.nets]
     classes = ruleset.classify(names)
     electrical = electrical_attributes(board, ruleset, classes)
     models: dict = {}
-    couplings, layer_pairs, examined = find_couplings(board, ruleset, notes, progress, accurate, models)
+    couplings, layer_pairs, examined = find_couplings(board, ruleset, notes, progress, accurate, models, ref)
     if progress is not None:
         progress("capacitance to ground and noise")
     c2g = net_capacitance_to_ground_pf(board, electrical, notes, accurate)
     net_pairs = aggregate_net_pairs(board, couplings, electrical, c2g)
     return Analysis(board, ruleset, couplings, net_pairs, electrical, c2g, classes, notes,
-                    layer_pairs, examined, "accurate" if accurate else "fast", models)
+                    layer_pairs, examined, "accurate" if accurate else "fast", models, reference=ref)

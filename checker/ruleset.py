@@ -44,6 +44,7 @@ import yaml
 from .checks import REGISTRY
 from .checks.options import Option
 from .errors import RuleError
+from .shielding import DEFAULT_REFERENCE_NETS
 from .units import DEFAULT_UNIT, UNITS, UnitError, parse_quantity
 from .yamlkeys import first_repeated_key
 
@@ -80,7 +81,11 @@ SETTINGS_SCHEMA: dict[str, tuple[str, Option]] = {
         help="pieces within this angle of each other run parallel")),
     "planes_shield": ("planes_shield", Option(
         "bool", default=True,
-        help="a plane-role copper layer shields the layers either side of it")),
+        help="reference-net copper on the layers between two traces shields them "
+             "(false: count every broadside run as unshielded)")),
+    "reference_nets": ("reference_nets", Option(
+        "patterns", default=DEFAULT_REFERENCE_NETS,
+        help="net-name patterns of the nets that are AC ground: their copper shields")),
     "bandwidth_factor": ("bandwidth_factor", Option(
         "ratio", default=0.35, minimum=0.0, maximum=1.0, exclusive_minimum=True,
         help="aggressor frequency = factor / rise_time")),
@@ -121,6 +126,8 @@ class Settings:
     parallel_angle_deg: float
     planes_shield: bool
     bandwidth_factor: float
+    #: net-name patterns of the reference (AC ground) nets
+    reference_nets: tuple[str, ...] = DEFAULT_REFERENCE_NETS
 
 
 @dataclass(frozen=True)
@@ -482,6 +489,9 @@ def _parse_settings(value: Any, file: str) -> dict[str, Any]:
         if key not in SETTINGS_SCHEMA:
             raise RuleError(file, place, f"unknown setting (accepted: {', '.join(SETTINGS_SCHEMA)})")
         _, opt = SETTINGS_SCHEMA[key]
+        if opt.kind == "patterns":
+            out[key] = () if raw == [] else _parse_patterns(raw, file, place)
+            continue
         out[key] = _read_option(raw, opt, file, place,
                                 exclusive_maximum=key in _EXCLUSIVE_MAXIMUM_SETTINGS)
     return out

@@ -40,13 +40,19 @@ CLASSES = textwrap.dedent("""
 """)
 
 
+#: the plane layer's copper: a solid GND plane under everything the tests draw
+PLANE = {"layer": "GND", "net": "GND", "outline": [[-100, -100], [100, -100], [100, 100], [-100, 100]]}
+
+
 def board(tracks, nets=None):
-    names = nets or sorted({t["net"] for t in tracks})
+    names = list(nets or sorted({t["net"] for t in tracks}))
+    names = names + (["GND"] if "GND" not in names else [])
     return read_board_dict({
         "format": "couplint-board", "version": 1, "name": "t",
         "stackup": STACKUP,
         "nets": [n if isinstance(n, dict) else {"name": n} for n in names],
         "tracks": tracks,
+        "regions": [PLANE],
     }, "t.json")
 
 

@@ -144,10 +144,11 @@ def test_progress_reports_every_step():
     calls = []
     board = load_board(demo_board_path())
     check_board(board, default_ruleset(), progress=lambda what, done, total: calls.append((what, done, total)))
-    # demo: 1 broadside layer pair (TOP/IN1), 3 layers with pieces (the GND plane holds only
-    # regions), 1 ground/noise step, 5 rules = 10 steps
-    assert [c[1] for c in calls] == list(range(10))
-    assert {c[2] for c in calls} == {10}
+    # demo: 3 layers with pieces of nets other than GND (the GND plane holds only regions), so
+    # 3 broadside layer pairs (TOP/IN1, TOP/BOT, IN1/BOT: the copper between decides what
+    # shields), 3 edge layers, 1 ground/noise step, 5 rules = 12 steps
+    assert [c[1] for c in calls] == list(range(12))
+    assert {c[2] for c in calls} == {12}
     assert calls[0][0] == "broadside coupling on TOP/IN1" and calls[-1][0].startswith("rule ")
 
 

@@ -267,9 +267,6 @@ def _check_pair(stackup: Stackup, upper: int, lower: int) -> None:
     n = len(stackup.layers)
     if not (0 <= upper < lower < n):
         raise ValueError(f"need 0 <= upper < lower < {n}, got upper={upper}, lower={lower}")
-    for i in (upper, lower):
-        if stackup.layers[i].role == "plane":
-            raise ValueError(f"layer {stackup.layers[i].name!r} is a plane; broadside coupling is between traces")
 
 
 def _grounds(stackup: Stackup, upper: int, lower: int) -> tuple[int | None, int | None]:

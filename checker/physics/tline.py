@@ -329,8 +329,6 @@ def same_layer_section(stackup: Stackup, layer: int, wa: float, wb: float, gap_m
     geometry."""
     from .edge import edge_section
 
-    if 0 <= layer < len(stackup.layers) and stackup.layers[layer].role == "plane":
-        raise ValueError(f"layer {stackup.layers[layer].name!r} is a plane; coupling is between traces")
     return edge_section(stackup, layer, wa, wb, gap_mm)
 
 
