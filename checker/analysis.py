@@ -15,24 +15,27 @@ import numpy as np
 
 from .finder.pairs import PairTable, find_broadside, find_edge
 from .finder.runs import run_labels
+from .guards import GuardedRows, Guards, concat_guards, find_guard_pieces, grounding, guard_factors
+from .islands import Island, find_islands, island_links, relays
 from .model import NO_NET, Board, Pieces
 from .physics import crosstalk
 from .physics.broadside import BroadsideModel, broadside_c12_pf
 from .physics.accurate import ExactBroadside, ExactEdge, ExactGround
 from .physics.edge import EdgeModel, GroundModel
+from .returnpath import ReturnGaps, return_gaps
 from .ruleset import NetClass, Rule, RuleSet
 from .shielding import (ReferenceCopper, effective_stackup, exposed_pieces, reference_copper, reference_mask,
                         role_notes,
                         search_band_mm, split_shielded)
 from .stackup import reference_of, separation_mm
 
-BROADSIDE, EDGE = 0, 1
+BROADSIDE, EDGE, RELAY = 0, 1, 2
 
 #: Smallest edge-to-edge gap (mm) the edge-coupling closed forms are asked
 #: about. Copper of two nets closer than this on one layer is a short or a
 #: clearance error for the design-rule check, not a coupling estimate.
 EDGE_GAP_FLOOR_MM = 0.01
-KIND_NAMES = ("broadside", "edge")
+KIND_NAMES = ("broadside", "edge", "relay")
 
 
 @dataclass
@@ -65,6 +68,13 @@ class Couplings:
     #: shields the rest (-1: none)
     open_fraction: np.ndarray
     shield_layer: np.ndarray
+    #: relay rows: the floating island (index into ``Analysis.islands``)
+    #: that passes the coupling on; -1 on other rows
+    island: np.ndarray
+    #: edge rows: the guard in the gap (index into ``Analysis.guards``, -1
+    #: none) and the factor it applied to ``c12_pf`` (1: not credited)
+    guard: np.ndarray
+    guard_factor: np.ndarray
 
     def __len__(self) -> int:
         return int(self.a.shape[0])
@@ -94,6 +104,8 @@ class NetPairs:
     edge_length_mm: np.ndarray
     area_mm2: np.ndarray
     c12_pf: np.ndarray
+    #: the part of ``c12_pf`` relayed through floating copper (RELAY rows)
+    relay_pf: np.ndarray
     #: coupled noise (V) with net_a as aggressor onto net_b, and the reverse;
     #: NaN where the classes do not give the attributes the model needs
     noise_ab_v: np.ndarray
@@ -162,6 +174,13 @@ class Analysis:
     victim_noise: list[VictimNoise] = field(default_factory=list)
     #: the reference copper that decided shielding (``checker.shielding``)
     reference: ReferenceCopper | None = field(default=None, repr=False)
+    #: stretches of traces over gaps in their nearest reference copper
+    #: (``checker.returnpath``); the reference-gap rule reads them
+    return_gaps: ReturnGaps | None = field(default=None, repr=False)
+    #: floating copper islands (``checker.islands``); relay rows point here
+    islands: list = field(default_factory=list, repr=False)
+    #: guard traces found in the gaps of edge-coupled pairs (``checker.guards``)
+    guards: Guards = field(default_factory=Guards.empty, repr=False)
     _pair_groups: tuple[np.ndarray, np.ndarray] | None = field(default=None, repr=False)
 
     # --- helpers the checks share -------------------------------------
@@ -272,7 +291,8 @@ def analysis_steps(board: Board, ruleset: RuleSet) -> int:
 
 def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=None,
                    accurate: bool = False, models: dict | None = None,
-                   ref: ReferenceCopper | None = None
+                   ref: ReferenceCopper | None = None, islands: list[Island] | None = None,
+                   frequency_hz: np.ndarray | None = None, guards: list | None = None
                    ) -> tuple[Couplings, list[tuple[int, int]], int]:
     """Search every pair of layers (broadside) and every layer (edge) that
     carry copper of nets other than the reference nets; ``progress(description)``
@@ -281,8 +301,11 @@ def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=No
     (``checker.shielding``). The C12' models used are left in ``models`` by
     (kind, layer, layer)."""
     models = {} if models is None else models
+    guards = [] if guards is None else guards
     s = ruleset.settings
     ref = ref if ref is not None else reference_copper(board, s.reference_nets)
+    if frequency_hz is None:
+        frequency_hz = np.full(len(board.nets), np.nan)
     stackup = board.stackup
     pieces = board.pieces
     # reference-net copper is ground, not an aggressor or a victim
@@ -320,11 +343,14 @@ def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=No
             else:
                 fraction, shield_layer = np.ones(len(t)), np.full(len(t), -1, np.int32)
             c12 = _broadside_c12(board, t, u, l, band, accurate, notes, models) * fraction
-            tables.append((BROADSIDE, t, c12, fraction, shield_layer))
+            tables.append((BROADSIDE, t, c12, fraction, shield_layer, None))
         else:
             t = find_edge(signal, u, s.edge_search_mm, s.parallel_angle_deg)
             c12 = _edge_c12(board, t, u, notes, accurate, models)
-            tables.append((EDGE, t, c12, np.ones(len(t)), np.full(len(t), -1, np.int32)))
+            guard = _guard_edge_rows(board, ref, ground, t, u, frequency_hz, s.guard_stitch_fraction,
+                                     guards, notes)
+            tables.append((EDGE, t, c12 * guard.factor, np.ones(len(t)), np.full(len(t), -1, np.int32),
+                           guard))
     if covered:
         notes.append("shielded everywhere by reference copper between the layers (no broadside pair to "
                      "measure): " + ", ".join(covered))
@@ -333,7 +359,64 @@ def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=No
                      "between them (shielded, C12 = 0)")
     examined = sum(t.candidates for _, t, *_ in tables)
     couplings = _assemble(board, tables, ruleset.pairs)
+    if islands is not None:
+        couplings = _with_relays(board, couplings, ref, signal, islands, s.edge_search_mm, notes, ruleset.pairs)
     return couplings, searched, examined
+
+
+def _with_relays(board: Board, c: Couplings, ref: ReferenceCopper, signal: Pieces, islands: list[Island],
+                 edge_search_mm: float, notes: list[str], pairs) -> Couplings:
+    """``c`` with one RELAY row per pair of nets a floating island couples
+    (``checker.islands``)."""
+    if not islands:
+        return c
+    links = island_links(board, ref, islands, signal, edge_search_mm, notes)
+    r = relays(links, len(islands), notes)
+    notes.append(f"floating copper: {len(islands)} island(s) on no net, each taken as a conductor with zero "
+                 f"net charge; {len(r)} net pair(s) coupled through them")
+    if not len(r):
+        return c
+    p = board.pieces
+    n = len(r)
+    z = np.zeros(n)
+    spot = np.array([[islands[s].x, islands[s].y] for s in r.island]).reshape(-1, 2)
+    extra = Couplings(
+        kind=np.full(n, RELAY, np.int8), a=r.piece_a, b=r.piece_b, net_a=r.net_a, net_b=r.net_b,
+        layer_a=p.layer[r.piece_a].astype(np.int32), layer_b=p.layer[r.piece_b].astype(np.int32),
+        angle_deg=z, parallel=np.zeros(n, bool), length_mm=z.copy(), offset_mm=z.copy(), gap_mm=z.copy(),
+        overlap_mm2=z.copy(), x=spot[:, 0], y=spot[:, 1], c12_pf=r.c_pf, open_fraction=np.ones(n),
+        shield_layer=np.full(n, -1, np.int32), island=r.island.astype(np.int64), guard=np.full(n, -1, np.int64),
+        guard_factor=np.ones(n))
+    partner = _partners(board, pairs)
+    extra = extra.take(np.flatnonzero(partner[extra.net_a] != extra.net_b))
+    return Couplings(**{name: np.concatenate([getattr(c, name), getattr(extra, name)])
+                        for name in Couplings.__dataclass_fields__})
+
+
+def _guard_edge_rows(board: Board, ref: ReferenceCopper, ground: np.ndarray, t: PairTable, layer: int,
+                     frequency_hz: np.ndarray, stitch_fraction: float, guards: list, notes: list[str]) -> GuardedRows:
+    """Guards in the gaps of the edge rows ``t`` (``checker.guards``): their
+    grounding is judged once per guard track and appended to ``guards``
+    (one ``Guards`` table per layer); the factor on each row's C12."""
+    p = board.pieces
+    piece, covered = find_guard_pieces(board, ground, t, layer)
+    offset = sum(len(g) for g in guards)
+    index = np.full(len(t), -1, np.int64)
+    has = np.flatnonzero(piece >= 0)
+    if has.size == 0:
+        return GuardedRows(index, covered, np.ones(len(t)))
+    src = p.source[piece[has]].astype(np.int64)
+    sources, inv = np.unique(src, return_inverse=True)
+    f = np.fmax(frequency_hz[p.net[t.a[has]]], frequency_hz[p.net[t.b[has]]])
+    fastest = np.full(sources.size, np.nan)
+    np.fmax.at(fastest, inv, f)
+    table = grounding(board, ref.is_reference, ref.cover, sources, fastest, stitch_fraction)
+    guards.append(table)
+    index[has] = offset + inv
+    credited = np.zeros(len(t), bool)
+    credited[has] = np.array([table.state[k] == "stitched" for k in inv.tolist()], bool)
+    factor = guard_factors(board, t, layer, piece, covered, credited, notes)
+    return GuardedRows(index, covered, factor)
 
 
 def _exposed(signal: Pieces, u: int, l: int, shield, grow_mm: float) -> Pieces | None:
@@ -417,16 +500,23 @@ def _mask_words(board: Board, layer: int) -> str:
     return "under solder mask" if mask is not None else "bare outer layer, no solder mask given"
 
 
-def _assemble(board: Board, tables: list[tuple],
-              pairs: tuple[tuple[str, str], ...] = ()) -> Couplings:
-    net = board.pieces.net
+def _partners(board: Board, pairs: tuple[tuple[str, str], ...] = ()) -> np.ndarray:
+    """Per net, its differential-pair partner (declared on the board or in
+    the rule file), or NO_NET."""
     partner = board.partner_of()
     index = board.net_index()
     for p, n in pairs:  # pairs the rule file declares (a fabrication package cannot say)
         if p in index and n in index:
             partner[index[p]], partner[index[n]] = index[n], index[p]
+    return partner
+
+
+def _assemble(board: Board, tables: list[tuple],
+              pairs: tuple[tuple[str, str], ...] = ()) -> Couplings:
+    net = board.pieces.net
+    partner = _partners(board, pairs)
     cols: dict[str, list[np.ndarray]] = {name: [] for name in Couplings.__dataclass_fields__}
-    for kind, t, c12, fraction, shield_layer in tables:
+    for kind, t, c12, fraction, shield_layer, guarded in tables:
         n = len(t)
         a, b = t.a.astype(np.int64), t.b.astype(np.int64)
         la = np.full(n, t.layer_a, np.int32)
@@ -438,7 +528,9 @@ def _assemble(board: Board, tables: list[tuple],
                       net_b=net[b2].astype(np.int64), layer_a=la2, layer_b=lb2, angle_deg=t.angle_deg,
                       parallel=t.parallel, length_mm=t.length_mm, offset_mm=t.offset_mm, gap_mm=t.gap_mm,
                       overlap_mm2=t.overlap_mm2, x=t.x, y=t.y, c12_pf=c12,
-                      open_fraction=fraction, shield_layer=shield_layer)
+                      open_fraction=fraction, shield_layer=shield_layer, island=np.full(n, -1, np.int64),
+                      guard=guarded.guard if guarded is not None else np.full(n, -1, np.int64),
+                      guard_factor=guarded.factor if guarded is not None else np.ones(n))
         for name, v in values.items():
             cols[name].append(np.asarray(v))
     if not tables:
@@ -447,6 +539,8 @@ def _assemble(board: Board, tables: list[tuple],
             empty[name] = np.zeros(0, np.int64)
         empty["parallel"] = np.zeros(0, bool)
         empty["shield_layer"] = np.zeros(0, np.int32)
+        empty["island"] = np.zeros(0, np.int64)
+        empty["guard"] = np.zeros(0, np.int64)
         return Couplings(**empty)
     c = Couplings(**{name: np.concatenate(v) for name, v in cols.items()})
     # declared differential-pair partners are exempt from each other's checks
@@ -497,7 +591,7 @@ def aggregate_net_pairs(board: Board, c: Couplings, electrical: NetElectrical, c
         net_a=net_a, net_b=net_b,
         broadside_length_mm=total(np.where(c.kind == BROADSIDE, c.length_mm, 0.0)),
         edge_length_mm=total(np.where(c.kind == EDGE, c.length_mm, 0.0)),
-        area_mm2=total(c.overlap_mm2), c12_pf=c12,
+        area_mm2=total(c.overlap_mm2), c12_pf=c12, relay_pf=total(np.where(c.kind == RELAY, c.c12_pf, 0.0)),
         noise_ab_v=_noise(electrical, net_a, net_b, c12, c2g_pf, crosstalk.lumped_noise_v),
         noise_ba_v=_noise(electrical, net_b, net_a, c12, c2g_pf, crosstalk.lumped_noise_v),
         noise_small_r_ab_v=_noise(electrical, net_a, net_b, c12, c2g_pf, crosstalk.lumped_noise_small_r_v),
@@ -543,10 +637,16 @@ def analyse(board: Board, ruleset: RuleSet, progress=None, accurate: bool = Fals
     classes = ruleset.classify(names)
     electrical = electrical_attributes(board, ruleset, classes)
     models: dict = {}
-    couplings, layer_pairs, examined = find_couplings(board, ruleset, notes, progress, accurate, models, ref)
+    islands = find_islands(board)
+    guard_tables: list = []
+    couplings, layer_pairs, examined = find_couplings(board, ruleset, notes, progress, accurate, models, ref,
+                                                      islands, electrical.frequency_hz, guard_tables)
+    guards = concat_guards(guard_tables)
     if progress is not None:
         progress("capacitance to ground and noise")
     c2g = net_capacitance_to_ground_pf(board, electrical, notes, accurate)
     net_pairs = aggregate_net_pairs(board, couplings, electrical, c2g)
+    gaps = return_gaps(board, ref)  # traces over voids and splits of their reference copper
     return Analysis(board, ruleset, couplings, net_pairs, electrical, c2g, classes, notes,
-                    layer_pairs, examined, "accurate" if accurate else "fast", models, reference=ref)
+                    layer_pairs, examined, "accurate" if accurate else "fast", models, reference=ref,
+                    islands=islands, return_gaps=gaps, guards=guards)

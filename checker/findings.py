@@ -55,6 +55,9 @@ class Finding:
     #: noise budgets: which model gave the number (lumped, small-r, transmission-line)
     noise_model: str | None = None
     suggestion: str | None = None
+    #: what shields the coupling and what relays it (reference copper
+    #: between the layers, floating islands), in words
+    coupling_path: str | None = None
 
     def sort_key(self) -> tuple:
         """Worst first: errors before warnings, then by how far over the

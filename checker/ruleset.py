@@ -86,6 +86,10 @@ SETTINGS_SCHEMA: dict[str, tuple[str, Option]] = {
     "reference_nets": ("reference_nets", Option(
         "patterns", default=DEFAULT_REFERENCE_NETS,
         help="net-name patterns of the nets that are AC ground: their copper shields")),
+    "guard_stitch_fraction": ("guard_stitch_fraction", Option(
+        "ratio", default=0.05, minimum=0.0, maximum=1.0, exclusive_minimum=True,
+        help="a guard trace counts as grounded when its stitching vias are at most this fraction of a "
+             "wavelength apart (at the faster neighbouring net's frequency)")),
     "bandwidth_factor": ("bandwidth_factor", Option(
         "ratio", default=0.35, minimum=0.0, maximum=1.0, exclusive_minimum=True,
         help="aggressor frequency = factor / rise_time")),
@@ -128,6 +132,8 @@ class Settings:
     bandwidth_factor: float
     #: net-name patterns of the reference (AC ground) nets
     reference_nets: tuple[str, ...] = DEFAULT_REFERENCE_NETS
+    #: stitching of guard traces: the largest via spacing, as a fraction of a wavelength
+    guard_stitch_fraction: float = 0.05
 
 
 @dataclass(frozen=True)
@@ -586,6 +592,10 @@ def _parse_rule(raw: Any, file: str, place: str) -> _OwnRule:
     refs: list[tuple[str, str]] = []
     aggressor = _parse_class_refs(raw.get("aggressor", ANY), file, _join(place, "aggressor"), refs)
     victim = _parse_class_refs(raw.get("victim", ANY), file, _join(place, "victim"), refs)
+    if victim and not getattr(REGISTRY[kind], "USES_VICTIM", True):
+        raise RuleError(file, _join(place, "victim"),
+                        f"kind {kind!r} takes no victim classes (its findings name their own victim; see "
+                        f"'couplint kinds {kind}'); leave 'victim' out or set it to '{ANY}'")
     severity = raw.get("severity", "error")
     if not isinstance(severity, str) or severity not in SEVERITIES:
         raise RuleError(file, _join(place, "severity"),

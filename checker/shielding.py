@@ -94,9 +94,14 @@ def reference_mask(names, patterns) -> np.ndarray:
 
     >>> reference_mask(["GND", "AGND", "CLK", "VSS_A"], ("GND*", "AGND", "VSS*")).tolist()
     [True, True, False, True]
+    >>> reference_mask(["VREF_2V5", "2V5", "SENSE_GND_REF"], ("[0-9]V[0-9]*", "GND*")).tolist()
+    [False, True, False]
     """
-    rx = [re.compile(p[3:] if p.startswith("re:") else fnmatch.translate(p)) for p in patterns]
-    return np.array([any(r.search(n) for r in rx) for n in names], dtype=bool)
+    # a glob matches the whole name (fnmatch.translate anchors the end; match the start);
+    # a regular expression is searched, as in net classes
+    tests = [re.compile(p[3:]).search if p.startswith("re:") else re.compile(fnmatch.translate(p)).match
+             for p in patterns]
+    return np.array([any(t(n) for t in tests) for n in names], dtype=bool)
 
 
 def piece_polygons(pieces: Pieces, index: np.ndarray, grow_mm=0.0) -> np.ndarray:

@@ -30,7 +30,7 @@ against the JSON door on the same copper:
 Usage::
 
     python scripts/write_fab.py BOARD.json OUTDIR [--holes clear|cutin] [--sr]
-        [--negative-planes] [--no-net-attributes] [--ipc356] [--er-as-string]
+        [--negative-planes] [--no-net-attributes] [--no-roles] [--ipc356] [--er-as-string]
     python scripts/write_fab.py --fixtures      # regenerate fixtures/fab/*
 
 or from Python: ``write_fab(board_or_path, outdir, **options) -> list[Path]``.
@@ -84,6 +84,14 @@ Options change the form, never the copper:
   of the plane's net must pass through the copper and none of another
   net may) and no via pads (the drill file gives the via's span).
 ``net_attributes``: ``False`` writes no ``TO.N`` at all.
+``roles``: ``False`` writes every copper layer's ``TF.FileFunction`` (in
+  the Gerber file and in the job file's ``FilesAttributes``) as
+  ``Copper,L<n>,Top|Inr|Bot`` without the optional layer type field
+  (``Plane``, ``Signal``, ``Mixed``; the Gerber Layer Format
+  Specification makes it optional), and names no role in the files'
+  comments: an export that declares no layer roles. The job file's
+  ``MaterialStackup`` carries no role either way. (A negative plane layer
+  still says ``TF.FilePolarity,Negative``, which readers take as a plane.)
 ``ipc356``: also write the IPC-D-356A netlist.
 ``er_as_string``: the job file's ``DielectricConstant`` values as strings
   with a decimal comma (``"4,2"``), as some exporters write them.
@@ -140,6 +148,10 @@ ROLE_TYPES = {"signal": "Signal", "plane": "Plane", "mixed": "Mixed"}
 FIXTURE_SETS: dict[str, tuple[str, dict[str, Any]]] = {
     "six_layer": ("fixtures/six_layer_fab.json", {"sr": True, "ipc356": True}),
     "four_layer_mixed": ("fixtures/four_layer_mixed.json", {"holes": "cutin", "ipc356": True}),
+    # the shielding cases (fixtures/shielding/*.json), exported without layer roles
+    **{f"shielding-{case}": (f"fixtures/shielding/{case}.json", {"roles": False})
+       for case in ("void_under_run", "empty_layer", "ground_strip", "island", "split_plane",
+                    "guard_stitched", "guard_one_end")},
 }
 
 #: Suffixes of the files the writer makes (stale ones are removed from a
@@ -510,7 +522,7 @@ class FabWriter:
     def __init__(self, board: Board, *, holes: str = "clear", sr: bool = False,
                  negative_planes: bool = False, net_attributes: bool = True, ipc356: bool = False,
                  er_as_string: bool = False, name: str | None = None,
-                 creation_date: str = CREATION_DATE) -> None:
+                 creation_date: str = CREATION_DATE, roles: bool = True) -> None:
         if holes not in ("clear", "cutin"):
             raise FabWriteError(f"holes must be 'clear' or 'cutin', got {holes!r}")
         self.board = board
@@ -520,6 +532,7 @@ class FabWriter:
         self.net_attributes = net_attributes
         self.ipc356 = ipc356
         self.er_as_string = er_as_string
+        self.roles = roles
         self.stem = safe_file_stem(name if name is not None else board.name)
         self.date = creation_date
         self.layers = board.stackup.layers
@@ -538,7 +551,9 @@ class FabWriter:
         return "Bot" if i == self.n - 1 else "Inr"
 
     def copper_function(self, i: int) -> str:
-        return f"Copper,L{i + 1},{self.position(i)},{ROLE_TYPES[self.layers[i].role]}"
+        """``Copper,L<n>,Top|Inr|Bot[,type]``: the type field only with ``roles``."""
+        function = f"Copper,L{i + 1},{self.position(i)}"
+        return f"{function},{ROLE_TYPES[self.layers[i].role]}" if self.roles else function
 
     def is_negative(self, i: int) -> bool:
         return self.negative_planes and self.layers[i].role == "plane"
@@ -589,7 +604,8 @@ class FabWriter:
         by_width, by_pad, table = self.apertures((s.width for s in strokes), (float(v.pad[k]) for k in vias))
         g = GerberText(self.net_attributes)
         function = self.copper_function(i)
-        g.header(self.board.name, f"copper layer {layer.name} ({layer.role})", function, "Positive", self.date)
+        what = f"copper layer {layer.name} ({layer.role})" if self.roles else f"copper layer {layer.name}"
+        g.header(self.board.name, what, function, "Positive", self.date)
         g.define(table)
 
         # regions with their holes first, so a clear-polarity hole removes
@@ -672,7 +688,8 @@ class FabWriter:
         shell, holes = rings_nm(plane.polygon)
         function = self.copper_function(i)
         g = GerberText(net_attributes=False)
-        g.header(self.board.name, f"copper layer {layer.name} (plane, negative: dark = no copper)",
+        what = "plane, negative" if self.roles else "negative"
+        g.header(self.board.name, f"copper layer {layer.name} ({what}: dark = no copper)",
                  function, "Negative", self.date)
         g.add("G75*")
         if shapely.Polygon(shell).symmetric_difference(shapely.Polygon(outer)).area > 0:
@@ -981,6 +998,9 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--negative-planes", action="store_true",
                         help="plane layers as negative images (dark = no copper)")
     parser.add_argument("--no-net-attributes", action="store_true", help="write no TO.N net attributes")
+    parser.add_argument("--no-roles", action="store_true",
+                        help="declare no layer roles: TF.FileFunction copper attributes without the "
+                             "Plane/Signal/Mixed type field")
     parser.add_argument("--ipc356", action="store_true", help="also write an IPC-D-356A netlist")
     parser.add_argument("--er-as-string", action="store_true",
                         help='job file dielectric constants as strings with a decimal comma ("4,2")')
@@ -998,7 +1018,8 @@ def main(argv: list[str] | None = None) -> int:
     try:
         files = write_fab(board, args.outdir, holes=args.holes, sr=args.sr,
                           negative_planes=args.negative_planes, net_attributes=not args.no_net_attributes,
-                          ipc356=args.ipc356, er_as_string=args.er_as_string, name=args.name)
+                          ipc356=args.ipc356, er_as_string=args.er_as_string, name=args.name,
+                          roles=not args.no_roles)
     except FabWriteError as exc:
         print(f"{args.board}: {exc}", file=sys.stderr)
         return 2

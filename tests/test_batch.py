@@ -116,7 +116,7 @@ def check_junit(summary: dict, path: str) -> None:
     suites = root.findall("testsuite")
     assert [s.get("name") for s in suites] == [b["path"] for b in summary["boards"]]
     rule_names = list(summary["boards"][1]["by_rule"])
-    assert len(rule_names) == 5
+    assert len(rule_names) == 7  # the rules of the default set
     for suite, row in zip(suites, summary["boards"]):
         cases = suite.findall("testcase")
         assert [c.get("name") for c in cases] == ["load"] + rule_names
@@ -133,7 +133,7 @@ def check_junit(summary: dict, path: str) -> None:
         report = json.loads(Path(row["report_path"]).read_text())
         for f in report["findings"]:  # every failing finding is listed with its id and message
             assert f"[{f['id']}]" in failed[f["rule"]].text and f["message"] in failed[f["rule"]].text
-    assert root.get("tests") == str(5 * 6)
+    assert root.get("tests") == str(5 * 8)  # 5 boards x (load + 7 rules)
     assert root.get("errors") == "1"
     assert root.get("failures") == str(sum(sum(1 for n in b["by_rule"].values() if n) for b in summary["boards"]))
 

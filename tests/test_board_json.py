@@ -451,6 +451,12 @@ def test_demo_board_scenario_is_as_documented() -> None:
     assert clk.intersection(vref).area == 0
     assert clk.distance(vref) == pytest.approx(0.15, abs=1e-6)
     assert run_length(board, "VREF_2V5", "CLK_ADC", "IN1", "TOP", 0.16) == pytest.approx(4, abs=0.1)
+    # 8. a 2 x 4 mm void in the GND plane under IN1: SPI_SCK's centreline on IN1 (y 10) crosses it at
+    # 90 degrees, 13 - 11 = 2 mm over no GND copper; TOP has no GND copper, so GND is IN1's nearest
+    (plane,) = [r.polygon for r in board.regions if st.names[r.layer] == "GND"]
+    assert shapely.Polygon([(11, 8), (13, 8), (13, 12), (11, 12)]).within(
+        shapely.Polygon(plane.exterior).difference(plane))
+    assert centreline(board, "SPI_SCK", "IN1").difference(plane).length == pytest.approx(2.0, abs=1e-9)
     # no accidental shorts: different nets on one layer never touch
     p = board.pieces
     for layer in range(len(st.layers)):

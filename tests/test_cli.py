@@ -22,7 +22,8 @@ def test_demo_finds_every_rule_kind(capsys):
     assert code == 1, err
     report = json.loads(out)
     kinds = {f["kind"] for f in report["findings"]}
-    assert kinds == {"crossing-angle", "spacing-ratio", "parallel-length", "capacitance-budget", "noise-budget"}
+    assert kinds == {"crossing-angle", "spacing-ratio", "parallel-length", "capacitance-budget", "noise-budget",
+                     "reference-gap", "guard-grounding"}
     for f in report["findings"]:
         for key in ("id", "rule", "severity", "aggressor", "victim", "layers", "bbox", "at", "value",
                     "limit", "unit", "message", "length_mm", "area_mm2", "c12_pf", "noise_mv"):
@@ -34,6 +35,11 @@ def test_demo_finds_every_rule_kind(capsys):
     # the declared differential pair is exempt from each other's checks
     assert not any({f["aggressor"], f["victim"]} == {"SENSE_P", "SENSE_N"} for f in report["findings"])
     assert report["summary"]["findings"] == len(report["findings"])
+    # scenario (8): SPI_SCK on IN1 crosses the 2 mm wide void (x 11..13) in the GND plane at 90 degrees,
+    # so 13 - 11 = 2 mm of its centreline lies over no GND copper, spot at the void's middle (12, 10)
+    (gap,) = [f for f in report["findings"] if f["kind"] == "reference-gap" and f["aggressor"] == "SPI_SCK"
+              and f["layers"] == ["IN1", "GND"]]
+    assert gap["victim"] == "GND" and gap["value"] == pytest.approx(2.0) and gap["at"] == pytest.approx([12, 10])
 
 
 def test_demo_text_output(capsys):
@@ -123,7 +129,8 @@ def test_usage_error_exits_2(capsys):
 def test_kinds_lists_every_rule_kind(capsys):
     code, out, _ = run(capsys, "kinds")
     assert code == 0
-    for kind in ("crossing-angle", "spacing-ratio", "parallel-length", "capacitance-budget", "noise-budget"):
+    for kind in ("crossing-angle", "spacing-ratio", "parallel-length", "capacitance-budget", "noise-budget",
+                 "reference-gap"):
         assert kind in out
     assert run(capsys, "kinds", "nope")[0] == 2
 
@@ -146,9 +153,9 @@ def test_progress_reports_every_step():
     check_board(board, default_ruleset(), progress=lambda what, done, total: calls.append((what, done, total)))
     # demo: 3 layers with pieces of nets other than GND (the GND plane holds only regions), so
     # 3 broadside layer pairs (TOP/IN1, TOP/BOT, IN1/BOT: the copper between decides what
-    # shields), 3 edge layers, 1 ground/noise step, 5 rules = 12 steps
-    assert [c[1] for c in calls] == list(range(12))
-    assert {c[2] for c in calls} == {12}
+    # shields), 3 edge layers, 1 ground/noise step, 7 rules = 14 steps
+    assert [c[1] for c in calls] == list(range(14))
+    assert {c[2] for c in calls} == {14}
     assert calls[0][0] == "broadside coupling on TOP/IN1" and calls[-1][0].startswith("rule ")
 
 
@@ -227,12 +234,14 @@ def test_deliverables_are_written(tmp_path, capsys):
     svg_root = ET.fromstring(out["svg"].read_text())
     groups = {el.get("id") for el in svg_root.iter() if el.get("id")}
     assert {f"f-{i}" for i in ids} <= groups
-    assert sorted(p.name for p in (tmp_path / "groups").iterdir()) == ["IN1.svg", "TOP-IN1.svg", "TOP.svg"]
+    # IN1-GND: the reference-gap finding of SPI_SCK on IN1 over the void in the GND plane
+    assert sorted(p.name for p in (tmp_path / "groups").iterdir()) == ["IN1-GND.svg", "IN1.svg", "TOP-IN1.svg",
+                                                                        "TOP.svg"]
     page = out["html"].read_text()
     assert all(f'data-finding-id="{i}"' in page for i in ids)
     suites = ET.fromstring(out["xml"].read_text())
     failures = sum(len(case.findall("failure")) for case in suites.iter("testcase"))
-    assert failures == 5  # one failing test case per rule of the default set: every rule fires on the demo
+    assert failures == 7  # one failing test case per rule of the default set: every rule fires on the demo
 
 
 def test_deliverable_may_not_overwrite_an_input(tmp_path, capsys):

@@ -73,7 +73,10 @@ def test_default_set_loads_with_the_documented_values():
     rs = default_ruleset()
     assert rs.path == str(shipped_ruleset_path("default"))
     assert rs.settings == Settings(broadside_search_mm=0.5, edge_search_mm=1.0, parallel_angle_deg=10.0,
-                                   planes_shield=True, bandwidth_factor=0.35)
+                                   planes_shield=True, bandwidth_factor=0.35,
+                                   reference_nets=("GND", "GND*", "*_GND", "*GND", "AGND*", "DGND*", "PGND*",
+                                                   "VSS*", "0V", "[0-9]V[0-9]*", "+[0-9]*V*", "VCC", "VCC_*",
+                                                   "VDD", "VDD_*"))
     classes = {c.name: c for c in rs.classes}
     assert list(classes) == ["clocks", "switch-nodes", "sensitive-analog"]
     assert classes["clocks"].patterns == ("*CLK*", "*SCK*")
@@ -89,7 +92,8 @@ def test_default_set_loads_with_the_documented_values():
     assert sorted(by_kind) == sorted(REGISTRY), "one rule of each kind"
     for rule in rs.rules:
         assert rule.aggressor == ("clocks", "switch-nodes")
-        assert rule.victim == ("sensitive-analog",)
+        # reference-gap takes no victim classes (its victim is the reference net with the gap)
+        assert rule.victim == (() if rule.kind == "reference-gap" else ("sensitive-analog",))
     assert dict(by_kind["crossing-angle"].options) == {"min_angle": 60.0, "max_length": 2.0}
     assert dict(by_kind["spacing-ratio"].options) == {"measure": "centre/width", "min_ratio": 3.0,
                                                        "min_length": 1.0}
@@ -98,6 +102,7 @@ def test_default_set_loads_with_the_documented_values():
                                                            {"gap": 0.5, "max_length": 20.0})
     assert by_kind["capacitance-budget"].options["max_c12"] == pytest.approx(0.5e-12)
     assert by_kind["noise-budget"].options["max_noise"] == pytest.approx(0.010)
+    assert dict(by_kind["reference-gap"].options) == {"max_length": 1.0}
 
 
 def test_default_set_classifies_demo_style_net_names():
@@ -267,8 +272,9 @@ def test_extends_shipped_default(tmp_path):
     assert rs.settings == base.settings
     assert rs.net_class("sensitive-analog").resistance_ohm == 1e3
     assert rs.net_class("sensitive-analog").node_capacitance_f == 0.0  # whole class replaced
-    assert [r.name for r in rs.rules] == ["adjacent-layer-crossing", "coupling-capacitance", "coupled-noise"]
-    assert rs.rules[-1].aggressor == ("clocks",) and rs.rules[-1].options["max_noise"] == pytest.approx(1e-3)
+    assert [r.name for r in rs.rules] == ["adjacent-layer-crossing", "coupling-capacitance", "coupled-noise",
+                                          "fast-net-over-plane-gap", "guard-not-grounded"]
+    assert rs.rules[2].aggressor == ("clocks",) and rs.rules[2].options["max_noise"] == pytest.approx(1e-3)
 
 
 def test_error_in_extended_file_names_that_file():
@@ -373,8 +379,8 @@ ERROR_CASES = [
     pytest.param(with_rule("- name: Clock_Rule\n  kind: crossing-angle\n"), "rules[1].name",
                  "'Clock_Rule' is not a valid rule name", id="rule-bad-name"),
     pytest.param(with_rule("- name: x\n  kind: spacing\n"), "rules[1].kind",
-                 "unknown kind 'spacing' (known: capacitance-budget, crossing-angle, noise-budget, "
-                 "parallel-length, spacing-ratio)", id="unknown-kind"),
+                 "unknown kind 'spacing' (known: capacitance-budget, crossing-angle, guard-grounding, "
+                 "noise-budget, parallel-length, reference-gap, spacing-ratio)", id="unknown-kind"),
     pytest.param(with_rule("- name: x\n  kind: crossing-angle\n  min_ratio: 3\n"), "rules[1].min_ratio",
                  "unknown key for kind 'crossing-angle' (common keys: name, kind, aggressor, victim, severity, "
                  "description; options of crossing-angle: min_angle, max_length)", id="unknown-rule-key"),

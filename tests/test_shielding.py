@@ -167,3 +167,130 @@ def test_full_grounded_plane_between_gives_exactly_zero():
     r = solve(cs, 1.0)
     assert r.c12 == 0.0
     assert r.to_ground(0) > 0 and r.to_ground(1) > 0
+
+
+# --------------------------------------------------------------------------
+# Floating copper: the zero-charge reduction and islands as relays
+# --------------------------------------------------------------------------
+
+from checker.analysis import RELAY  # noqa: E402
+from checker.physics.network import kron_reduce, maxwell_from_mutual, mutual_form, relayed_mutual  # noqa: E402
+
+
+def test_kron_reduction_is_the_series_circuit():
+    """Three conductors 1, 2 and a floating s (mutual form, pF): C12 = 0.1,
+    C1s = 2, C2s = 3, Csg = 5, C1g = 1, C2g = 4. Textbook circuit theory:
+    C12' = C12 + C1s C2s / (C1s + C2s + Csg) = 0.1 + 6/10 = 0.7;
+    C1g' = C1g + C1s (C2s... ) -- the total seen from node 1 with 2 grounded:
+    C1g + C12 + (C1s series (C2s + Csg)) = 1 + 0.1 + 2*8/10 = 2.7 = C11'."""
+    mutual = np.array([[0, 0.1, 2.0], [0.1, 0, 3.0], [2.0, 3.0, 0]])
+    ground = np.array([1.0, 4.0, 5.0])
+    reduced = kron_reduce(maxwell_from_mutual(mutual, ground), [2])
+    m, g = mutual_form(reduced)
+    assert m[0, 1] == pytest.approx(0.7, rel=1e-12)
+    assert reduced[0, 0] == pytest.approx(2.7, rel=1e-12)
+    assert relayed_mutual([2.0, 3.0], 5.0)[0, 1] == pytest.approx(0.6, rel=1e-12)
+    # a grounded conductor is simply dropped: C12 stays 0.1
+    assert -maxwell_from_mutual(mutual, ground)[np.ix_([0, 1], [0, 1])][0, 1] == pytest.approx(0.1)
+
+
+def test_floating_sheet_between_plates_shortens_the_gap():
+    """Field solve: two 20 mm plates 0.5 mm apart in air, with a floating
+    0.2 mm sheet midway. Parallel plates (any electromagnetics text): a
+    floating conductor of thickness t between them leaves C' = eps0 w /
+    (d - t), i.e. the ratio to the empty gap is d / (d - t) = 0.5 / 0.3 =
+    1.667; the edges add a little fringing to both (within 3 %)."""
+    w, d, t = 20.0, 0.5, 0.2
+    a = Conductor(-w / 2, w / 2, d, d + 0.01, 0)
+    b = Conductor(-w / 2, w / 2, -0.01, 0.0, 1)
+    s = Conductor(-w / 2, w / 2, (d - t) / 2, (d + t) / 2, 2)
+    empty = solve(CrossSection((a, b), (), ()), 1.0).c12
+    three = solve(CrossSection((a, b, s), (), ()), 1.0)
+    relayed = -kron_reduce(three.maxwell, [2])[0, 1]
+    assert empty == pytest.approx(epsilon_0 * w / d, rel=0.06)
+    assert relayed / empty == pytest.approx(d / (d - t), rel=0.03)
+    # with the sheet held at 0 V instead (grounded), almost nothing couples
+    assert three.c12 < 0.05 * empty
+
+
+def island_board(plane_between=False):
+    """CLK (L1, y = 0, x 0..25, 0.15 mm) over a floating island on L3
+    (x 0..25, |y| <= 1); SENSE on L3 at y = 1.475, so its edge is 0.4 mm
+    from the island's; too far from CLK to couple directly (edge gap in
+    plan 1.475 - 0.15 = 1.325 mm > band 2.5 x 0.435 = 1.09 mm)."""
+    island = {"layer": "L3", "outline": [[0, -1], [25, -1], [25, 1], [0, 1]]}
+    regions = [island] + ([plane()] if plane_between else [])
+    return read_board_dict({
+        "format": "couplint-board", "version": 1, "name": "t", "stackup": stackup(),
+        "nets": [{"name": "CLK"}, {"name": "SENSE"}, {"name": "GND"}],
+        "tracks": [{"layer": "L1", "net": "CLK", "width": W, "points": [[0, 0], [25, 0]]},
+                   {"layer": "L3", "net": "SENSE", "width": W, "points": [[0, 1.475], [25, 1.475]]}],
+        "regions": regions,
+        "outline": [[-20, -20], [45, -20], [45, 20], [-20, 20]],
+    }, "t.json")
+
+
+def test_island_relays_clock_onto_sensor():
+    from checker.islands import find_islands, island_links
+
+    b = island_board()
+    a = analyse(b, default_ruleset())
+    c = a.couplings
+    assert not np.any(c.kind != RELAY)  # no direct coupling at all
+    (row,) = np.flatnonzero(c.kind == RELAY)
+    assert [a.net_name(int(c.net_a[row])), a.net_name(int(c.net_b[row]))] == ["CLK", "SENSE"]
+    assert (len(a.islands), a.islands[0].area_mm2) == (1, pytest.approx(50.0))  # 25 x 2 mm
+    # the relay is the series circuit of the island's own capacitances
+    st = a.board.stackup
+    signal = b.pieces
+    links = island_links(a.board, a.reference, find_islands(a.board), signal, 1.0, [])
+    c1s, c2s = links.c_pf
+    assert links.ground_pf[0] == 0.0  # no plane anywhere: nothing to ground but the nets
+    assert c.c12_pf[row] == pytest.approx(c1s * c2s / (c1s + c2s + 0.0), rel=1e-9)
+    # C(CLK, island) = C'(0.15 mm over a wide strip) x 25 mm, the table against a direct solve
+    wide = max(1.0, 10 * 0.435)
+    per_m = solve(broadside_section(st, 0, 2, W, wide, 0.0), 1.5).c12
+    assert c1s == pytest.approx(per_m * 0.025 * 1e12, rel=0.04)
+    assert a.net_pairs.relay_pf.tolist() == pytest.approx([c.c12_pf[row]])
+
+
+def test_island_over_a_plane_relays_less_and_names_itself(tmp_path):
+    """Over a GND plane the island's C to ground is eps0 er A / h with A =
+    50 mm^2, h = 0.2 mm, er 4.2: 8.854e-12 * 4.2 * 50e-6 / 0.2e-3 = 9.30 pF;
+    the clock on L1 is shielded from the island (plane between): no relay."""
+    from checker.islands import find_islands, island_links
+
+    a = analyse(island_board(plane_between=True), default_ruleset())
+    links = island_links(a.board, a.reference, find_islands(a.board), a.board.pieces, 1.0, [])
+    assert links.ground_pf[0] == pytest.approx(9.297, rel=1e-3)
+    assert not np.any(a.couplings.kind == RELAY)
+
+
+def test_relay_is_named_in_the_finding(tmp_path):
+    from checker.runner import check_board
+
+    path = tmp_path / "r.yaml"
+    path.write_text("version: 1\nextends: default\nrules:\n"
+                    "  - {name: c12, kind: capacitance-budget, aggressor: clocks, victim: sensitive-analog,"
+                    " max_c12: 0.01 pF}\n")
+    result = check_board(island_board(), load_ruleset(path))
+    f = next(f for f in result.findings if f.rule == "c12")
+    assert "relayed through floating copper (island 1 on L3" in f.coupling_path
+    noise = next(f for f in result.findings if f.kind == "noise-budget")
+    assert "grounding the floating copper would remove" in noise.coupling_path
+
+
+def test_overlay_draws_the_void_and_the_island(tmp_path):
+    """The SVG overlay shows what leaves a run unshielded or relays it."""
+    from checker.report.svg import CONTEXT_LABELS, render_svg
+    from checker.runner import check_board
+
+    path = tmp_path / "r.yaml"
+    path.write_text("version: 1\nextends: default\nrules:\n"
+                    "  - {name: c12, kind: capacitance-budget, aggressor: clocks, victim: sensitive-analog,"
+                    " max_c12: 0.01 pF}\n")
+    void = render_svg(check_board(make([plane([[[5, -3], [15, -3], [15, 3], [5, 3]]])]), load_ruleset(path)))
+    assert void.count('data-role="void"') == 1 and CONTEXT_LABELS["void"] in void
+    assert 'data-role="island"' not in void
+    island = render_svg(check_board(island_board(), load_ruleset(path)))
+    assert island.count('data-role="island"') == 1 and "island 1: floating copper on L3, 50 mm^2" in island

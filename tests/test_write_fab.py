@@ -584,6 +584,38 @@ def test_net_attributes_change_only_where_the_net_changes(packages):
     assert attrs == ["%TO.N,CLK_X*%", "%TD*%", "%TO.N,CLK_X*%", "%TO.N,SENSE_X*%", "%TO.N,GND*%"]
 
 
+# --------------------------------------------------------------------------- layer roles
+
+
+def test_no_roles_leaves_out_only_the_layer_type(packages, tmp_path, capsys):
+    # roles=False: TF.FileFunction Copper,L<n>,Top|Inr|Bot without the
+    # optional type field (Gerber spec), in the files and in the job file's
+    # FilesAttributes, and no role in the writer's comment; nothing else moves
+    _board, with_roles = packages("six", holes="clear")
+    _board, without = packages("six", holes="clear", roles=False)
+    assert sorted(p.name for p in with_roles.iterdir()) == sorted(p.name for p in without.iterdir())
+    roles = {1: "Signal", 2: "Plane", 3: "Signal", 4: "Signal", 5: "Plane", 6: "Mixed"}  # the fixture's stackup
+    positions = {1: "Top", 6: "Bot"}
+    for n, role in roles.items():
+        name = f"six-layer-fab-L{n}.gbr"
+        a, b = (with_roles / name).read_text().splitlines(), (without / name).read_text().splitlines()
+        changed = [(x, y) for x, y in zip(a, b) if x != y]
+        function = f"Copper,L{n},{positions.get(n, 'Inr')}"
+        assert len(a) == len(b) and changed == [
+            (a[1], a[1].rsplit(" (", 1)[0] + "*"),
+            (f"%TF.FileFunction,{function},{role}*%", f"%TF.FileFunction,{function}*%"),
+        ], name
+    ja = json.loads((with_roles / "six-layer-fab.gbrjob").read_text())
+    jb = json.loads((without / "six-layer-fab.gbrjob").read_text())
+    assert ja["MaterialStackup"] == jb["MaterialStackup"]
+    strip = {f["Path"]: re.sub(r",(Plane|Signal|Mixed)$", "", f["FileFunction"]) for f in ja["FilesAttributes"]}
+    assert {f["Path"]: f["FileFunction"] for f in jb["FilesAttributes"]} == strip
+    # the command line: --no-roles
+    assert write_fab.main([str(FOUR), str(tmp_path / "cli"), "--no-roles"]) == 0
+    capsys.readouterr()
+    assert "%TF.FileFunction,Copper,L3,Inr*%" in (tmp_path / "cli" / "four-layer-mixed-L3.gbr").read_text()
+
+
 # --------------------------------------------------------------------------- drills
 
 

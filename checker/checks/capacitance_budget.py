@@ -28,7 +28,7 @@ OPTIONS = {
 
 def check(rule, ctx):
     """Yield a finding per net pair whose total C12 exceeds ``max_c12``."""
-    from .common import make_finding, run_place
+    from .common import make_finding, path_text, run_place
     from .whatif import SPACING_ANSWERS, extra_spacing_mm, shorten_text
 
     np_ = ctx.net_pairs
@@ -54,4 +54,5 @@ def check(rule, ctx):
             length_mm=float(c.length_mm[rows].sum()), area_mm2=float(c.overlap_mm2[rows].sum()),
             c12_pf=total, keep_fraction=limit_pf / total, extra_spacing_mm=extra if extra is not False else None,
             suggestion=shorten_text(limit_pf / total, float(longest[k]), total, extra),
+            coupling_path=path_text(ctx, rows),
         )

@@ -83,3 +83,51 @@ def ratio_over(value: float, limit: float) -> float:
     """How many times ``value`` exceeds ``limit`` (a zero limit counts any
     positive value as far over)."""
     return value / limit if limit > 0 else 1.0 + value
+
+
+def path_text(ctx, rows: np.ndarray) -> str | None:
+    """In words: how much of the broadside length of ``rows`` reference
+    copper between the layers shields (and on which layer, by which nets),
+    and what floating islands relay (id, layer, place, area, pF)."""
+    from ..analysis import BROADSIDE, EDGE, RELAY
+
+    c = ctx.couplings
+    parts = []
+    bs = rows[c.kind[rows] == BROADSIDE]
+    if bs.size:
+        # rows wholly shielded were never kept; open_fraction < 1 marks partly shielded rows
+        partly = bs[c.open_fraction[bs] < 1.0]
+        if partly.size:
+            length = float(c.length_mm[bs].sum())
+            shielded = float((c.length_mm[partly] * (1.0 - c.open_fraction[partly])).sum())
+            layers = sorted({int(k) for k in c.shield_layer[partly] if k >= 0})
+            ref = ctx.reference
+            by = ", ".join(f"{ctx.layer_name(k)}" + (f" ({'+'.join(ref.nets[k])})" if ref and ref.nets[k] else "")
+                           for k in layers)
+            parts.append(f"{shielded:.2f} of {length:.2f} mm of the broadside run shielded by reference copper on "
+                         f"{by}; the rest lies over voids or gaps in it")
+    ed = rows[(c.kind[rows] == EDGE) & (c.guard[rows] >= 0)]
+    if ed.size:
+        g = ctx.guards
+        for k in np.unique(c.guard[ed]).tolist():
+            mine = ed[c.guard[ed] == k]
+            net = ctx.net_name(int(g.net[k]))
+            if g.state[k] == "stitched":
+                before = float((c.c12_pf[mine] / c.guard_factor[mine]).sum())
+                cut = 1.0 - float(c.c12_pf[mine].sum()) / before if before > 0 else 0.0
+                parts.append(f"a grounded {net} guard in the gap on {ctx.layer_name(int(g.layer[k]))} takes "
+                             f"{cut * 100:.0f} % off the edge C12 beside it")
+            else:
+                state = {"floating": "floating", "one end": "grounded at one end only",
+                         "sparse": "stitched too far apart"}[g.state[k]]
+                parts.append(f"a {net} guard in the gap on {ctx.layer_name(int(g.layer[k]))} is {state}: "
+                             "not counted as a shield")
+    rl = rows[c.kind[rows] == RELAY]
+    if rl.size:
+        for s in np.unique(c.island[rl]).tolist():
+            isl = ctx.islands[s]
+            pf = float(c.c12_pf[rl][c.island[rl] == s].sum())
+            parts.append(f"{pf:.3g} pF relayed through floating copper (island {isl.id} on "
+                         f"{ctx.layer_name(isl.layer)} at {isl.x:.2f}, {isl.y:.2f}, {isl.area_mm2:.3g} mm^2, "
+                         "on no net)")
+    return "; ".join(parts) or None

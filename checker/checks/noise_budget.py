@@ -40,7 +40,7 @@ OPTIONS = {
 
 def check(rule, ctx):
     """Yield a finding per victim whose summed coupled noise exceeds ``max_noise``."""
-    from .common import make_finding, run_place
+    from .common import make_finding, path_text, run_place
     from ..longruns import long_run_crosstalk
     from .whatif import SPACING_ANSWERS, extra_spacing_mm, shorten_text
 
@@ -99,6 +99,8 @@ def check(rule, ctx):
             noise_model="transmission-line" if long_here else ("small-r" if small_r else "lumped"),
             keep_fraction=scale, extra_spacing_mm=extra if extra is not False else None,
             suggestion=shorten_text(scale, float(longest[pair[mine]].max()), c12_now, extra),
+            coupling_path=_with_grounding(ctx, path_text(ctx, rows), mine, victims, aggressors, pair, noise,
+                                          long_runs, small_r),
         )
 
 
@@ -154,3 +156,23 @@ def _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, l
         lo, hi = np.where(ok, mid, lo), np.where(ok, hi, mid)
     scales[failing] = lo[failing]
     return scales
+
+
+def _with_grounding(ctx, text, mine, victims, aggressors, pair, noise, long_runs, small_r):
+    """``text`` and, where floating copper relays part of the coupling,
+    how much of the victim's noise grounding it would remove (the same
+    lumped model without the relayed C12; long runs keep their value)."""
+    from ..physics import crosstalk
+
+    relay = ctx.net_pairs.relay_pf[pair[mine]]
+    if text is None or not np.any(relay > 0):
+        return text
+    e = ctx.electrical
+    model = crosstalk.lumped_noise_small_r_v if small_r else crosstalk.lumped_noise_v
+    vic, agg = victims[mine], aggressors[mine]
+    without = model(e.resistance_ohm[vic], (ctx.net_pairs.c12_pf[pair[mine]] - relay) * 1e-12,
+                    ctx.c2g_pf[vic] * 1e-12, e.swing_v[agg], e.frequency_hz[agg])
+    long_at = np.array([int(i) in long_runs for i in mine.tolist()], dtype=bool)
+    without[long_at] = noise[mine][long_at]
+    removed = float(noise[mine].sum() - without.sum())
+    return text + f"; grounding the floating copper would remove {removed * 1e3:.3g} mV"

@@ -135,7 +135,7 @@ def _group_name(a, group: tuple[int, int, int]) -> str:
 
 def by_layer_group(result: Result) -> list[dict]:
     """Totals per broadside layer pair and per layer (edge coupling)."""
-    from ..analysis import BROADSIDE
+    from ..analysis import KIND_NAMES
 
     a = result.analysis
     c, p = a.couplings, a.net_pairs
@@ -147,7 +147,7 @@ def by_layer_group(result: Result) -> list[dict]:
     count = np.bincount(p.row_group, minlength=n)
     length, area, c12 = total(c.length_mm), total(c.overlap_mm2), total(c.c12_pf)
     return [{
-        "coupling": "broadside" if kind == BROADSIDE else "edge",
+        "coupling": KIND_NAMES[kind],
         "layers": _group_name(a, (kind, lo, hi)),
         "piece_pairs": int(count[g]),
         "coupled_length_mm": float(f"{length[g]:.6g}"),

@@ -163,7 +163,8 @@ def render_svg(result, *, layers: tuple[str, ...] | None = None,
     callouts = [f for f in shown if only is None or f.id == only]
 
     rows_of = _RowFinder(analysis)
-    legend = _Legend(frame, board, drawn, callouts, waived)
+    context, context_kinds = _context(analysis, shown, frame)
+    legend = _Legend(frame, board, drawn, callouts, waived, context_kinds)
     frame.set_band(legend.height)
 
     out: list[str] = []
@@ -179,6 +180,7 @@ def render_svg(result, *, layers: tuple[str, ...] | None = None,
     # pours and planes, then the marked stretches (as a halo under the
     # traces, faint ones first), then the traces, upper layers last
     out.extend(_regions(board, drawn, frame))
+    out.extend(context)
     marks = sorted(shown, key=lambda f: 0 if (only is not None and f.id != only) else 1)
     for f in marks:
         faint = only is not None and f.id != only
@@ -454,6 +456,130 @@ def _outline(board: Board, frame: _Frame) -> list[str]:
 
 
 # --------------------------------------------------------------------------
+# what shields or relays a finding: voids, islands, guards, stitching vias
+
+#: legend words for the context shapes, in the order they are listed
+CONTEXT_LABELS: dict[str, str] = {
+    "void": "gap in reference copper between the layers",
+    "island": "floating copper (relays coupling)",
+    "guard": "guard trace (solid: grounded; dotted: not)",
+    "stitch": "stitching via",
+}
+
+
+def _context_style(what: str, frame: _Frame) -> str:
+    """Fill and stroke attributes of a context shape (black and yellow of
+    the Okabe-Ito palette, told apart by dash pattern as well as colour)."""
+    u = frame.unit
+    if what == "void":
+        return (f'fill="{BACKGROUND}" fill-opacity="0.6" stroke="{OKABE_ITO["black"]}" '
+                f'stroke-width="{_f(frame.stroke(0.8))}" stroke-dasharray="{_f(u * 0.4)} {_f(u * 0.25)}"')
+    if what == "island":
+        return (f'fill="{OKABE_ITO["yellow"]}" fill-opacity="0.45" stroke="{OKABE_ITO["black"]}" '
+                f'stroke-width="{_f(frame.stroke(0.8))}" stroke-dasharray="{_f(u * 0.1)} {_f(u * 0.2)}"')
+    if what == "stitch":
+        return f'fill="{BACKGROUND}" stroke="{OKABE_ITO["black"]}" stroke-width="{_f(frame.stroke(0.8))}"'
+    return f'fill="none" stroke="{OKABE_ITO["bluish green"]}" stroke-width="{_f(frame.stroke(2.0))}"'
+
+
+def _context_swatch(what: str, x: float, mid: float, u: float, frame: _Frame) -> list[str]:
+    """A legend swatch for a context shape (``mid`` is an SVG y)."""
+    if what == "stitch":
+        return [f'<circle cx="{_f(x + 0.9 * u)}" cy="{_f(mid)}" r="{_f(0.35 * u)}" {_context_style(what, frame)}/>']
+    if what == "guard":
+        return [f'<line x1="{_f(x + 0.1 * u)}" y1="{_f(mid)}" x2="{_f(x + 1.8 * u)}" y2="{_f(mid)}" '
+                f'{_context_style(what, frame)}/>']
+    return [f'<rect x="{_f(x + 0.1 * u)}" y="{_f(mid - 0.4 * u)}" width="{_f(1.7 * u)}" height="{_f(0.8 * u)}" '
+            f'{_context_style(what, frame)}/>']
+
+
+def _context(analysis, shown: list[Finding], frame: _Frame) -> tuple[list[str], tuple[str, ...]]:
+    """Shapes that explain the shown findings: the gaps in the reference
+    copper between the layers of a partly shielded broadside run, floating
+    islands that relay a net pair's coupling, guard traces in the gap of an
+    edge-coupled pair and their stitching vias. Returns the SVG elements
+    (board coordinates, inside the flipped group) and the kinds drawn."""
+    from ..analysis import BROADSIDE, RELAY
+
+    c = analysis.couplings
+    board = analysis.board
+    ref = getattr(analysis, "reference", None)
+    if not len(c) or not shown:
+        return [], ()
+    index = board.net_index()
+    voids: dict[tuple[int, int], list] = {}
+    islands: set[int] = set()
+    guards: set[int] = set()
+    for f in shown:
+        ia, iv = index.get(f.aggressor), index.get(f.victim)
+        if ia is None or iv is None:
+            continue
+        lo, hi = min(ia, iv), max(ia, iv)
+        rows = np.flatnonzero((c.net_a == lo) & (c.net_b == hi))
+        if not rows.size:
+            continue
+        islands.update(int(k) for k in c.island[rows] if k >= 0)
+        guards.update(int(k) for k in getattr(c, "guard", np.zeros(0, np.int64))[rows] if k >= 0)
+        part = rows[(c.kind[rows] == BROADSIDE) & (c.open_fraction[rows] < 1.0)]
+        for r in part.tolist():
+            key = (int(min(c.layer_a[r], c.layer_b[r])), int(max(c.layer_a[r], c.layer_b[r])))
+            voids.setdefault(key, []).append(f.bbox)
+    out: list[str] = []
+    kinds: list[str] = []
+    if ref is not None:
+        for (u, l), boxes in sorted(voids.items()):
+            shield = ref.between(u, l)
+            if shield is None:
+                continue
+            grow = 2.0 * (board.stackup.dielectrics[u].thickness_mm if u < len(board.stackup.dielectrics) else 0.1)
+            area = shapely.union_all([shapely.box(b[0] - grow, b[1] - grow, b[2] + grow, b[3] + grow)
+                                      for b in boxes])
+            gap = shapely.difference(area, shield)
+            d = _polygon_path(gap)
+            if d:
+                names = f"{board.stackup.layers[u].name}/{board.stackup.layers[l].name}"
+                out.append(f'<path d="{d}" fill-rule="evenodd" {_context_style("void", frame)} data-role="void">'
+                           f'<title>{_text(f"no reference copper between {names} here")}</title></path>')
+                kinds.append("void")
+    for s in sorted(islands):
+        isl = analysis.islands[s]
+        d = _polygon_path(isl.polygon)
+        if d:
+            what = (f"island {isl.id}: floating copper on {board.stackup.layers[isl.layer].name}, "
+                    f"{isl.area_mm2:.3g} mm^2, relays coupling")
+            out.append(f'<path d="{d}" fill-rule="evenodd" {_context_style("island", frame)} data-role="island">'
+                       f'<title>{_text(what)}</title></path>')
+    if islands:
+        kinds.append("island")
+    g = getattr(analysis, "guards", None)
+    p = board.pieces
+    stitches: list[str] = []
+    for k in sorted(guards):
+        mine = np.flatnonzero(p.source == g.source[k])
+        d = "".join(f"M{a} {b}L{e} {h}" for a, b, e, h in zip(_fs(p.x1[mine]), _fs(p.y1[mine]), _fs(p.x2[mine]),
+                                                               _fs(p.y2[mine]), strict=True))
+        dash = "" if g.state[k] == "stitched" else f' stroke-dasharray="{_f(frame.unit * 0.15)} {_f(frame.unit * 0.25)}"'
+        what = f"guard ({board.nets[int(g.net[k])].name}): {g.state[k]}, longest free stretch {g.max_gap_mm[k]:.3g} mm"
+        out.append(f'<path d="{d}" {_context_style("guard", frame)}{dash} stroke-linecap="round" data-role="guard">'
+                   f'<title>{_text(what)}</title></path>')
+        v = board.vias
+        if len(v):
+            line = shapely.LineString(np.concatenate([np.stack([p.x1[mine], p.y1[mine]], 1),
+                                                      [[p.x2[mine[-1]], p.y2[mine[-1]]]]]))
+            on = (v.net == g.net[k]) & (shapely.distance(line, shapely.points(v.x, v.y))
+                                         <= p.width[mine].max() / 2 + v.pad / 2)
+            for i in np.flatnonzero(on).tolist():
+                stitches.append(f'<circle cx="{_f(v.x[i])}" cy="{_f(v.y[i])}" r="{_f(max(v.pad[i] / 2, frame.unit * 0.2))}" '
+                                f'{_context_style("stitch", frame)} data-role="stitch"/>')
+    if guards:
+        kinds.append("guard")
+    if stitches:
+        out.extend(stitches)
+        kinds.append("stitch")
+    return out, tuple(kinds)
+
+
+# --------------------------------------------------------------------------
 # coupled stretches
 
 
@@ -725,7 +851,8 @@ class _Legend:
     picture's width; text widths are estimated (0.6 em per character), so
     the layout does not depend on fonts installed."""
 
-    def __init__(self, frame: _Frame, board: Board, drawn: list[int], callouts: list[Finding], waived) -> None:
+    def __init__(self, frame: _Frame, board: Board, drawn: list[int], callouts: list[Finding], waived,
+                 context_kinds: tuple[str, ...] = ()) -> None:
         self.frame = frame
         u = frame.unit
         self.u = u
@@ -746,6 +873,8 @@ class _Legend:
         self.rows.append([("marker", ("error", False, "error")), ("marker", ("warning", False, "warning")),
                           ("marker", ("error", True, "waived")), ("band", "coupled stretch"),
                           ("extent", "finding extent")])
+        if context_kinds:
+            self.rows.append([("context", (k, CONTEXT_LABELS[k])) for k in context_kinds])
         bar = _nice_length(0.25 * (frame.x1 - frame.x0))
         self.bar = bar
         self.rows.append([("scale", bar), ("text", "view from top, y up")])
@@ -763,6 +892,8 @@ class _Legend:
             return 2.4 * u + len(f"{name} ({role})") * em + u
         if kind in ("marker", "band", "extent"):
             return 2.2 * u + len(str(value[2] if kind == "marker" else value)) * em + u
+        if kind == "context":
+            return 2.2 * u + len(str(value[1])) * em + u
         if kind == "scale":
             return self.bar + len(_len_label(self.bar)) * em + 1.5 * u
         raise AssertionError(kind)
@@ -826,6 +957,10 @@ class _Legend:
                            f'stroke-width="{_f(fr.stroke(0.6))}" '
                            f'stroke-dasharray="{_f(u * 0.3)} {_f(u * 0.2)}"/>')
                 out.append(f'<text x="{_f(x + 2.2 * u)}" y="{base}" font-size="{fs}">{_text(str(value))}</text>')
+            elif kind == "context":
+                what, label = value  # type: ignore[misc]
+                out.extend(_context_swatch(what, x + 0.1 * u, mid, u, fr))
+                out.append(f'<text x="{_f(x + 2.2 * u)}" y="{base}" font-size="{fs}">{_text(str(label))}</text>')
             elif kind == "scale":
                 length = float(value)  # type: ignore[arg-type]
                 x0, x1 = x + 0.2 * u, x + 0.2 * u + length

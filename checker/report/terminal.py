@@ -55,6 +55,8 @@ def render(result: Result, console: Console) -> None:
         console.print(table)
         for i, f in enumerate(result.findings, 1):
             console.print(f"{i:>3}. [{f.id}] {f.message}", highlight=False, markup=False)
+            if f.coupling_path:
+                console.print(f"     path: {f.coupling_path}", highlight=False, markup=False)
             if f.suggestion:
                 console.print(f"     what if: {f.suggestion}", highlight=False, markup=False)
             w = review.waived.get(f.id)

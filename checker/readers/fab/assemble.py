@@ -12,8 +12,10 @@ same model the JSON door builds.
   a file (or a file without a layer) is an error.
 * **Layer roles**: the ``TF.FileFunction`` type field (``Plane``,
   ``Signal``, ``Mixed``), else the role the stackup YAML gives, else
-  ``mixed`` — which never counts as a shield, so a missing role can only
-  add findings, never hide one — with a note.
+  ``mixed``, with a note. The type field is optional in Gerber X2 and
+  many exports leave it out: that is accepted as it is. The declared role
+  is a hint for the reports only; the analysis decides planes and
+  shielding from each layer's reference-net copper (``checker.shielding``).
 * **Copper**: round-aperture draws and arcs become pieces (one source per
   stroke), every other copper object becomes a region; a via pad flashed
   over a plated hole becomes part of that via instead. A negative layer
@@ -149,7 +151,8 @@ def _with_roles(job: JobStackup, copper: dict[int, tuple[Member, str | None]],
         layers.append(dataclasses.replace(layer, role=role))
     if assumed:
         notes.append(f"layer role not given for {', '.join(assumed)} (no TF.FileFunction type, no stackup role): "
-                     "taken as mixed, which never shields; give it with --layer FILE=L<n>,plane|signal|mixed")
+                     "taken as mixed (a hint for reports only: planes and shielding follow each layer's "
+                     "reference-net copper); declare one with --layer FILE=L<n>,plane|signal|mixed")
     names = [layer.name for layer in layers]
     if len(set(names)) != len(names) or not all(names):
         layers = [dataclasses.replace(layer, name=f"L{n}") for layer, n in zip(layers, job.copper_numbers)]

@@ -1,0 +1,258 @@
+"""Floating copper as a relay: islands, what they couple to, and the
+mutual capacitance they add between the nets around them.
+
+Copper on no net (an unconnected pour, an island left by a plane split, a
+stub of track) floats: it carries no net charge and sits at whatever
+potential its capacitances give it, so it passes coupling on from one net to
+another (textbook circuit theory; H. W. Ott, *Electromagnetic Compatibility
+Engineering*, Wiley, 2009, ch. 6, cited from memory). couplint treats each
+island as one node of the board's capacitance network and eliminates it by
+the zero-charge condition (``checker.physics.network``): two nets a and b
+around island s gain
+
+    C_relay(a, b) = C_as C_bs / (C_sg + sum_k C_ks)
+
+Islands
+-------
+The connected parts (per layer) of the union of the layer's copper on no
+net: regions and pieces with ``NO_NET``. Parts smaller than
+:data:`MIN_ISLAND_MM2` are left out (pad-sized specks). Islands on different
+layers joined by a plated hole are not merged (each is its own node): a
+chain of two floating nodes relays less than one, so this can read low where
+a via ties two islands together; the report's note says how many islands
+were found.
+
+What an island couples to (each value errs toward more coupling)
+-----------------------------------------------------------------
+* A piece on another layer i (island on layer k): the piece's centreline
+  length inside the island grown by the vertical distance d between the
+  layers (fringing reach), minus where reference copper of the layers
+  between covers it, times C12' of the piece over a wide conductor
+  (width max(1 mm, 10 d)) from the field-solved broadside table of layers
+  i and k (``checker.physics.broadside``). A wide conductor collects at
+  least the field a narrower island would.
+* A piece on the same layer within ``edge_search`` of the island: its
+  centreline length within ``edge_search`` + w/2 of the island times
+  C12'(w, wide, g) at its smallest gap g to the island, from the layer's
+  field-solved edge table (``checker.physics.edge``).
+* Ground: parallel-plate capacitance eps0 er A / h to the nearest plane
+  above and below (plane as ``checker.shielding`` decides it), fringing
+  left out: a smaller C_sg relays more.
+
+Island-to-island coupling, and the island's pull on the nets' own
+capacitance to ground, are left out (both would lower the relayed value).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import shapely
+from scipy.constants import epsilon_0
+
+from .model import NO_NET, Board, Pieces
+from .physics.broadside import BroadsideModel
+from .physics.edge import EdgeModel
+from .physics.network import relayed_mutual
+from .shielding import ReferenceCopper, piece_polygons
+from .stackup import effective_er, separation_mm
+
+#: Islands smaller than this (mm^2) are left out.
+MIN_ISLAND_MM2 = 0.05
+
+#: At most this many nets per island take part in its relays (the most
+#: strongly coupled ones); a note says when an island had more.
+MAX_NETS_PER_ISLAND = 100
+
+#: Smallest same-layer gap (mm) asked of the edge tables.
+GAP_FLOOR_MM = 0.01
+
+
+@dataclass(frozen=True)
+class Island:
+    """One floating copper island: its id (1-based, in layer then position
+    order), layer, area (mm^2), a point inside it and its outline."""
+
+    id: int
+    layer: int
+    area_mm2: float
+    x: float
+    y: float
+    polygon: object
+
+
+@dataclass
+class IslandLinks:
+    """Capacitance (pF) from islands to nets, one row per (island, net):
+    ``island`` indexes the island list, ``piece`` is the net's piece that
+    couples most strongly to it. ``ground_pf`` per island."""
+
+    island: np.ndarray
+    net: np.ndarray
+    piece: np.ndarray
+    c_pf: np.ndarray
+    ground_pf: np.ndarray
+
+
+@dataclass
+class Relays:
+    """Mutual capacitance (pF) relayed between two nets through one island,
+    one row per (island, net_a < net_b): the pieces of each net that couple
+    most to the island, and the island's C to each net and to ground."""
+
+    island: np.ndarray
+    net_a: np.ndarray
+    net_b: np.ndarray
+    piece_a: np.ndarray
+    piece_b: np.ndarray
+    c_pf: np.ndarray
+
+    def __len__(self) -> int:
+        return int(self.island.shape[0])
+
+
+def find_islands(board: Board) -> list[Island]:
+    """The floating copper islands of ``board`` (module docstring)."""
+    p = board.pieces
+    out: list[Island] = []
+    for k in range(len(board.stackup.layers)):
+        shapes = [r.polygon for r in board.regions if r.layer == k and r.net == NO_NET]
+        idx = np.flatnonzero((p.layer == k) & (p.net == NO_NET) & (p.length > 0))
+        if idx.size:
+            shapes.extend(piece_polygons(p, idx).tolist())
+        if not shapes:
+            continue
+        parts = shapely.get_parts(shapely.union_all(shapes))
+        parts = [g for g in parts if g.area >= MIN_ISLAND_MM2]
+        parts.sort(key=lambda g: (round(g.bounds[0], 6), round(g.bounds[1], 6)))
+        for g in parts:
+            pt = g.representative_point()
+            out.append(Island(len(out) + 1, k, float(g.area), float(pt.x), float(pt.y), g))
+    return out
+
+
+def _plane_neighbours(stackup, k: int) -> list[int]:
+    layers = stackup.layers
+    above = next((i for i in range(k - 1, -1, -1) if layers[i].role == "plane"), None)
+    below = next((i for i in range(k + 1, len(layers)) if layers[i].role == "plane"), None)
+    return [i for i in (above, below) if i is not None]
+
+
+def island_links(board: Board, ref: ReferenceCopper, islands: list[Island], signal: Pieces,
+                 edge_search_mm: float, notes: list[str]) -> IslandLinks:
+    """C from every island to every net near it, and to ground (module
+    docstring). ``signal``: the board's pieces with reference-net and
+    unconnected copper taken off their nets (``NO_NET``)."""
+    st = board.stackup
+    live = np.flatnonzero((signal.net != NO_NET) & (signal.length > 0))
+    ground = np.zeros(len(islands))
+    rows: list[tuple[np.ndarray, np.ndarray, np.ndarray]] = []  # (island, piece, pF)
+    if not islands:
+        return IslandLinks(*(np.zeros(0, np.int64) for _ in range(3)), np.zeros(0), ground)
+    rects = piece_polygons(signal, live)
+    tree = shapely.STRtree(rects)
+    lines = shapely.linestrings(np.stack([np.stack([signal.x1[live], signal.x2[live]], 1),
+                                          np.stack([signal.y1[live], signal.y2[live]], 1)], 2))
+    layer_of = signal.layer[live]
+    width_of = signal.width[live]
+    wanted: dict[tuple, list] = {}  # model key -> list of (island, rows, widths, lengths, gaps)
+    for s, isl in enumerate(islands):
+        k = isl.layer
+        for plane in _plane_neighbours(st, k):
+            h = separation_mm(st, plane, k)
+            ground[s] += epsilon_0 * effective_er(st, plane, k) * isl.area_mm2 * 1e-6 / (h * 1e-3) * 1e12
+        reach = max(edge_search_mm, max(separation_mm(st, k, i) for i in range(len(st.layers))) + 0.0)
+        near = tree.query(shapely.buffer(isl.polygon, reach), predicate="intersects")
+        if near.size == 0:
+            continue
+        for i in np.unique(layer_of[near]):
+            sel = near[layer_of[near] == i]
+            if i == k:
+                gap = np.maximum(shapely.distance(rects[sel], isl.polygon), GAP_FLOOR_MM)
+                inside = shapely.length(shapely.intersection(
+                    lines[sel], shapely.buffer(isl.polygon, edge_search_mm + width_of[sel] / 2)))
+                ok = (gap <= edge_search_mm) & (inside > 0)
+                wanted.setdefault(("edge", int(k)), []).append((s, sel[ok], width_of[sel][ok], inside[ok], gap[ok]))
+            else:
+                d = separation_mm(st, int(i), k)
+                zone = shapely.buffer(isl.polygon, d)
+                shield = ref.between(int(i), k) if ref is not None else None
+                if shield is not None:
+                    zone = shapely.difference(zone, shield)
+                if shapely.is_empty(zone):
+                    continue
+                inside = shapely.length(shapely.intersection(lines[sel], zone))
+                ok = inside > 0
+                wanted.setdefault(("broadside", int(i), k), []).append(
+                    (s, sel[ok], width_of[sel][ok], inside[ok], np.zeros(int(ok.sum()))))
+    for key, items in sorted(wanted.items()):
+        sel = np.concatenate([it[1] for it in items])
+        if sel.size == 0:
+            continue
+        owner = np.concatenate([np.full(it[1].size, it[0]) for it in items])
+        w = np.concatenate([it[2] for it in items])
+        length = np.concatenate([it[3] for it in items])
+        gap = np.concatenate([it[4] for it in items])
+        if key[0] == "edge":
+            wide = 1.0
+            model = EdgeModel(st, key[1], np.concatenate([w, [wide]]), max_gap_mm=float(gap.max()),
+                              min_gap_mm=float(gap.min()))
+            per_m = model.c12_per_m(w, np.full(w.size, wide), gap)
+        else:
+            i, k = key[1], key[2]
+            wide = max(1.0, 10 * separation_mm(st, i, k))
+            lo, hi = min(i, k), max(i, k)
+            wa = w if i == lo else np.array([wide])
+            wb = np.array([wide]) if i == lo else w
+            model = BroadsideModel(st, lo, hi, wa, wb, max_offset_mm=0.01)
+            per_m = model.c12_per_m(w, np.full(w.size, wide), 0.0) if i == lo else \
+                model.c12_per_m(np.full(w.size, wide), w, 0.0)
+        rows.append((owner, live[sel], per_m * length * 1e-3 * 1e12))
+    if not rows:
+        return IslandLinks(*(np.zeros(0, np.int64) for _ in range(3)), np.zeros(0), ground)
+    owner = np.concatenate([r[0] for r in rows]).astype(np.int64)
+    piece = np.concatenate([r[1] for r in rows]).astype(np.int64)
+    pf = np.concatenate([r[2] for r in rows])
+    net = signal.net[piece].astype(np.int64)
+    # one row per (island, net): summed C, and the piece contributing most
+    n_nets = int(net.max()) + 1
+    key = owner * n_nets + net
+    order = np.lexsort((-pf, key))
+    uniq, first, inv = np.unique(key[order], return_index=True, return_inverse=True)
+    total = np.bincount(inv, weights=pf[order])
+    return IslandLinks(uniq // n_nets, uniq % n_nets, piece[order][first], total, ground)
+
+
+def relays(links: IslandLinks, n_islands: int, notes: list[str]) -> Relays:
+    """Kron-eliminate each island (module docstring): one row per pair of
+    nets it couples to."""
+    cols: dict[str, list] = {k: [] for k in ("island", "net_a", "net_b", "piece_a", "piece_b", "c_pf")}
+    crowded = 0
+    for s in range(n_islands):
+        mine = np.flatnonzero(links.island == s)
+        if mine.size < 2:
+            continue
+        if mine.size > MAX_NETS_PER_ISLAND:
+            crowded += 1
+        # the relay divides by the island's total C, so take every net for that
+        total_c = links.c_pf[mine]
+        keep = mine[np.argsort(-total_c, kind="stable")][:MAX_NETS_PER_ISLAND]
+        keep = keep[np.argsort(links.net[keep], kind="stable")]
+        extra = float(total_c.sum() - links.c_pf[keep].sum())
+        add = relayed_mutual(links.c_pf[keep], links.ground_pf[s] + extra)
+        a, b = np.triu_indices(keep.size, 1)
+        cols["island"].append(np.full(a.size, s))
+        cols["net_a"].append(links.net[keep][a])
+        cols["net_b"].append(links.net[keep][b])
+        cols["piece_a"].append(links.piece[keep][a])
+        cols["piece_b"].append(links.piece[keep][b])
+        cols["c_pf"].append(add[a, b])
+    if crowded:
+        notes.append(f"{crowded} floating island(s) couple to more than {MAX_NETS_PER_ISLAND} nets: relays "
+                     f"worked out for the {MAX_NETS_PER_ISLAND} most strongly coupled ones")
+    if not cols["island"]:
+        z = np.zeros(0, np.int64)
+        return Relays(z, z.copy(), z.copy(), z.copy(), z.copy(), np.zeros(0))
+    return Relays(*(np.concatenate(cols[k]) for k in ("island", "net_a", "net_b", "piece_a", "piece_b")),
+                  np.concatenate(cols["c_pf"]))
