@@ -19,7 +19,7 @@ from .guards import GuardedRows, Guards, concat_guards, find_guard_pieces, groun
 from .islands import Island, find_islands, island_links, relays
 from .model import NO_NET, Board, Pieces
 from .physics import crosstalk
-from .physics.broadside import BroadsideModel, broadside_c12_pf
+from .physics.broadside import FAR_TABLE_RESOLUTION, FAR_WIDTH_KNOTS, BroadsideModel, broadside_c12_pf
 from .physics.accurate import ExactBroadside, ExactEdge, ExactGround
 from .physics.edge import EdgeModel, GroundModel
 from .returnpath import ReturnGaps, return_gaps
@@ -445,6 +445,15 @@ def _broadside_c12(board: Board, t: PairTable, upper: int, lower: int, search_mm
     wa, wb = p.width[t.a], p.width[t.b]
     if accurate:
         model = ExactBroadside(board.stackup, upper, lower)
+    elif lower - upper > 1:
+        # layers that are not neighbours couple through openings in the copper between: a coarser
+        # table (it reads high), with width knots from each layer's own widths, so that mirrored
+        # layer pairs of a symmetric stackup share their solves
+        on_u = p.width[(p.layer == upper) & (p.net != NO_NET)]
+        on_l = p.width[(p.layer == lower) & (p.net != NO_NET)]
+        model = BroadsideModel(board.stackup, upper, lower, on_u, on_l,
+                               max_offset_mm=search_mm + float(max(on_u.max(), on_l.max())),
+                               resolution=FAR_TABLE_RESOLUTION, max_width_knots=FAR_WIDTH_KNOTS)
     else:
         model = BroadsideModel(board.stackup, upper, lower, wa, wb,
                                max_offset_mm=search_mm + float(max(wa.max(), wb.max())))

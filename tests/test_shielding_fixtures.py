@@ -28,7 +28,7 @@ import numpy as np
 import pytest
 import shapely
 
-from checker.analysis import BROADSIDE, RELAY
+from checker.analysis import BROADSIDE, EDGE, RELAY
 from checker.model import NO_NET
 from checker.readers import load_board
 from checker.readers.fab.assemble import load_package
@@ -325,3 +325,26 @@ def test_guard_boards_load_with_their_stitching(case, xs):
         assert {board.nets[int(n)].name for n in v.net} == {"GND"}
         guard = [i for i in range(len(board.pieces)) if board.nets[int(board.pieces.net[i])].name == "GND"]
         assert len(guard) == 1 and board.pieces.layer[guard[0]] == 0
+
+
+@pytest.mark.parametrize("door", [0, 1], ids=["json", "fab"])
+def test_guard_stitched_is_credited_and_one_end_is_reported(door):
+    """Stitched: GND vias at both ends and every 5 mm, far below lambda/20
+    at the default clock class's 25 MHz (292 mm in er 4.2, common-practice
+    limit): credited, the edge C12 drops. One end: a single via at x = 5,
+    so the guard's other 25 mm run free: not credited (the pair couples as
+    without a guard) and reported by the default rule guard-not-grounded,
+    value 25 mm, limit 0."""
+    stitched = results("guard_stitched")[door]
+    one_end = results("guard_one_end")[door]
+    assert stitched.analysis.guards.state == ["stitched"]
+    assert one_end.analysis.guards.state == ["one end"]
+    assert stitched.analysis.guards.max_gap_mm[0] == pytest.approx(5.0, abs=1e-6)
+    s_rows = rows_between(stitched, EDGE)
+    o_rows = rows_between(one_end, EDGE)
+    assert (stitched.analysis.couplings.guard_factor[s_rows] < 1).all()
+    assert (one_end.analysis.couplings.guard_factor[o_rows] == 1).all()
+    assert stitched.analysis.couplings.c12_pf[s_rows].sum() < one_end.analysis.couplings.c12_pf[o_rows].sum()
+    assert not [f for f in stitched.findings if f.kind == "guard-grounding"]
+    (f,) = [f for f in one_end.findings if f.kind == "guard-grounding"]
+    assert (f.aggressor, f.victim, f.value, f.limit) == (CLOCK, SENSOR, pytest.approx(25.0, abs=1e-6), 0.0)

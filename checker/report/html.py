@@ -577,6 +577,8 @@ def _card(ctx: _Context, f) -> str:
     base = ctx.result.review.status.get(f.id)
     if base:
         rows.append(("Against baseline", base))
+    if f.coupling_path:
+        rows.append(("Shielding and relays", f.coupling_path))
     rows.append(("Status", words))
     rows.append(("Finding id", f.id))
     table = "".join(f"<tr><th>{_e(k)}</th><td>{_e(v)}</td></tr>\n" for k, v in rows)
