@@ -99,7 +99,7 @@ def net_pair_lines(result: Result, chunk: int = 50_000) -> Iterator[list[str]]:
             layer_lists[mask] = json.dumps([g for k, g in enumerate(groups) if mask >> k & 1])
         return layer_lists[mask]
 
-    columns = (p.broadside_length_mm, p.edge_length_mm, p.area_mm2, p.c12_pf, p.noise_ab_v * 1e3,
+    columns = (p.broadside_length_mm, p.edge_length_mm, p.area_mm2, p.c12_pf, p.relay_pf, p.noise_ab_v * 1e3,
                p.noise_ba_v * 1e3)
     for start in range(0, order.size, chunk):
         part = order[start:start + chunk]
@@ -108,9 +108,9 @@ def net_pair_lines(result: Result, chunk: int = 50_000) -> Iterator[list[str]]:
         cols = [_fmt(v[part]) for v in columns]
         yield [
             f'{{"nets": [{names[i]}, {names[j]}], "layers": {layers_of(lm)}, "broadside_length_mm": {bl}, '
-            f'"edge_length_mm": {el}, "overlap_area_mm2": {ar}, "c12_pf": {c}, '
+            f'"edge_length_mm": {el}, "overlap_area_mm2": {ar}, "c12_pf": {c}, "relayed_c12_pf": {rl}, '
             f'"noise_mv_on": {{{names[j]}: {ab}, {names[i]}: {ba}}}}}'
-            for i, j, lm, bl, el, ar, c, ab, ba in zip(na, nb, masks, *cols)
+            for i, j, lm, bl, el, ar, c, rl, ab, ba in zip(na, nb, masks, *cols)
         ]
 
 
@@ -156,6 +156,36 @@ def by_layer_group(result: Result) -> list[dict]:
     } for g, (kind, lo, hi) in enumerate(p.layer_groups)]
 
 
+def shielding_dict(result: Result) -> dict:
+    """What decided shielding: the reference nets found, each layer's
+    reference copper (share of the board, nets, role from the copper), the
+    floating islands and the guard traces (``checker.shielding``,
+    ``checker.islands``, ``checker.guards``)."""
+    a = result.analysis
+    b = a.board
+    ref = a.reference
+    if ref is None:
+        return {}
+    g = a.guards
+
+    def finite(v: float):
+        return _round6(float(v)) if np.isfinite(v) else None
+
+    return {
+        "reference_nets": list(ref.reference_names(b)),
+        "layers": [{"copper": layer.name, "reference_cover": _round6(float(ref.fraction[k])),
+                    "reference_nets": list(ref.nets[k]), "role_from_copper": layer.role}
+                   for k, layer in enumerate(b.stackup.layers)],
+        "islands": [{"id": i.id, "layer": b.stackup.layers[i.layer].name, "at": [_round6(i.x), _round6(i.y)],
+                     "area_mm2": _round6(i.area_mm2)} for i in a.islands],
+        "guards": [{"layer": b.stackup.layers[int(g.layer[k])].name, "net": b.nets[int(g.net[k])].name,
+                    "source": b.sources[int(g.source[k])] if int(g.source[k]) < len(b.sources) else None,
+                    "length_mm": _round6(float(g.length_mm[k])), "state": g.state[k],
+                    "longest_free_stretch_mm": finite(g.max_gap_mm[k]), "stitch_limit_mm": finite(g.limit_mm[k]),
+                    "grounding_points": int(g.points[k])} for k in range(len(g))],
+    }
+
+
 def build_report(result: Result) -> dict:
     a = result.analysis
     b = a.board
@@ -182,7 +212,10 @@ def build_report(result: Result) -> dict:
             "parallel_angle_deg": s.parallel_angle_deg,
             "planes_shield": s.planes_shield,
             "bandwidth_factor": s.bandwidth_factor,
+            "reference_nets": list(s.reference_nets),
+            "guard_stitch_fraction": s.guard_stitch_fraction,
         },
+        "shielding": shielding_dict(result),
         "summary": summary(result),
         "layer_groups": by_layer_group(result),
         "findings": [finding_dict(result, f) for f in result.findings],
