@@ -19,7 +19,8 @@ from .guards import GuardedRows, Guards, concat_guards, find_guard_pieces, groun
 from .islands import Island, find_islands, island_links, relays
 from .model import NO_NET, Board, Pieces
 from .physics import crosstalk
-from .physics.broadside import FAR_TABLE_RESOLUTION, FAR_WIDTH_KNOTS, BroadsideModel, broadside_c12_pf
+from .physics.broadside import (FAR_OFFSET_STEP, FAR_TABLE_RESOLUTION, FAR_WIDTH_KNOTS, BroadsideModel,
+                                broadside_c12_pf)
 from .physics.accurate import ExactBroadside, ExactEdge, ExactGround
 from .physics.edge import EdgeModel, GroundModel
 from .returnpath import ReturnGaps, return_gaps
@@ -327,7 +328,8 @@ def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=No
         if kind == "broadside":
             band = search_band_mm(stackup, u, l, s.broadside_search_mm)
             shield = ref.between(u, l) if s.planes_shield else None
-            sub = _exposed(signal, u, l, shield, band + separation_mm(stackup, u, l))
+            space = ref.open_space(u, l) if shield is not None else None
+            sub = _exposed(signal, u, l, shield, space, band + separation_mm(stackup, u, l))
             if sub is None:
                 if shield is not None:
                     covered.append(f"{stackup.layers[u].name}/{stackup.layers[l].name}")
@@ -419,7 +421,7 @@ def _guard_edge_rows(board: Board, ref: ReferenceCopper, ground: np.ndarray, t: 
     return GuardedRows(index, covered, factor)
 
 
-def _exposed(signal: Pieces, u: int, l: int, shield, grow_mm: float) -> Pieces | None:
+def _exposed(signal: Pieces, u: int, l: int, shield, space, grow_mm: float) -> Pieces | None:
     """``signal`` with only the pieces of layers u and l that reference
     copper between them does not wholly cover (grown by ``grow_mm``) left on
     a net; None when either layer has none."""
@@ -428,7 +430,7 @@ def _exposed(signal: Pieces, u: int, l: int, shield, grow_mm: float) -> Pieces |
     il = np.flatnonzero(live & (signal.layer == l))
     if shield is None:
         return signal if iu.size and il.size else None
-    iu, il = exposed_pieces(signal, iu, shield, grow_mm), exposed_pieces(signal, il, shield, grow_mm)
+    iu, il = exposed_pieces(signal, iu, space, grow_mm), exposed_pieces(signal, il, space, grow_mm)
     if iu.size == 0 or il.size == 0:
         return None
     net = np.full(len(signal), NO_NET, np.int32)
@@ -453,7 +455,8 @@ def _broadside_c12(board: Board, t: PairTable, upper: int, lower: int, search_mm
         on_l = p.width[(p.layer == lower) & (p.net != NO_NET)]
         model = BroadsideModel(board.stackup, upper, lower, on_u, on_l,
                                max_offset_mm=search_mm + float(max(on_u.max(), on_l.max())),
-                               resolution=FAR_TABLE_RESOLUTION, max_width_knots=FAR_WIDTH_KNOTS)
+                               resolution=FAR_TABLE_RESOLUTION, max_width_knots=FAR_WIDTH_KNOTS,
+                               offset_step_mm=FAR_OFFSET_STEP * separation_mm(board.stackup, upper, lower))
     else:
         model = BroadsideModel(board.stackup, upper, lower, wa, wb,
                                max_offset_mm=search_mm + float(max(wa.max(), wb.max())))

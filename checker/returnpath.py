@@ -64,7 +64,7 @@ from scipy.sparse import csr_matrix
 from scipy.sparse.csgraph import connected_components
 
 from .model import NO_NET, Board, Stackup
-from .shielding import ReferenceCopper, piece_polygons
+from .shielding import TILE_VERTICES, ReferenceCopper, cover_tiles, piece_polygons
 from .stackup import separation_mm
 
 #: Two reference layers this close (mm) in vertical distance tie.
@@ -79,11 +79,6 @@ JOIN_GRID_MM = 1e-6
 
 #: Reference copper this close (mm) to a stretch touches it (project choice).
 TOUCH_MM = 1e-3
-
-#: Largest tile (vertices) the reference copper is cut into before lines
-#: are subtracted from it (speed only: any value gives the same lengths).
-TILE_VERTICES = 256
-
 
 @dataclass
 class ReturnGaps:
@@ -176,31 +171,6 @@ def return_gaps(board: Board, ref: ReferenceCopper) -> ReturnGaps:
     cols = {name: np.concatenate([c[name] for c in chunks]) for name in chunks[0]}
     order = np.lexsort((cols["ymin"], cols["xmin"], cols["net"], cols["ref_layer"], cols["layer"]))
     return ReturnGaps(**{name: v[order] for name, v in cols.items()}, reference_layers=by_layer)
-
-
-def cover_tiles(cover, max_vertices: int = TILE_VERTICES, max_depth: int = 20) -> np.ndarray:
-    """``cover`` cut into polygons of at most ``max_vertices`` vertices
-    each (quadrant by quadrant of each part's bbox, at most ``max_depth``
-    times): together they are ``cover``, and subtracting the few tiles near
-    a short line costs what their size costs, not what the whole plane
-    with its every antipad would."""
-    parts = shapely.get_parts(cover)
-    parts = parts[shapely.get_type_id(parts) == 3]  # polygons
-    done = []
-    for _ in range(max_depth):
-        small = shapely.get_num_coordinates(parts) <= max_vertices
-        done.append(parts[small])
-        parts = parts[~small]
-        if parts.size == 0:
-            break
-        b = shapely.bounds(parts)
-        xm, ym = (b[:, 0] + b[:, 2]) / 2, (b[:, 1] + b[:, 3]) / 2
-        quads = (shapely.box(b[:, 0], b[:, 1], xm, ym), shapely.box(xm, b[:, 1], b[:, 2], ym),
-                 shapely.box(b[:, 0], ym, xm, b[:, 3]), shapely.box(xm, ym, b[:, 2], b[:, 3]))
-        parts = shapely.get_parts(np.concatenate([shapely.intersection(parts, q) for q in quads]))
-        parts = parts[(shapely.get_type_id(parts) == 3) & (shapely.area(parts) > 0)]
-    done.append(parts)
-    return np.concatenate(done)
 
 
 def _stretches(board: Board, ref: ReferenceCopper, idx: np.ndarray, layer: int, k: int,

@@ -49,7 +49,8 @@ shows a grounded strip one trace width wide already removes more than 80 %
 of broadside C12 (measured with this project's solver; see
 ``shared/REFERENCES.md``), which this rule does not credit.
 
-A crossing's window is the plan overlap of the two pieces grown by ``m``;
+A crossing's window is a square around its spot holding the plan overlap
+of the two pieces grown by ``m`` (half side (wa + wb) / (2 sin angle) + m);
 it is shielded only when reference copper covers all of it.
 
 The lateral search band of a layer pair grows with its vertical distance:
@@ -138,6 +139,8 @@ class ReferenceCopper:
     fraction: np.ndarray
     nets: list[tuple[str, ...]]
     board_area_mm2: float
+    #: (xmin, ymin, xmax, ymax) of the board, mm
+    bounds: tuple[float, float, float, float] = (0.0, 0.0, 0.0, 0.0)
     _union: dict = field(default_factory=dict, repr=False)
 
     def between(self, i: int, j: int):
@@ -153,8 +156,84 @@ class ReferenceCopper:
             self._union[key] = geom
         return self._union[key]
 
+    def open_space(self, i: int, j: int):
+        """Where no reference copper of the layers strictly between i and j
+        lies, within a box well beyond the board: small tiles
+        (:func:`cover_tiles`) and an STRtree over them, or None where there
+        is no copper between (then everything is open)."""
+        key = ("open", min(i, j), max(i, j))
+        if key not in self._union:
+            geom = self.between(i, j)
+            if geom is None:
+                self._union[key] = None
+            else:
+                x0, y0, x1, y1 = self.bounds
+                pad = 10.0 + max(x1 - x0, y1 - y0)
+                space = shapely.difference(shapely.box(x0 - pad, y0 - pad, x1 + pad, y1 + pad), geom)
+                tiles = cover_tiles(space) if not shapely.is_empty(space) else np.zeros(0, dtype=object)
+                self._union[key] = (tiles, shapely.STRtree(tiles))
+        return self._union[key]
+
+    def between_tiles(self, i: int, j: int):
+        """``between(i, j)`` cut into small tiles (:func:`cover_tiles`) and an
+        STRtree over them, or None where there is no copper between."""
+        key = ("tiles", min(i, j), max(i, j))
+        if key not in self._union:
+            geom = self.between(i, j)
+            if geom is None:
+                self._union[key] = None
+            else:
+                tiles = cover_tiles(geom)
+                self._union[key] = (tiles, shapely.STRtree(tiles))
+        return self._union[key]
+
     def reference_names(self, board: Board) -> tuple[str, ...]:
         return tuple(n.name for n, r in zip(board.nets, self.is_reference) if r)
+
+
+#: Most vertices of one tile of reference copper (:func:`cover_tiles`).
+TILE_VERTICES = 256
+
+
+def cover_tiles(cover, max_vertices: int = TILE_VERTICES, max_depth: int = 20) -> np.ndarray:
+    """``cover`` cut into polygons of at most ``max_vertices`` vertices
+    each (quadrant by quadrant of each part's bbox, at most ``max_depth``
+    times): together they are ``cover``, and subtracting the few tiles near
+    a short line or a small window costs what their size costs, not what the
+    whole plane with its every antipad would."""
+    parts = shapely.get_parts(cover)
+    parts = parts[shapely.get_type_id(parts) == 3]  # polygons
+    done = []
+    for _ in range(max_depth):
+        small = shapely.get_num_coordinates(parts) <= max_vertices
+        done.append(parts[small])
+        parts = parts[~small]
+        if parts.size == 0:
+            break
+        b = shapely.bounds(parts)
+        xm, ym = (b[:, 0] + b[:, 2]) / 2, (b[:, 1] + b[:, 3]) / 2
+        quads = (shapely.box(b[:, 0], b[:, 1], xm, ym), shapely.box(xm, b[:, 1], b[:, 2], ym),
+                 shapely.box(b[:, 0], ym, xm, b[:, 3]), shapely.box(xm, ym, b[:, 2], b[:, 3]))
+        parts = shapely.get_parts(np.concatenate([shapely.intersection(parts, q) for q in quads]))
+        parts = parts[(shapely.get_type_id(parts) == 3) & (shapely.area(parts) > 0)]
+    done.append(parts)
+    return np.concatenate(done)
+
+
+def subtract_tiles(geoms: np.ndarray, tiles: np.ndarray, tree) -> np.ndarray:
+    """Each of ``geoms`` minus the tiles it meets, in rounds (one tile per
+    geometry per round, all geometries of a round at once)."""
+    left = np.array(geoms, dtype=object)
+    wi, ti = tree.query(geoms, predicate="intersects")
+    if wi.size == 0:
+        return left
+    order = np.lexsort((ti, wi))
+    wi, ti = wi[order], ti[order]
+    rank = np.arange(wi.size) - np.searchsorted(wi, wi)
+    for r in range(int(rank.max()) + 1):
+        sel = rank == r
+        left[wi[sel]] = shapely.difference(left[wi[sel]], tiles[ti[sel]])
+    return left
 
 
 def reference_copper(board: Board, patterns) -> ReferenceCopper:
@@ -197,11 +276,12 @@ def reference_copper(board: Board, patterns) -> ReferenceCopper:
             others.extend(polys[hit].tolist())
         if others:
             geom = shapely.difference(geom, shapely.union_all(others))
+        shapely.prepare(geom)
         cover.append(geom)
         fraction[k] = min(float(geom.area) / area, 1.0)
         nets = {names[r.net] for r in ref_regions} | {names[i] for i in np.unique(net[ref_idx])}
         ref_nets.append(tuple(sorted(nets)))
-    return ReferenceCopper(patterns, is_ref, cover, fraction, ref_nets, area)
+    return ReferenceCopper(patterns, is_ref, cover, fraction, ref_nets, area, board.bounds())
 
 
 def effective_stackup(stackup: Stackup, ref: ReferenceCopper) -> Stackup:
@@ -236,13 +316,15 @@ def search_band_mm(stackup: Stackup, i: int, j: int, broadside_search_mm: float)
     return max(broadside_search_mm, BAND_PER_SEPARATION * separation_mm(stackup, i, j))
 
 
-def exposed_pieces(pieces: Pieces, index: np.ndarray, shield, grow_mm: float) -> np.ndarray:
+def exposed_pieces(pieces: Pieces, index: np.ndarray, space, grow_mm: float) -> np.ndarray:
     """Of the pieces at ``index``, those whose rectangle grown by
-    ``grow_mm`` is not wholly inside ``shield`` (None: all of them)."""
-    if shield is None or index.size == 0:
+    ``grow_mm`` meets the open space ``space`` (``ReferenceCopper.open_space``:
+    tiles and their STRtree; None: everything is open)."""
+    if space is None or index.size == 0:
         return index
-    inside = shapely.covers(shield, piece_polygons(pieces, index, grow_mm))
-    return index[~inside]
+    tiles, tree = space
+    hit, _ = tree.query(piece_polygons(pieces, index, grow_mm), predicate="intersects")
+    return index[np.unique(hit)]
 
 
 @dataclass
@@ -272,14 +354,23 @@ def split_shielded(board: Board, ref: ReferenceCopper, table, upper: int, lower:
     rows = np.flatnonzero(touched)
     if rows.size == 0:
         return ShieldSplit(open_fraction, shield_layer)
-    left = shapely.difference(windows[rows], shield)
-    area = shapely.area(left)
+    # what of each touched window lies in the open space (no reference copper between): its pieces
+    tiles, tree = ref.open_space(upper, lower)
+    wi, ti = tree.query(windows[rows], predicate="intersects")
+    pieces = shapely.intersection(windows[rows][wi], tiles[ti])
+    big = shapely.area(pieces) > SLIVER_MM2
+    wi, pieces = wi[big], pieces[big]
     par = np.asarray(table.parallel, bool)[rows]
-    # crossings: shielded only when nothing is left
-    open_fraction[rows[~par]] = np.where(area[~par] > SLIVER_MM2, 1.0, 0.0)
-    pr = rows[par]
-    if pr.size:
-        open_fraction[pr] = _open_length(p, table, pr, left[par]) / np.maximum(table.length_mm[pr], 1e-12)
+    open_fraction[rows] = 0.0
+    # crossings: open unless nothing is left
+    cross = np.zeros(rows.size, bool)
+    cross[wi] = True
+    open_fraction[rows[~par & cross]] = 1.0
+    keep = par[wi]
+    pr = np.flatnonzero(par)
+    if keep.any():
+        length = _open_length(p, table, rows, pieces[keep], wi[keep])
+        open_fraction[rows[pr]] = length[pr] / np.maximum(table.length_mm[rows[pr]], 1e-12)
     open_fraction = np.clip(open_fraction, 0.0, 1.0)
     for k in range(upper + 1, lower):
         c = ref.cover[k]
@@ -315,20 +406,55 @@ def _windows(p: Pieces, t, m: float) -> np.ndarray:
         ys = np.stack([cy - ly + ny, cy + ly + ny, cy + ly - ny, cy - ly - ny, cy - ly + ny], axis=1)
         out[r] = shapely.polygons(np.stack([xs, ys], axis=2))
     if (~par).any():
+        # a square around the crossing's spot that holds the overlap of the two
+        # rectangles (a parallelogram whose half diagonal is at most
+        # (wa + wb) / (2 sin angle)) grown by m: a superset, so it errs open
         r = np.flatnonzero(~par)
-        inter = shapely.intersection(piece_polygons(p, a[r]), piece_polygons(p, b[r]))
-        out[r] = shapely.buffer(inter, m, join_style="mitre")
+        s = np.maximum(np.sin(np.radians(t.angle_deg[r])), 1e-3)
+        half = (p.width[a[r]] + p.width[b[r]]) / (2 * s) + m
+        out[r] = shapely.box(t.x[r] - half, t.y[r] - half, t.x[r] + half, t.y[r] + half)
     return out
 
 
-def _open_length(p: Pieces, t, rows: np.ndarray, left: np.ndarray) -> np.ndarray:
-    """Length (mm) along each parallel row's direction over which some part
-    of its window is left uncovered: the union of the projections of the
-    leftover pieces."""
-    parts, owner = shapely.get_parts(left, return_index=True)
+def _open_length(p: Pieces, t, rows: np.ndarray, left: np.ndarray, left_row: np.ndarray) -> np.ndarray:
+    """Length (mm) along each parallel row (``rows`` of ``t``) over which
+    some part of its window is left uncovered: the union of the projections,
+    onto the row's direction, of the leftover pieces ``left`` (``left_row``:
+    the position in ``rows`` each belongs to). Vectorised: intervals sorted
+    per row, each adding what reaches beyond the running end of the ones
+    before it."""
     out = np.zeros(rows.size)
+    parts, which = shapely.get_parts(left, return_index=True)
     if parts.size == 0:
         return out
+    owner = np.asarray(left_row)[which]
+    keep = shapely.area(parts) > SLIVER_MM2
+    parts, owner = parts[keep], owner[keep]
+    if parts.size == 0:
+        return out
+    ux, uy = _direction(p, t.a[rows].astype(np.int64))
+    coords, ring_of = shapely.get_coordinates(parts, return_index=True)
+    row_of = owner[ring_of]
+    proj = (coords[:, 0] - t.x[rows][row_of]) * ux[row_of] + (coords[:, 1] - t.y[rows][row_of]) * uy[row_of]
+    lo = np.full(parts.size, np.inf)
+    hi = np.full(parts.size, -np.inf)
+    np.minimum.at(lo, ring_of, proj)
+    np.maximum.at(hi, ring_of, proj)
+    half = t.length_mm[rows] / 2
+    lo = np.maximum(lo, -half[owner])
+    hi = np.maximum(np.minimum(hi, half[owner]), lo)
+    order = np.lexsort((lo, owner))
+    lo, hi, owner = lo[order], hi[order], owner[order]
+    # shift each row's intervals past the previous row's so one running maximum serves all rows
+    shift = owner * (2.0 * float(half.max()) + 1.0)
+    lo_s, hi_s = lo + shift, hi + shift
+    reach = np.maximum.accumulate(hi_s)
+    before = np.concatenate(([-np.inf], reach[:-1]))
+    first = np.concatenate(([True], owner[1:] != owner[:-1]))
+    before[first] = -np.inf
+    add = np.maximum(hi_s - np.maximum(lo_s, before), 0.0)
+    np.add.at(out, owner, add)
+    return out
     keep = shapely.area(parts) > SLIVER_MM2
     parts, owner = parts[keep], owner[keep]
     if parts.size == 0:

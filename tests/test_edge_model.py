@@ -336,7 +336,26 @@ def test_layers_with_different_surroundings_share_nothing():
     assert float(bottom.c12_per_m(0.11, 0.11, 0.1)) != approx(float(top.c12_per_m(0.11, 0.11, 0.1)), 1e-3)
 
 
-def test_section_signature_ignores_translation_and_reflection_only():
+def test_shared_solve_is_reindexed_to_the_sections_own_numbering():
+    """A solve shared with a mirrored, renumbered section gives that
+    section's own Maxwell matrix: the same as solving it directly (exact
+    mirror images solve to the same numbers, to rounding)."""
+    from checker.physics.broadside import _shared, solve_shared
+    from checker.physics.fieldsolve import solve
+
+    a = CrossSection((Conductor(-0.3, -0.1, 0.0, 0.035, 0), Conductor(0.05, 0.2, 0.25, 0.285, 1)),
+                     (Slab(-0.5, 0.8, 4.2),), (-0.2,))
+    b = CrossSection((Conductor(-0.2, -0.05, 0.25, 0.285, 0), Conductor(0.1, 0.3, 0.0, 0.035, 1)),
+                     a.slabs, a.planes)  # a mirrored left to right, nets swapped
+    _shared.clear()
+    (ra, rb), shared = solve_shared([a, b], 0.5)
+    assert shared == 1
+    direct = solve(b, 0.5).maxwell
+    assert np.allclose(rb.maxwell, direct, rtol=1e-12, atol=0)
+    assert rb.maxwell[0, 0] == approx(ra.maxwell[1, 1], rel=1e-12)
+
+
+def test_section_signature_ignores_translation_reflection_and_numbering_only():
     cs = CrossSection((Conductor(-0.2, -0.1, -0.035, 0.0, 0), Conductor(0.1, 0.3, -0.035, 0.0, 1)),
                       (Slab(-0.235, -0.035, 4.2), Slab(-0.035, 0.015, 3.8)), (-0.235,))
 
@@ -352,6 +371,13 @@ def test_section_signature_ignores_translation_and_reflection_only():
     assert section_signature(cs, 1.0, True) != key and section_signature(cs, 0.5, False) != key
     swapped = CrossSection((Conductor(-0.2, -0.1, -0.035, 0.0, 1), Conductor(0.1, 0.3, -0.035, 0.0, 0)),
                            cs.slabs, cs.planes)
-    assert section_signature(swapped, 0.5, True) != key  # conductor numbering matters
+    # the numbering of the conductors is not part of the problem: the shared result is re-indexed
+    assert section_signature(swapped, 0.5, True) == key
+    flipped = CrossSection(tuple(Conductor(-k.x1, -k.x0, k.y0, k.y1, k.net) for k in cs.conductors),
+                           cs.slabs, cs.planes)
+    assert section_signature(flipped, 0.5, True) == key  # mirrored left to right
+    wider = CrossSection((Conductor(-0.2, -0.1, -0.035, 0.0, 0), Conductor(0.1, 0.31, -0.035, 0.0, 1)),
+                         cs.slabs, cs.planes)
+    assert section_signature(wider, 0.5, True) != key
     other = CrossSection(cs.conductors, (Slab(-0.235, -0.035, 4.3), Slab(-0.035, 0.015, 3.8)), cs.planes)
     assert section_signature(other, 0.5, True) != key

@@ -14,7 +14,7 @@ import numpy as np
 import pytest
 import shapely
 
-from checker import returnpath
+from checker import returnpath, shielding
 from checker.analysis import analyse
 from checker.errors import RuleError
 from checker.model import NO_NET
@@ -202,7 +202,7 @@ def test_tiles_change_no_length(rules, monkeypatch):
               for n, y in enumerate(np.linspace(-14, 12, 15))]
     b = make([region(holes=voids)], tracks, nets=[f"CLK{n}" for n in range(15)] + ["GND"])
     monkeypatch.setattr(returnpath, "TILE_VERTICES", 16)
-    assert returnpath.cover_tiles(analyse(b, rules()).reference.cover[1], 16).size > 10
+    assert shielding.cover_tiles(analyse(b, rules()).reference.cover[1], 16).size > 10
     g = gaps(b, rules())
     plane = shapely.Polygon(BIG, voids)
     crossing = 0

@@ -85,8 +85,8 @@ def test_void_under_the_run_couples_over_its_length():
     assert rows.open_fraction[0] == pytest.approx(0.4, abs=1e-9)
     assert rows.shield_layer[0] == 1
     # C12 = C12'(open cross-section) x 10 mm; L1/L3 are not neighbours, so their table is the
-    # coarser one that reads high: 0 to 6 % above a direct solve
-    assert 1.0 <= rows.c12_pf[0] / (open_c12_per_m(b) * 0.010 * 1e12) <= 1.06
+    # coarser one that reads high: 0 to 10 % above a direct solve
+    assert 1.0 <= rows.c12_pf[0] / (open_c12_per_m(b) * 0.010 * 1e12) <= 1.10
 
 
 def test_void_narrower_than_the_window_counts_as_open():
@@ -109,7 +109,7 @@ def test_empty_layer_between_couples_fully():
     pp = epsilon_0 * 4.2 * W / 0.435
     assert pp == pytest.approx(12.82e-12, rel=1e-3)
     assert 1.5 * pp < per_m < 10 * pp
-    assert 1.0 <= per_m / open_c12_per_m(b) <= 1.06  # the coarser far-layer table reads high
+    assert 1.0 <= per_m / open_c12_per_m(b) <= 1.10  # the coarser far-layer table reads high
 
 
 def test_wide_strips_approach_the_parallel_plate_limit():
@@ -299,19 +299,20 @@ def test_overlay_draws_the_void_and_the_island(tmp_path):
 
 def test_far_layer_table_errs_high_against_direct_solves():
     """Layers that are not neighbours get a coarser table (resolution 0.5, 3
-    width knots; checker.physics.broadside.FAR_TABLE_RESOLUTION): against
-    direct solves at resolution 2 it must read high (toward more coupling)
-    and within 6 % (measured +1.1 to +4.1 % on this stackup)."""
+    width knots, offsets stepped from a quarter of their distance;
+    checker.physics.broadside.FAR_TABLE_RESOLUTION): against direct solves
+    at resolution 2 it must read high (toward more coupling) and within
+    10 % (measured +0.5 to +9.8 %)."""
     from checker.model import CopperLayer, Dielectric, Stackup
-    from checker.physics.broadside import FAR_TABLE_RESOLUTION, FAR_WIDTH_KNOTS, BroadsideModel
+    from checker.physics.broadside import FAR_OFFSET_STEP, FAR_TABLE_RESOLUTION, FAR_WIDTH_KNOTS, BroadsideModel
 
     st = Stackup(layers=tuple(CopperLayer(f"L{i + 1}", "plane" if i in (1, 4) else "signal", 0.035)
                               for i in range(6)),
                  dielectrics=tuple(Dielectric(0.2 if i != 2 else 1.0, 4.2) for i in range(5)))
     widths = np.array([0.1, 0.15, 0.2, 0.25, 0.3] * 4)
     model = BroadsideModel(st, 0, 2, widths, widths, max_offset_mm=1.4, resolution=FAR_TABLE_RESOLUTION,
-                           max_width_knots=FAR_WIDTH_KNOTS)
-    for wa, wb, off in ((0.1, 0.2, 0.1), (0.25, 0.12, 0.3), (0.15, 0.3, 0.7), (0.3, 0.3, 0.0)):
+                           max_width_knots=FAR_WIDTH_KNOTS, offset_step_mm=FAR_OFFSET_STEP * 0.435)
+    for wa, wb, off in ((0.1, 0.2, 0.1), (0.25, 0.12, 0.3), (0.15, 0.3, 0.7), (0.3, 0.3, 0.0), (0.25, 0.2, 0.05)):
         table = model.c12_per_m(np.array([wa]), np.array([wb]), np.array([off]))[0]
         direct = solve(broadside_section(st, 0, 2, wa, wb, off), 2.0).c12
-        assert 1.0 <= table / direct <= 1.06, (wa, wb, off, table / direct)
+        assert 1.0 <= table / direct <= 1.10, (wa, wb, off, table / direct)

@@ -93,20 +93,25 @@ The table models here and in ``checker.physics.edge`` solve through
 ``solve_shared``, which keeps the results of recent solves (at most
 ``SHARED_CACHE_SIZE``, least recently used dropped first) under the
 cross-section's ``section_signature``: its conductors, slabs and planes moved
-so the lowest conductor bottom is at y = 0, and of that and its mirror image
-(y -> -y) the one that sorts first, every length rounded to 1 nm, with the
-resolution and whether Richardson extrapolation was asked for. Two
-cross-sections with the same signature are the same electrostatic problem (a
-translation, or a reflection, of the same conductors, dielectrics and
-planes), so a layer (or layer pair) whose surroundings repeat those of
+so the lowest conductor bottom is at y = 0, and of that and its mirror
+images (y -> -y, x -> -x) the one that sorts first, with the conductors
+sorted by place and their net numbers left out, every length rounded to
+1 nm, with the resolution and whether Richardson extrapolation was asked
+for. Two cross-sections with the same signature are the same electrostatic
+problem (a translation or reflection of the same conductors, dielectrics and
+planes, perhaps numbered differently); the shared Maxwell matrix is kept in
+the signature's conductor order and re-indexed to each section's own net
+numbers. So a layer (or layer pair) whose surroundings repeat those of
 another one reuses its solves instead of repeating them: the two outer
-layers of a board symmetric about its middle, the inner layers of a stackup
-built from repeated cores, and the wider tables of the what-if answers,
-whose knots are mostly the analysis's own. Solving the moved or mirrored
-grid instead gives the same matrix to rounding (measured: within 1.2e-15
-relative on a dual stripline pair, mirrored and moved by 0.3 and 1.2 mm),
-so a value does not depend, beyond rounding, on which layer was solved
-first.
+layers of a board symmetric about its middle, mirrored layer pairs (L1/L3
+and L4/L6 of a symmetric six-layer board, where the wider trace of one is
+the narrower of the other), the inner layers of a stackup built from
+repeated cores, and the wider tables of the what-if answers, whose knots are
+mostly the analysis's own. Solving the moved or mirrored grid instead gives
+the same matrix to rounding (measured: within 1.2e-15 relative on a dual
+stripline pair, mirrored and moved by 0.3 and 1.2 mm; 3.3e-16 mirrored left
+to right with its nets swapped), so a value does not depend, beyond
+rounding, on which layer was solved first.
 
 Crossings
 ---------
@@ -164,7 +169,7 @@ from scipy.constants import epsilon_0
 
 from ..model import Stackup
 from ..stackup import effective_er, separation_mm
-from .fieldsolve import CapacitanceResult, Conductor, CrossSection, Slab, solve
+from .fieldsolve import GROUND, CapacitanceResult, Conductor, CrossSection, Slab, solve
 
 #: Solver resolution used for the tables (see ``fieldsolve``): 1.0-1.6 %
 #: high on broadside pairs, 5-30 ms a solve.
@@ -172,14 +177,21 @@ TABLE_RESOLUTION = 0.8
 
 #: Solver resolution of the tables of two layers that are not neighbours
 #: (coupling through openings in the copper between): 3-4 times faster than
-#: ``TABLE_RESOLUTION`` and reads higher, +1.7 to +4.6 % against resolution 3
-#: on L1/L3 and L1/L6 of a six-layer stackup (measured), i.e. toward more
-#: coupling.
+#: ``TABLE_RESOLUTION`` and reads higher (+1.7 to +4.6 % against resolution
+#: 3 on L1/L3 and L1/L6 of a six-layer stackup). With the coarser width and
+#: offset knots below, the table reads +0.5 to +9.8 % against direct solves
+#: at resolution 2 (measured over 3 x 3 widths 0.1-0.3 mm and offsets 0-3 mm
+#: on five layer pairs of a six-layer and a thin four-layer stackup), i.e.
+#: always toward more coupling there.
 FAR_TABLE_RESOLUTION = 0.5
 
 #: Width knots per layer of such a table (3 instead of 4: 9 width pairs
 #: instead of 16).
 FAR_WIDTH_KNOTS = 3
+
+#: Its first offset step beyond the overlap, as a fraction of the distance
+#: between the two layers (``offset_knots(min_step_mm=...)``).
+FAR_OFFSET_STEP = 0.25
 
 #: Most width knots per layer.
 MAX_WIDTH_KNOTS = 4
@@ -198,32 +210,67 @@ _shared: OrderedDict[tuple, CapacitanceResult] = OrderedDict()
 _shared_lock = threading.Lock()
 
 
-def section_signature(cs: CrossSection, resolution: float, richardson: bool = False) -> tuple | None:
-    """The key under which ``solve_shared`` shares solves of ``cs`` (module
-    docstring, "Shared solves"): ``cs`` moved so its lowest conductor bottom
-    is at y = 0, and of that and its mirror image (y -> -y) the one that sorts
-    first, lengths rounded to 1 nm; with ``resolution`` and ``richardson``.
-    None (not shared) for a cross-section with round conductors or a given
-    box, which the table models do not build."""
+def _canonical(cs: CrossSection, resolution: float, richardson: bool) -> tuple[tuple | None, tuple[int, ...]]:
+    """The key under which ``solve_shared`` shares solves of ``cs`` and the
+    signal nets of ``cs`` in the key's conductor order (module docstring,
+    "Shared solves"). Key None (not shared) for round conductors, a given
+    box, or a signal net drawn as more than one conductor."""
     if not cs.conductors or not all(isinstance(c, Conductor) for c in cs.conductors) or cs.box is not None:
-        return None
+        return None, ()
+    signal = [c.net for c in cs.conductors if c.net != GROUND]
+    if len(set(signal)) != len(signal):
+        return None, ()
 
     def r(v: float) -> float:
         return round(float(v), _SIGNATURE_DECIMALS) + 0.0  # + 0.0: no -0.0
 
-    def moved(sign: float) -> tuple:
-        ys = [sign * c.y0 for c in cs.conductors] + [sign * c.y1 for c in cs.conductors]
+    def variant(sy: float, sx: float) -> tuple[tuple, tuple[int, ...]]:
+        ys = [sy * c.y0 for c in cs.conductors] + [sy * c.y1 for c in cs.conductors]
         base = min(ys)
 
         def y(v: float) -> float:
-            return r(sign * v - base)
+            return r(sy * v - base)
 
-        conductors = tuple((r(c.x0), r(c.x1), *sorted((y(c.y0), y(c.y1))), c.net) for c in cs.conductors)
-        slabs = tuple(sorted((*sorted((y(s.y0), y(s.y1))), r(s.er)) for s in cs.slabs))
+        drawn = sorted(((*sorted((r(sx * c.x0), r(sx * c.x1))), *sorted((y(c.y0), y(c.y1))), c.net == GROUND),
+                        c.net) for c in cs.conductors)
+        conductors = tuple(geom for geom, _ in drawn)
+        order = tuple(net for (*_, ground), net in drawn if not ground)
+        slabs = tuple(sorted((*sorted((y(v.y0), y(v.y1))), r(v.er)) for v in cs.slabs))
         planes = tuple(sorted(y(p) for p in cs.planes))
-        return conductors, slabs, planes
+        return (conductors, slabs, planes), order
 
-    return (min(moved(1.0), moved(-1.0)), r(cs.box_margin), float(resolution), bool(richardson))
+    shape, order = min(variant(sy, sx) for sy in (1.0, -1.0) for sx in (1.0, -1.0))
+    return (shape, r(cs.box_margin), float(resolution), bool(richardson)), order
+
+
+def section_signature(cs: CrossSection, resolution: float, richardson: bool = False) -> tuple | None:
+    """The key under which ``solve_shared`` shares solves of ``cs`` (module
+    docstring, "Shared solves"): ``cs`` moved so its lowest conductor bottom
+    is at y = 0, and of that and its mirror images (y -> -y, x -> -x) the one
+    that sorts first, conductors sorted by place (their net numbers left
+    out), lengths rounded to 1 nm; with ``resolution`` and ``richardson``.
+    None (not shared) for a cross-section with round conductors, a given
+    box or a net drawn as several conductors, which the table models do not
+    build."""
+    return _canonical(cs, resolution, richardson)[0]
+
+
+def _reorder(result: CapacitanceResult, index: np.ndarray, to_key: bool) -> CapacitanceResult:
+    """``result`` with its matrices re-indexed: ``to_key`` takes a solve's
+    nets into the key's order (``index[k]`` = the net at key position k);
+    otherwise back from the key's order to a section's nets."""
+
+    def move(m):
+        if m is None:
+            return None
+        if to_key:
+            return m[np.ix_(index, index)]
+        out = np.empty_like(m)
+        out[np.ix_(index, index)] = m
+        return out
+
+    return CapacitanceResult(move(result.maxwell), result.resolution, result.nodes, move(result.error),
+                             move(result.extrapolated))
 
 
 def solve_shared(sections: list[CrossSection], resolution: float,
@@ -231,31 +278,40 @@ def solve_shared(sections: list[CrossSection], resolution: float,
     """``fieldsolve.solve(cs, resolution, richardson=richardson)`` of each of
     ``sections``, two solves at a time, results in input order; a section
     whose ``section_signature`` was solved before (or earlier in the list)
-    takes that result instead of being solved again. Returns the results and
-    how many were taken rather than solved."""
-    keys = [section_signature(cs, resolution, richardson) for cs in sections]
+    takes that result, its matrices re-indexed to its own net numbers,
+    instead of being solved again. Returns the results and how many were
+    taken rather than solved."""
+    canon = [_canonical(cs, resolution, richardson) for cs in sections]
+    keys = [k for k, _ in canon]
     results: list[CapacitanceResult | None] = [None] * len(sections)
     todo: dict[tuple | int, int] = {}  # key (or index, unshared) -> first index to solve
     with _shared_lock:
         for i, key in enumerate(keys):
             if key is not None and key in _shared:
                 _shared.move_to_end(key)
-                results[i] = _shared[key]
+                results[i] = _reorder(_shared[key], np.array(canon[i][1], np.int64), to_key=False)
             else:
                 todo.setdefault(i if key is None else key, i)
     first = sorted(todo.values())
     workers = max(1, min(2, os.cpu_count() or 1))
     with ThreadPoolExecutor(max_workers=workers) as pool:
         solved = dict(zip(first, pool.map(lambda i: solve(sections[i], resolution, richardson=richardson), first)))
+    in_key = {i: _reorder(solved[i], np.array(canon[i][1], np.int64), to_key=True)
+              for i in first if keys[i] is not None}
     with _shared_lock:
         for i in first:
             if keys[i] is not None:
-                _shared[keys[i]] = solved[i]
+                _shared[keys[i]] = in_key[i]
         while len(_shared) > SHARED_CACHE_SIZE:
             _shared.popitem(last=False)
     for i, key in enumerate(keys):
         if results[i] is None:
-            results[i] = solved[todo[i if key is None else key]]
+            if key is None:
+                results[i] = solved[todo[i]]
+            else:
+                j = todo[key]
+                results[i] = solved[j] if i == j else _reorder(in_key[j], np.array(canon[i][1], np.int64),
+                                                                  to_key=False)
     return results, len(sections) - len(first)  # type: ignore[return-value]
 
 
@@ -367,7 +423,7 @@ def width_knots(widths, max_knots: int = MAX_WIDTH_KNOTS) -> np.ndarray:
     return np.array(sorted(knots))
 
 
-def offset_knots(wa: float, wb: float, max_offset_mm: float) -> np.ndarray:
+def offset_knots(wa: float, wb: float, max_offset_mm: float, min_step_mm: float = 0.0) -> np.ndarray:
     """Offsets (mm) solved for one width pair (see the module docstring).
 
     With ``lo = |wa - wb|/2`` (the narrower trace reaches the wider one's
@@ -375,11 +431,15 @@ def offset_knots(wa: float, wb: float, max_offset_mm: float) -> np.ndarray:
     min(wa, wb)``: 0, lo/2, lo, lo + wn/4, lo + wn/2, lo + 3wn/4, hi, then
     steps starting at wn/4 and growing ``_GROWTH`` (1.7) times, up to
     ``max_offset_mm`` (here the table's end, always the last knot). Knots
-    closer than wn/20 are merged.
+    closer than wn/20 are merged. ``min_step_mm`` > 0 (layers far apart,
+    where C12' changes on the scale of their distance, not of the widths):
+    only 0, hi/2 and hi up to hi, and steps from ``min_step_mm`` on.
     """
     lo, hi, wn = 0.5 * abs(wa - wb), 0.5 * (wa + wb), min(wa, wb)
     pts = [0.0, 0.5 * lo, lo, lo + 0.25 * wn, lo + 0.5 * wn, lo + 0.75 * wn, hi]
     step = 0.25 * wn
+    if min_step_mm > step:
+        pts, step = [0.0, 0.5 * hi, hi], min_step_mm / _GROWTH
     while pts[-1] < max_offset_mm:
         step *= _GROWTH
         pts.append(pts[-1] + step)
@@ -416,7 +476,8 @@ class BroadsideModel:
     """
 
     def __init__(self, stackup, upper: int, lower: int, widths_a, widths_b, max_offset_mm: float,
-                 resolution: float = TABLE_RESOLUTION, max_width_knots: int = MAX_WIDTH_KNOTS):
+                 resolution: float = TABLE_RESOLUTION, max_width_knots: int = MAX_WIDTH_KNOTS,
+                 offset_step_mm: float = 0.0):
         _check_pair(stackup, upper, lower)
         if not (max_offset_mm > 0 and math.isfinite(max_offset_mm)):
             raise ValueError(f"max_offset_mm must be positive and finite, got {max_offset_mm}")
@@ -435,7 +496,7 @@ class BroadsideModel:
         # offset + ((wa_k + wb_k) - (wa + wb)) / 2: cover that up to max_offset
         base = self.widths_a_knots[0] + self.widths_b_knots[0]
         self.offsets: list[list[np.ndarray]] = [
-            [offset_knots(float(wa), float(wb), self.max_offset_mm + 0.5 * (wa + wb - base))
+            [offset_knots(float(wa), float(wb), self.max_offset_mm + 0.5 * (wa + wb - base), offset_step_mm)
              for wb in self.widths_b_knots]
             for wa in self.widths_a_knots
         ]
