@@ -316,3 +316,28 @@ def test_far_layer_table_errs_high_against_direct_solves():
         table = model.c12_per_m(np.array([wa]), np.array([wb]), np.array([off]))[0]
         direct = solve(broadside_section(st, 0, 2, wa, wb, off), 2.0).c12
         assert 1.0 <= table / direct <= 1.10, (wa, wb, off, table / direct)
+
+
+@pytest.mark.parametrize("value, place, words", [
+    ("GND", "settings.reference_nets", "expected a non-empty list of net-name patterns"),
+    ('["re:(GND"]', "settings.reference_nets[0]", "bad regular expression"),
+    ("[3]", "settings.reference_nets[0]", "expected a net-name pattern string"),
+])
+def test_bad_reference_nets_name_the_file_and_key(tmp_path, value, place, words):
+    from checker.errors import RuleError
+
+    path = tmp_path / "r.yaml"
+    path.write_text(f"version: 1\nsettings:\n  reference_nets: {value}\n")
+    with pytest.raises(RuleError) as info:
+        load_ruleset(path)
+    assert str(info.value).startswith(f"{path}: {place}: ") and words in str(info.value)
+
+
+def test_bad_guard_stitch_fraction_names_the_key(tmp_path):
+    from checker.errors import RuleError
+
+    path = tmp_path / "r.yaml"
+    path.write_text("version: 1\nsettings:\n  guard_stitch_fraction: 2\n")
+    with pytest.raises(RuleError) as info:
+        load_ruleset(path)
+    assert str(info.value) == f"{path}: settings.guard_stitch_fraction: must be > 0 and <= 1, got 2"
