@@ -76,6 +76,9 @@ class Couplings:
     #: none) and the factor it applied to ``c12_pf`` (1: not credited)
     guard: np.ndarray
     guard_factor: np.ndarray
+    #: edge rows: the net of the credited conductor in the gap (a stitched
+    #: guard, or a driven third net), NO_NET where none was credited
+    gap_net: np.ndarray
 
     def __len__(self) -> int:
         return int(self.a.shape[0])
@@ -293,7 +296,8 @@ def analysis_steps(board: Board, ruleset: RuleSet) -> int:
 def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=None,
                    accurate: bool = False, models: dict | None = None,
                    ref: ReferenceCopper | None = None, islands: list[Island] | None = None,
-                   frequency_hz: np.ndarray | None = None, guards: list | None = None
+                   frequency_hz: np.ndarray | None = None, guards: list | None = None,
+                   driven: np.ndarray | None = None
                    ) -> tuple[Couplings, list[tuple[int, int]], int]:
     """Search every pair of layers (broadside) and every layer (edge) that
     carry copper of nets other than the reference nets; ``progress(description)``
@@ -350,7 +354,7 @@ def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=No
             t = find_edge(signal, u, s.edge_search_mm, s.parallel_angle_deg)
             c12 = _edge_c12(board, t, u, notes, accurate, models)
             guard = _guard_edge_rows(board, ref, ground, t, u, frequency_hz, s.guard_stitch_fraction,
-                                     guards, notes)
+                                     guards, notes, driven)
             tables.append((EDGE, t, c12 * guard.factor, np.ones(len(t)), np.full(len(t), -1, np.int32),
                            guard))
     if covered:
@@ -388,7 +392,7 @@ def _with_relays(board: Board, c: Couplings, ref: ReferenceCopper, signal: Piece
         angle_deg=z, parallel=np.zeros(n, bool), length_mm=z.copy(), offset_mm=z.copy(), gap_mm=z.copy(),
         overlap_mm2=z.copy(), x=spot[:, 0], y=spot[:, 1], c12_pf=r.c_pf, open_fraction=np.ones(n),
         shield_layer=np.full(n, -1, np.int32), island=r.island.astype(np.int64), guard=np.full(n, -1, np.int64),
-        guard_factor=np.ones(n))
+        guard_factor=np.ones(n), gap_net=np.full(n, NO_NET, np.int64))
     partner = _partners(board, pairs)
     extra = extra.take(np.flatnonzero(partner[extra.net_a] != extra.net_b))
     return Couplings(**{name: np.concatenate([getattr(c, name), getattr(extra, name)])
@@ -396,7 +400,8 @@ def _with_relays(board: Board, c: Couplings, ref: ReferenceCopper, signal: Piece
 
 
 def _guard_edge_rows(board: Board, ref: ReferenceCopper, ground: np.ndarray, t: PairTable, layer: int,
-                     frequency_hz: np.ndarray, stitch_fraction: float, guards: list, notes: list[str]) -> GuardedRows:
+                     frequency_hz: np.ndarray, stitch_fraction: float, guards: list, notes: list[str],
+                     driven: np.ndarray | None = None) -> GuardedRows:
     """Guards in the gaps of the edge rows ``t`` (``checker.guards``): their
     grounding is judged once per guard track and appended to ``guards``
     (one ``Guards`` table per layer); the factor on each row's C12."""
@@ -405,20 +410,33 @@ def _guard_edge_rows(board: Board, ref: ReferenceCopper, ground: np.ndarray, t: 
     offset = sum(len(g) for g in guards)
     index = np.full(len(t), -1, np.int64)
     has = np.flatnonzero(piece >= 0)
-    if has.size == 0:
-        return GuardedRows(index, covered, np.ones(len(t)))
-    src = p.source[piece[has]].astype(np.int64)
-    sources, inv = np.unique(src, return_inverse=True)
-    f = np.fmax(frequency_hz[p.net[t.a[has]]], frequency_hz[p.net[t.b[has]]])
-    fastest = np.full(sources.size, np.nan)
-    np.fmax.at(fastest, inv, f)
-    table = grounding(board, ref.is_reference, ref.cover, sources, fastest, stitch_fraction)
-    guards.append(table)
-    index[has] = offset + inv
     credited = np.zeros(len(t), bool)
-    credited[has] = np.array([table.state[k] == "stitched" for k in inv.tolist()], bool)
-    factor = guard_factors(board, t, layer, piece, covered, credited, notes)
-    return GuardedRows(index, covered, factor)
+    factor = np.ones(len(t))
+    gap_net = np.full(len(t), NO_NET, np.int64)
+    if has.size:
+        src = p.source[piece[has]].astype(np.int64)
+        sources, inv = np.unique(src, return_inverse=True)
+        f = np.fmax(frequency_hz[p.net[t.a[has]]], frequency_hz[p.net[t.b[has]]])
+        fastest = np.full(sources.size, np.nan)
+        np.fmax.at(fastest, inv, f)
+        table = grounding(board, ref.is_reference, ref.cover, sources, fastest, stitch_fraction)
+        guards.append(table)
+        index[has] = offset + inv
+        credited[has] = np.array([table.state[k] == "stitched" for k in inv.tolist()], bool)
+        factor = guard_factors(board, t, layer, piece, covered, credited, notes)
+        gap_net = np.where(credited, p.net[np.maximum(piece, 0)], NO_NET).astype(np.int64)
+    # a driven third net in the gap (no resistance given: not a high-impedance node), where no guard counts
+    if driven is not None and len(t):
+        net = p.net.astype(np.int64)
+        live = (net != NO_NET) & ~ground
+        live[live] = driven[net[live]]
+        third, share = find_guard_pieces(board, live, t, layer, exclude_own=True)
+        use = (third >= 0) & ~credited
+        if use.any():
+            more = guard_factors(board, t, layer, third, share, use, notes)
+            factor = np.where(use, more, factor)
+            gap_net = np.where(use & (more < 1.0), net[np.maximum(third, 0)], gap_net)
+    return GuardedRows(index, covered, factor, gap_net)
 
 
 def _exposed(signal: Pieces, u: int, l: int, shield, space, grow_mm: float) -> Pieces | None:
@@ -542,7 +560,8 @@ def _assemble(board: Board, tables: list[tuple],
                       overlap_mm2=t.overlap_mm2, x=t.x, y=t.y, c12_pf=c12,
                       open_fraction=fraction, shield_layer=shield_layer, island=np.full(n, -1, np.int64),
                       guard=guarded.guard if guarded is not None else np.full(n, -1, np.int64),
-                      guard_factor=guarded.factor if guarded is not None else np.ones(n))
+                      guard_factor=guarded.factor if guarded is not None else np.ones(n),
+                      gap_net=guarded.gap_net if guarded is not None else np.full(n, NO_NET, np.int64))
         for name, v in values.items():
             cols[name].append(np.asarray(v))
     if not tables:
@@ -553,6 +572,7 @@ def _assemble(board: Board, tables: list[tuple],
         empty["shield_layer"] = np.zeros(0, np.int32)
         empty["island"] = np.zeros(0, np.int64)
         empty["guard"] = np.zeros(0, np.int64)
+        empty["gap_net"] = np.zeros(0, np.int64)
         return Couplings(**empty)
     c = Couplings(**{name: np.concatenate(v) for name, v in cols.items()})
     # declared differential-pair partners are exempt from each other's checks
@@ -652,7 +672,8 @@ def analyse(board: Board, ruleset: RuleSet, progress=None, accurate: bool = Fals
     islands = find_islands(board)
     guard_tables: list = []
     couplings, layer_pairs, examined = find_couplings(board, ruleset, notes, progress, accurate, models, ref,
-                                                      islands, electrical.frequency_hz, guard_tables)
+                                                      islands, electrical.frequency_hz, guard_tables,
+                                                      np.isnan(electrical.resistance_ohm))
     guards = concat_guards(guard_tables)
     if progress is not None:
         progress("capacitance to ground and noise")

@@ -38,6 +38,13 @@ centreline), and each end that lies on other reference copper of the layer
 
 Only a ``stitched`` guard is credited in the physics.
 
+A trace of a third signal net in the gap (found the same way) is a
+conductor held by its driver: where its net class gives no ``resistance``
+(it is not a high-impedance victim node) and no credited guard is there, it
+is credited the same way, as a conductor at AC ground. A third net with a
+``resistance`` is not credited (it may float and relay; the estimate errs
+high).
+
 The reduction
 -------------
 For a credited guard the edge cross-section of the pair (``edge_section``)
@@ -129,6 +136,8 @@ class GuardedRows:
     guard: np.ndarray
     covered: np.ndarray
     factor: np.ndarray
+    #: the net of the credited conductor in the gap (NO_NET: none)
+    gap_net: np.ndarray
 
 
 def _gap_strips(p: Pieces, t) -> np.ndarray:
@@ -148,10 +157,12 @@ def _gap_strips(p: Pieces, t) -> np.ndarray:
     return shapely.polygons(np.stack([xs, ys], axis=2))
 
 
-def find_guard_pieces(board: Board, is_ref_piece: np.ndarray, t, layer: int) -> tuple[np.ndarray, np.ndarray]:
-    """Per row of the edge table ``t``: the reference piece running in its
-    gap strip over the longest stretch (-1: none) and the share of the
-    coupled length it covers."""
+def find_guard_pieces(board: Board, is_ref_piece: np.ndarray, t, layer: int,
+                      exclude_own: bool = False) -> tuple[np.ndarray, np.ndarray]:
+    """Per row of the edge table ``t``: the piece (among those where
+    ``is_ref_piece`` holds) running in its gap strip over the longest
+    stretch (-1: none) and the share of the coupled length it covers.
+    ``exclude_own``: leave out pieces of the row's own two nets."""
     p = board.pieces
     n = len(t)
     best = np.full(n, -1, np.int64)
@@ -164,6 +175,10 @@ def find_guard_pieces(board: Board, is_ref_piece: np.ndarray, t, layer: int) -> 
                                           np.stack([p.y1[refs], p.y2[refs]], 1)], 2))
     tree = shapely.STRtree(lines)
     row, k = tree.query(strips, predicate="intersects")
+    if exclude_own and row.size:
+        net = p.net[refs[k]]
+        other = (net != p.net[t.a[row]]) & (net != p.net[t.b[row]])
+        row, k = row[other], k[other]
     if row.size == 0:
         return best, share
     inside = shapely.length(shapely.intersection(lines[k], strips[row]))

@@ -129,3 +129,37 @@ def test_overlay_draws_guard_and_stitching_vias(tmp_path):
     svg = render_svg(check_board(board([0]), load_ruleset(path)))
     assert svg.count('data-role="guard"') == 1 and "guard (GND): one end, longest free stretch 25 mm" in svg
     assert svg.count('data-role="stitch"') == 1  # the one via at x = 0
+
+
+def third_net_board(net="DATA"):
+    """As ``board`` but the trace in the gap (y = 0.4, 0.2 mm) is a signal net."""
+    tracks = [{"layer": "L1", "net": "CLK", "width": 0.15, "points": [[0, 0], [25, 0]]},
+              {"layer": "L1", "net": "SENSE", "width": 0.15, "points": [[0, 0.8], [25, 0.8]]},
+              {"layer": "L1", "net": net, "width": 0.2, "points": [[0, 0.4], [25, 0.4]]}]
+    return read_board_dict({
+        "format": "couplint-board", "version": 1, "name": "g", "stackup": STACKUP,
+        "nets": [{"name": "CLK"}, {"name": "SENSE"}, {"name": "GND"}, {"name": net}], "tracks": tracks,
+        "regions": [{"layer": "L2", "net": "GND", "outline": OUTLINE}], "outline": OUTLINE}, "t.json")
+
+
+def test_driven_third_net_in_the_gap_shields_like_a_grounded_conductor():
+    """A trace of a net with no resistance in its class (driven: held by its
+    driver) in the gap is a conductor at AC ground in the cross-section: the
+    same reduction as a stitched guard of its width and place."""
+    a = analyse(third_net_board(), default_ruleset())
+    c = a.couplings
+    rows = np.flatnonzero((c.kind == EDGE) & (c.net_a == a.board.net_index()["CLK"])
+                          & (c.net_b == a.board.net_index()["SENSE"]))
+    stitched = analyse(board([0, 5, 10, 15, 20, 25]), default_ruleset())
+    assert c.guard_factor[rows].tolist() == pytest.approx(stitched.couplings.guard_factor[edge_row(stitched)])
+    assert c.gap_net[rows].tolist() == [a.board.net_index()["DATA"]]
+
+
+def test_high_impedance_third_net_is_not_credited():
+    """AIN_X matches the default set's sensitive-analog class, which gives a
+    resistance: a high-impedance node may float, so no reduction."""
+    a = analyse(third_net_board("AIN_X"), default_ruleset())
+    c = a.couplings
+    idx = a.board.net_index()
+    rows = np.flatnonzero((c.kind == EDGE) & (c.net_a == idx["CLK"]) & (c.net_b == idx["SENSE"]))
+    assert c.guard_factor[rows].tolist() == [1.0]

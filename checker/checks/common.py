@@ -122,6 +122,13 @@ def path_text(ctx, rows: np.ndarray) -> str | None:
                          "sparse": "stitched too far apart"}[g.state[k]]
                 parts.append(f"a {net} guard in the gap on {ctx.layer_name(int(g.layer[k]))} is {state}: "
                              "not counted as a shield")
+    third = rows[(c.kind[rows] == EDGE) & (c.guard[rows] < 0) & (c.gap_net[rows] >= 0)]
+    for k in np.unique(c.gap_net[third]).tolist():
+        mine = third[c.gap_net[third] == k]
+        before = float((c.c12_pf[mine] / c.guard_factor[mine]).sum())
+        cut = 1.0 - float(c.c12_pf[mine].sum()) / before if before > 0 else 0.0
+        parts.append(f"a trace of {ctx.net_name(int(k))} in the gap (taken as held by its driver) takes "
+                     f"{cut * 100:.0f} % off the edge C12 beside it")
     rl = rows[c.kind[rows] == RELAY]
     if rl.size:
         for s in np.unique(c.island[rl]).tolist():
