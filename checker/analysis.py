@@ -15,8 +15,9 @@ import numpy as np
 
 from .finder.pairs import PairTable, find_broadside, find_edge
 from .finder.runs import run_labels
-from .guards import GuardedRows, Guards, concat_guards, find_guard_pieces, grounding, guard_factors
-from .islands import Island, find_islands, island_links, relays
+from .guards import (MAX_THIRD_NET_SOLVES, GuardedRows, Guards, concat_guards, find_guard_pieces, grounding,
+                     guard_factors)
+from .islands import Island, by_conductor, find_islands, island_links, relays
 from .model import NO_NET, Board, Pieces
 from .physics import crosstalk
 from .physics.broadside import (FAR_OFFSET_STEP, FAR_TABLE_RESOLUTION, FAR_WIDTH_KNOTS, BroadsideModel,
@@ -354,7 +355,7 @@ def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=No
             t = find_edge(signal, u, s.edge_search_mm, s.parallel_angle_deg)
             c12 = _edge_c12(board, t, u, notes, accurate, models)
             guard = _guard_edge_rows(board, ref, ground, t, u, frequency_hz, s.guard_stitch_fraction,
-                                     guards, notes, driven)
+                                     guards, notes, driven, np.isfinite(frequency_hz))
             tables.append((EDGE, t, c12 * guard.factor, np.ones(len(t)), np.full(len(t), -1, np.int32),
                            guard))
     if covered:
@@ -376,10 +377,12 @@ def _with_relays(board: Board, c: Couplings, ref: ReferenceCopper, signal: Piece
     (``checker.islands``)."""
     if not islands:
         return c
-    links = island_links(board, ref, islands, signal, edge_search_mm, notes)
+    links = by_conductor(island_links(board, ref, islands, signal, edge_search_mm, notes), islands)
     r = relays(links, len(islands), notes)
-    notes.append(f"floating copper: {len(islands)} island(s) on no net, each taken as a conductor with zero "
-                 f"net charge; {len(r)} net pair(s) coupled through them")
+    conductors = len({i.node for i in islands})
+    notes.append(f"floating copper: {len(islands)} island(s) on no net ({conductors} conductor(s): islands joined "
+                 f"by a plated hole on no net are one), each conductor with zero net charge; {len(r)} net pair(s) "
+                 "coupled through them")
     if not len(r):
         return c
     p = board.pieces
@@ -401,7 +404,7 @@ def _with_relays(board: Board, c: Couplings, ref: ReferenceCopper, signal: Piece
 
 def _guard_edge_rows(board: Board, ref: ReferenceCopper, ground: np.ndarray, t: PairTable, layer: int,
                      frequency_hz: np.ndarray, stitch_fraction: float, guards: list, notes: list[str],
-                     driven: np.ndarray | None = None) -> GuardedRows:
+                     driven: np.ndarray | None = None, is_aggressor: np.ndarray | None = None) -> GuardedRows:
     """Guards in the gaps of the edge rows ``t`` (``checker.guards``): their
     grounding is judged once per guard track and appended to ``guards``
     (one ``Guards`` table per layer); the factor on each row's C12."""
@@ -427,15 +430,21 @@ def _guard_edge_rows(board: Board, ref: ReferenceCopper, ground: np.ndarray, t: 
         gap_net = np.where(credited, p.net[np.maximum(piece, 0)], NO_NET).astype(np.int64)
     # a driven third net in the gap (no resistance given: not a high-impedance node), where no guard counts
     if driven is not None and len(t):
+        # only rows that feed a noise estimate (one net an aggressor, the other a victim node) are
+        # worth the solves; elsewhere the third net is left out (the estimate errs high)
         net = p.net.astype(np.int64)
-        live = (net != NO_NET) & ~ground
-        live[live] = driven[net[live]]
-        third, share = find_guard_pieces(board, live, t, layer, exclude_own=True)
-        use = (third >= 0) & ~credited
-        if use.any():
-            more = guard_factors(board, t, layer, third, share, use, notes)
-            factor = np.where(use, more, factor)
-            gap_net = np.where(use & (more < 1.0), net[np.maximum(third, 0)], gap_net)
+        na, nb = net[t.a], net[t.b]
+        worth = np.flatnonzero((~credited) & ((is_aggressor[na] & ~driven[nb]) | (is_aggressor[nb] & ~driven[na])))
+        if worth.size:
+            live = (net != NO_NET) & ~ground
+            live[live] = driven[net[live]]
+            sub = t.take(worth)
+            third, share = find_guard_pieces(board, live, sub, layer, exclude_own=True)
+            use = third >= 0
+            if use.any():
+                more = guard_factors(board, sub, layer, third, share, use, notes, MAX_THIRD_NET_SOLVES)
+                factor[worth] = np.where(use, more, factor[worth])
+                gap_net[worth] = np.where(use & (more < 1.0), net[np.maximum(third, 0)], gap_net[worth])
     return GuardedRows(index, covered, factor, gap_net)
 
 

@@ -41,9 +41,12 @@ Only a ``stitched`` guard is credited in the physics.
 A trace of a third signal net in the gap (found the same way) is a
 conductor held by its driver: where its net class gives no ``resistance``
 (it is not a high-impedance victim node) and no credited guard is there, it
-is credited the same way, as a conductor at AC ground. A third net with a
-``resistance`` is not credited (it may float and relay; the estimate errs
-high).
+is credited the same way, as a conductor at AC ground, on the rows that
+feed a noise estimate (one net with an aggressor frequency, the other a
+victim node with a resistance), at most :data:`MAX_THIRD_NET_SOLVES`
+distinct cross-sections per layer. A third net with a ``resistance`` is not
+credited (it may float and relay); elsewhere third nets are left out. Both
+err toward more coupling.
 
 The reduction
 -------------
@@ -89,6 +92,10 @@ GUARD_RESOLUTION = 1.0
 #: The solved ratio is raised by this factor so that the reduction errs
 #: toward more coupling, never less (covers the 0.6 % above).
 RATIO_MARGIN = 1.01
+
+#: Most distinct cross-sections solved per layer for third nets in gaps
+#: (beyond it they are not credited: C12 errs high).
+MAX_THIRD_NET_SOLVES = 20
 
 #: Cross-sections are rounded to this grid (mm) to share solves.
 GRID_MM = 0.005
@@ -272,7 +279,7 @@ def guard_section(stackup, layer: int, wa: float, wb: float, gap: float, wg: flo
 
 
 def guard_factors(board: Board, t, layer: int, guard_piece: np.ndarray, covered: np.ndarray,
-                  credited: np.ndarray, notes: list[str]) -> np.ndarray:
+                  credited: np.ndarray, notes: list[str], max_solves: int | None = None) -> np.ndarray:
     """Factor on C12 per row of the edge table ``t`` (module docstring, "The
     reduction"); 1 where the row has no credited guard."""
     p = board.pieces
@@ -292,9 +299,10 @@ def guard_factors(board: Board, t, layer: int, guard_piece: np.ndarray, covered:
     r = lambda v: np.round(np.asarray(v, float) / GRID_MM) * GRID_MM  # noqa: E731
     keys = np.stack([r(p.width[a]), r(p.width[b]), r(t.gap_mm[rows]), r(p.width[g]), r(pos)], axis=1)
     uniq, inv = np.unique(keys, axis=0, return_inverse=True)
-    if uniq.shape[0] > MAX_GUARD_SOLVES:
-        notes.append(f"guards on {board.stackup.layers[layer].name}: {uniq.shape[0]} distinct guard "
-                     f"cross-sections, more than {MAX_GUARD_SOLVES}: guards not credited there "
+    limit = MAX_GUARD_SOLVES if max_solves is None else max_solves
+    if uniq.shape[0] > limit:
+        notes.append(f"conductors in the gaps of edge-coupled pairs on {board.stackup.layers[layer].name}: "
+                     f"{uniq.shape[0]} distinct cross-sections, more than {limit}: not credited there "
                      "(C12 errs high)")
         return factor
     st = board.stackup

@@ -16,11 +16,11 @@ Islands
 -------
 The connected parts (per layer) of the union of the layer's copper on no
 net: regions and pieces with ``NO_NET``. Parts smaller than
-:data:`MIN_ISLAND_MM2` are left out (pad-sized specks). Islands on different
-layers joined by a plated hole are not merged (each is its own node): a
-chain of two floating nodes relays less than one, so this can read low where
-a via ties two islands together; the report's note says how many islands
-were found.
+:data:`MIN_ISLAND_MM2` are left out (pad-sized specks). Islands on several
+layers that one plated hole on no net touches are one conductor (one node):
+their capacitances to each net and to ground add up before the island is
+eliminated. The report's note says how many islands and conductors were
+found.
 
 What an island couples to (each value errs toward more coupling)
 -----------------------------------------------------------------
@@ -39,8 +39,10 @@ What an island couples to (each value errs toward more coupling)
   above and below (plane as ``checker.shielding`` decides it), fringing
   left out: a smaller C_sg relays more.
 
-Island-to-island coupling, and the island's pull on the nets' own
-capacitance to ground, are left out (both would lower the relayed value).
+Island-to-island coupling (between separate conductors) is left out (a
+chain of floating conductors relays less than one, so this can read low
+there); so is the island's pull on the nets' own capacitance to ground
+(it would lower the relayed noise).
 """
 
 from __future__ import annotations
@@ -80,6 +82,10 @@ class Island:
     x: float
     y: float
     polygon: object
+    #: index (in the island list) of the first island of the conductor this
+    #: one is part of: islands on several layers joined by a plated hole on
+    #: no net are one conductor
+    node: int = -1
 
 
 @dataclass
@@ -128,8 +134,58 @@ def find_islands(board: Board) -> list[Island]:
         parts.sort(key=lambda g: (round(g.bounds[0], 6), round(g.bounds[1], 6)))
         for g in parts:
             pt = g.representative_point()
-            out.append(Island(len(out) + 1, k, float(g.area), float(pt.x), float(pt.y), g))
-    return out
+            out.append(Island(len(out) + 1, k, float(g.area), float(pt.x), float(pt.y), g, len(out)))
+    return _joined_by_vias(board, out)
+
+
+def _joined_by_vias(board: Board, islands: list[Island]) -> list[Island]:
+    """``islands`` with ``node`` set: islands that one plated hole on no net
+    touches (its pad on each layer of its span) are one conductor, named by
+    the first of them (union-find)."""
+    v = board.vias
+    if not islands or not len(v):
+        return islands
+    parent = list(range(len(islands)))
+
+    def root(i: int) -> int:
+        while parent[i] != i:
+            parent[i] = parent[parent[i]]
+            i = parent[i]
+        return i
+
+    polys = np.array([isl.polygon for isl in islands], dtype=object)
+    layer = np.array([isl.layer for isl in islands])
+    tree = shapely.STRtree(polys)
+    free = np.flatnonzero(v.net == NO_NET)
+    if free.size:
+        pads = shapely.buffer(shapely.points(v.x[free], v.y[free]), np.maximum(v.pad[free], v.drill[free]) / 2)
+        hole, isl = tree.query(pads, predicate="intersects")
+        ok = (layer[isl] >= v.first_layer[free][hole]) & (layer[isl] <= v.last_layer[free][hole])
+        hole, isl = hole[ok], isl[ok]
+        for h in np.unique(hole).tolist():
+            members = isl[hole == h].tolist()
+            for m in members[1:]:
+                a, b = root(members[0]), root(m)
+                if a != b:
+                    parent[max(a, b)] = min(a, b)
+    return [Island(i.id, i.layer, i.area_mm2, i.x, i.y, i.polygon, root(k)) for k, i in enumerate(islands)]
+
+
+def by_conductor(links: "IslandLinks", islands: list[Island]) -> "IslandLinks":
+    """``links`` with islands of one conductor (``Island.node``) merged: C to
+    each net summed (the strongest piece kept), C to ground summed;
+    ``island`` then names the conductor's first island."""
+    node = np.array([i.node for i in islands], np.int64)
+    ground = np.bincount(node, weights=links.ground_pf, minlength=len(islands))
+    if links.island.size == 0:
+        return IslandLinks(links.island, links.net, links.piece, links.c_pf, ground)
+    owner = node[links.island]
+    n_nets = int(links.net.max()) + 1
+    key = owner * n_nets + links.net
+    order = np.lexsort((-links.c_pf, key))
+    uniq, first, inv = np.unique(key[order], return_index=True, return_inverse=True)
+    total = np.bincount(inv, weights=links.c_pf[order])
+    return IslandLinks(uniq // n_nets, uniq % n_nets, links.piece[order][first], total, ground)
 
 
 def _plane_neighbours(stackup, k: int) -> list[int]:

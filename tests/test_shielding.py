@@ -341,3 +341,37 @@ def test_bad_guard_stitch_fraction_names_the_key(tmp_path):
     with pytest.raises(RuleError) as info:
         load_ruleset(path)
     assert str(info.value) == f"{path}: settings.guard_stitch_fraction: must be > 0 and <= 1, got 2"
+
+
+def joined_islands_board(via=True):
+    """CLK (L1, y = 0) over island A on L2 (x 0..25, |y| <= 0.5); island B
+    on L3 (x 0..25, y 1..2) 0.425 mm from SENSE (L3, y = 2.5, edge at
+    2.425); a plated hole on no net at (12, 0.75), pad 0.6 mm (y 0.45..1.05),
+    touches A and B. A alone reaches only CLK (SENSE's centreline is 2.5 mm
+    from A, beyond the 0.2 mm fringe of L2/L3), B alone only SENSE (CLK is
+    1 mm from B, beyond the 0.435 mm fringe of L1/L3): only the joined
+    conductor relays."""
+    return read_board_dict({
+        "format": "couplint-board", "version": 1, "name": "t", "stackup": stackup(("signal",) * 3),
+        "nets": [{"name": "CLK"}, {"name": "SENSE"}],
+        "tracks": [{"layer": "L1", "net": "CLK", "width": W, "points": [[0, 0], [25, 0]]},
+                   {"layer": "L3", "net": "SENSE", "width": W, "points": [[0, 2.5], [25, 2.5]]}],
+        "regions": [{"layer": "L2", "outline": [[0, -0.5], [25, -0.5], [25, 0.5], [0, 0.5]]},
+                    {"layer": "L3", "outline": [[0, 1], [25, 1], [25, 2], [0, 2]]}],
+        "vias": [{"at": [12, 0.75], "drill": 0.3, "pad": 0.6, "from": "L1", "to": "L3"}] if via else [],
+        "outline": [[-20, -20], [45, -20], [45, 20], [-20, 20]],
+    }, "t.json")
+
+
+def test_islands_joined_by_a_via_relay_as_one_conductor():
+    from checker.islands import by_conductor, find_islands, island_links
+
+    apart = analyse(joined_islands_board(via=False), default_ruleset())
+    assert not np.any(apart.couplings.kind == RELAY)
+    a = analyse(joined_islands_board(), default_ruleset())
+    assert [i.node for i in a.islands] == [0, 0]
+    (row,) = np.flatnonzero(a.couplings.kind == RELAY)
+    links = by_conductor(island_links(a.board, a.reference, find_islands(a.board), a.board.pieces, 1.0, []),
+                         a.islands)
+    c_clk, c_sense = links.c_pf  # the joined conductor's C to CLK and to SENSE (no plane: no C to ground)
+    assert a.couplings.c12_pf[row] == pytest.approx(c_clk * c_sense / (c_clk + c_sense), rel=1e-9)

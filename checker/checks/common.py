@@ -104,8 +104,11 @@ def path_text(ctx, rows: np.ndarray) -> str | None:
             ref = ctx.reference
             by = ", ".join(f"{ctx.layer_name(k)}" + (f" ({'+'.join(ref.nets[k])})" if ref and ref.nets[k] else "")
                            for k in layers)
+            open_mm = length - shielded
+            open_area = float((c.overlap_mm2[bs] * c.open_fraction[bs]).sum())
             parts.append(f"{shielded:.2f} of {length:.2f} mm of the broadside run shielded by reference copper on "
-                         f"{by}; the rest lies over voids or gaps in it")
+                         f"{by} ({shielded / length * 100:.0f} %); the open {open_mm:.2f} mm (overlapping copper "
+                         f"{open_area:.3g} mm^2) lies over voids or gaps in it")
     ed = rows[(c.kind[rows] == EDGE) & (c.guard[rows] >= 0)]
     if ed.size:
         g = ctx.guards
@@ -134,7 +137,10 @@ def path_text(ctx, rows: np.ndarray) -> str | None:
         for s in np.unique(c.island[rl]).tolist():
             isl = ctx.islands[s]
             pf = float(c.c12_pf[rl][c.island[rl] == s].sum())
+            joined = [i for i in ctx.islands if i.node == s and i is not isl]
+            more = (f", joined by a plated hole to island{'s' if len(joined) > 1 else ''} "
+                    + ", ".join(f"{i.id} on {ctx.layer_name(i.layer)}" for i in joined)) if joined else ""
             parts.append(f"{pf:.3g} pF relayed through floating copper (island {isl.id} on "
                          f"{ctx.layer_name(isl.layer)} at {isl.x:.2f}, {isl.y:.2f}, {isl.area_mm2:.3g} mm^2, "
-                         "on no net)")
+                         f"on no net{more})")
     return "; ".join(parts) or None
