@@ -348,3 +348,14 @@ def test_guard_stitched_is_credited_and_one_end_is_reported(door):
     assert not [f for f in stitched.findings if f.kind == "guard-grounding"]
     (f,) = [f for f in one_end.findings if f.kind == "guard-grounding"]
     assert (f.aggressor, f.victim, f.value, f.limit) == (CLOCK, SENSOR, pytest.approx(25.0, abs=1e-6), 0.0)
+
+
+@pytest.mark.parametrize("door", [0, 1], ids=["json", "fab"])
+def test_crossing_angle_counts_only_the_open_stretch(door):
+    """The 25 mm run is parallel (0 deg) and overlapped, but only the 10 mm
+    over the void is unshielded: the crossing-angle rule measures 10 mm
+    (hand calculation in the board's description), not 25."""
+    (f,) = [f for f in results("void_under_run")[door].findings if f.kind == "crossing-angle"]
+    assert f.value == pytest.approx(10.0, abs=1e-6)
+    (g,) = [f for f in results("empty_layer")[door].findings if f.kind == "crossing-angle"]
+    assert g.value == pytest.approx(25.0, abs=1e-6)

@@ -1,8 +1,11 @@
 """crossing-angle: traces on neighbouring layers must cross, not run together.
 
-Where an aggressor and a victim overlap in plan on two neighbouring copper
-layers (no plane between them), the overlapped run may be at most
-``max_length`` long unless the two cross at ``min_angle`` or more. Orthogonal
+Where an aggressor and a victim overlap in plan on two copper layers with
+no reference copper between them (neighbours, or farther apart over a void
+or an empty layer), the overlapped run may be at most ``max_length`` long
+unless the two cross at ``min_angle`` or more. Only the unshielded part of a
+run counts: where reference copper of the layers between covers the run,
+it does not (``docs/shielding.md``). Orthogonal
 routing on adjacent signal layers is common practice; it keeps the overlap
 area, and so the broadside mutual capacitance, to a crossing's footprint.
 
@@ -41,11 +44,12 @@ def check(rule, ctx):
     min_angle, max_length = rule.options["min_angle"], rule.options["max_length"]
     mask = (c.kind == BROADSIDE) & (c.overlap_mm2 > 0) & (c.angle_deg < min_angle)
     rows, aggressor = applicable_rows(ctx, rule, mask)
+    open_mm = c.length_mm * c.open_fraction  # the unshielded part of each row
     for run in iter_runs(ctx, rows, aggressor):
-        length = float(c.length_mm[run.rows].sum())
+        length = float(open_mm[run.rows].sum())
         if length <= max_length:
             continue
-        worst = int(run.rows[np.argmax(c.length_mm[run.rows])])
+        worst = int(run.rows[np.argmax(open_mm[run.rows])])
         bbox, at, layers = run_place(ctx, run.rows, worst)
         angle = float(np.average(c.angle_deg[run.rows], weights=c.length_mm[run.rows]))
         yield make_finding(
@@ -53,6 +57,6 @@ def check(rule, ctx):
             value=length, limit=max_length, unit="mm", excess=ratio_over(length, max_length),
             message=(f"{ctx.net_name(run.aggressor)} overlaps {ctx.net_name(run.victim)} for {length:.2f} mm "
                      f"on {'/'.join(layers)} at {angle:.0f} deg (allowed {max_length:g} mm below {min_angle:g} deg)"),
-            length_mm=length, area_mm2=float(c.overlap_mm2[run.rows].sum()),
+            length_mm=length, area_mm2=float((c.overlap_mm2 * c.open_fraction)[run.rows].sum()),
             c12_pf=float(c.c12_pf[run.rows].sum()),
         )
