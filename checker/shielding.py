@@ -317,13 +317,19 @@ def search_band_mm(stackup: Stackup, i: int, j: int, broadside_search_mm: float)
 
 
 def exposed_pieces(pieces: Pieces, index: np.ndarray, space, grow_mm: float) -> np.ndarray:
-    """Of the pieces at ``index``, those whose rectangle grown by
-    ``grow_mm`` meets the open space ``space`` (``ReferenceCopper.open_space``:
-    tiles and their STRtree; None: everything is open)."""
+    """Of the pieces at ``index``, those whose bounding box grown by
+    ``grow_mm`` plus half their width (which holds their rectangle grown by
+    ``grow_mm``: a superset, so more pieces count as exposed, never fewer)
+    meets the open space ``space`` (``ReferenceCopper.open_space``: tiles and
+    their STRtree; None: everything is open)."""
     if space is None or index.size == 0:
         return index
     tiles, tree = space
-    hit, _ = tree.query(piece_polygons(pieces, index, grow_mm), predicate="intersects")
+    g = grow_mm + pieces.width[index] / 2
+    x1, x2, y1, y2 = pieces.x1[index], pieces.x2[index], pieces.y1[index], pieces.y2[index]
+    boxes = shapely.box(np.minimum(x1, x2) - g, np.minimum(y1, y2) - g, np.maximum(x1, x2) + g,
+                        np.maximum(y1, y2) + g)
+    hit, _ = tree.query(boxes, predicate="intersects")
     return index[np.unique(hit)]
 
 
