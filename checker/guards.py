@@ -149,7 +149,7 @@ class GuardedRows:
 
 def _gap_strips(p: Pieces, t) -> np.ndarray:
     """The band between the two traces of each edge row, over its coupled length."""
-    a, b = t.a.astype(np.int64), t.b.astype(np.int64)
+    a = t.a.astype(np.int64)
     dx, dy = p.x2[a] - p.x1[a], p.y2[a] - p.y1[a]
     n = np.hypot(dx, dy)
     n = np.where(n > 0, n, 1.0)

@@ -461,33 +461,3 @@ def _open_length(p: Pieces, t, rows: np.ndarray, left: np.ndarray, left_row: np.
     add = np.maximum(hi_s - np.maximum(lo_s, before), 0.0)
     np.add.at(out, owner, add)
     return out
-    keep = shapely.area(parts) > SLIVER_MM2
-    parts, owner = parts[keep], owner[keep]
-    if parts.size == 0:
-        return out
-    ux, uy = _direction(p, t.a[rows].astype(np.int64))
-    coords, ring_of = shapely.get_coordinates(parts, return_index=True)
-    row_of = owner[ring_of]
-    proj = (coords[:, 0] - t.x[rows][row_of]) * ux[row_of] + (coords[:, 1] - t.y[rows][row_of]) * uy[row_of]
-    lo = np.full(parts.size, np.inf)
-    hi = np.full(parts.size, -np.inf)
-    np.minimum.at(lo, ring_of, proj)
-    np.maximum.at(hi, ring_of, proj)
-    half = t.length_mm[rows] / 2
-    lo = np.maximum(lo, -half[owner])
-    hi = np.minimum(hi, half[owner])
-    order = np.lexsort((lo, owner))
-    for k in np.unique(owner):
-        sel = order[owner[order] == k]
-        total, end = 0.0, -np.inf
-        for a, b in zip(lo[sel], hi[sel]):
-            if b <= a:
-                continue
-            if a > end:
-                total += b - a
-                end = b
-            elif b > end:
-                total += b - end
-                end = b
-        out[k] = total
-    return out

@@ -499,7 +499,7 @@ def _context(analysis, shown: list[Finding], frame: _Frame) -> tuple[list[str], 
     islands that relay a net pair's coupling, guard traces in the gap of an
     edge-coupled pair and their stitching vias. Returns the SVG elements
     (board coordinates, inside the flipped group) and the kinds drawn."""
-    from ..analysis import BROADSIDE, RELAY
+    from ..analysis import BROADSIDE
 
     c = analysis.couplings
     board = analysis.board
