@@ -16,12 +16,12 @@ import numpy as np
 from .finder.pairs import PairTable, find_broadside, find_edge
 from .finder.runs import run_labels
 from .guards import (MAX_THIRD_NET_SOLVES, GuardedRows, Guards, concat_guards, find_guard_pieces, grounding,
-                     guard_factors)
+                     guard_chains, guard_factors)
 from .islands import Island, by_conductor, find_islands, island_links, relays
 from .model import NO_NET, Board, Pieces
 from .physics import crosstalk
-from .physics.broadside import (FAR_OFFSET_STEP, FAR_TABLE_RESOLUTION, FAR_WIDTH_KNOTS, BroadsideModel,
-                                broadside_c12_pf)
+from .physics.broadside import (FAR_OFFSET_STEP, FAR_TABLE_MARGIN, FAR_TABLE_RESOLUTION, FAR_WIDTH_KNOTS,
+                                BroadsideModel, broadside_c12_pf)
 from .physics.accurate import ExactBroadside, ExactEdge, ExactGround
 from .physics.edge import EdgeModel, GroundModel
 from .returnpath import ReturnGaps, return_gaps
@@ -334,7 +334,10 @@ def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=No
             band = search_band_mm(stackup, u, l, s.broadside_search_mm)
             shield = ref.between(u, l) if s.planes_shield else None
             space = ref.open_space(u, l) if shield is not None else None
-            sub = _exposed(signal, u, l, shield, space, band + separation_mm(stackup, u, l))
+            # a pair's window reaches the band, the vertical distance and the other trace's width
+            # beyond a piece: grow by all of them, so no pair the window rule would open is dropped
+            widest = float(signal.width[(signal.layer == u) | (signal.layer == l)].max())
+            sub = _exposed(signal, u, l, shield, space, band + separation_mm(stackup, u, l) + widest)
             if sub is None:
                 if shield is not None:
                     covered.append(f"{stackup.layers[u].name}/{stackup.layers[l].name}")
@@ -367,17 +370,18 @@ def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=No
     examined = sum(t.candidates for _, t, *_ in tables)
     couplings = _assemble(board, tables, ruleset.pairs)
     if islands is not None:
-        couplings = _with_relays(board, couplings, ref, signal, islands, s.edge_search_mm, notes, ruleset.pairs)
+        couplings = _with_relays(board, couplings, ref, signal, islands, s.edge_search_mm, notes, ruleset.pairs,
+                                 s.planes_shield)
     return couplings, searched, examined
 
 
 def _with_relays(board: Board, c: Couplings, ref: ReferenceCopper, signal: Pieces, islands: list[Island],
-                 edge_search_mm: float, notes: list[str], pairs) -> Couplings:
+                 edge_search_mm: float, notes: list[str], pairs, planes_shield: bool = True) -> Couplings:
     """``c`` with one RELAY row per pair of nets a floating island couples
     (``checker.islands``)."""
     if not islands:
         return c
-    links = by_conductor(island_links(board, ref, islands, signal, edge_search_mm, notes), islands)
+    links = by_conductor(island_links(board, ref, islands, signal, edge_search_mm, notes, planes_shield), islands)
     r = relays(links, len(islands), notes)
     conductors = len({i.node for i in islands})
     notes.append(f"floating copper: {len(islands)} island(s) on no net ({conductors} conductor(s): islands joined "
@@ -417,16 +421,20 @@ def _guard_edge_rows(board: Board, ref: ReferenceCopper, ground: np.ndarray, t: 
     factor = np.ones(len(t))
     gap_net = np.full(len(t), NO_NET, np.int64)
     if has.size:
-        src = p.source[piece[has]].astype(np.int64)
-        sources, inv = np.unique(src, return_inverse=True)
+        chain = guard_chains(board, ground, piece[has])
+        labels, inv = np.unique(chain, return_inverse=True)
         f = np.fmax(frequency_hz[p.net[t.a[has]]], frequency_hz[p.net[t.b[has]]])
-        fastest = np.full(sources.size, np.nan)
+        fastest = np.full(labels.size, np.nan)
         np.fmax.at(fastest, inv, f)
-        table = grounding(board, ref.is_reference, ref.cover, sources, fastest, stitch_fraction)
+        members = guard_chains(board, ground, np.flatnonzero(ground & (p.layer == layer) & (p.length > 0)))
+        refs = np.flatnonzero(ground & (p.layer == layer) & (p.length > 0))
+        chains = [refs[members == lab] for lab in labels.tolist()]
+        table = grounding(board, ref.is_reference, chains, fastest, stitch_fraction)
         guards.append(table)
         index[has] = offset + inv
         credited[has] = np.array([table.state[k] == "stitched" for k in inv.tolist()], bool)
         factor = guard_factors(board, t, layer, piece, covered, credited, notes)
+        credited &= factor < 1.0  # a guard whose solve was skipped is not credited
         gap_net = np.where(credited, p.net[np.maximum(piece, 0)], NO_NET).astype(np.int64)
     # a driven third net in the gap (no resistance given: not a high-impedance node), where no guard counts
     if driven is not None and len(t):
@@ -488,6 +496,8 @@ def _broadside_c12(board: Board, t: PairTable, upper: int, lower: int, search_mm
         model = BroadsideModel(board.stackup, upper, lower, wa, wb,
                                max_offset_mm=search_mm + float(max(wa.max(), wb.max())))
     c12 = broadside_c12_pf(model, wa, wb, t.offset_mm, t.length_mm, t.angle_deg, t.parallel)
+    if lower - upper > 1 and not accurate:
+        c12 = c12 * FAR_TABLE_MARGIN  # the coarse table can read a little low between its knots
     models[(BROADSIDE, upper, lower)] = model
     if accurate:
         notes.append(_accurate_note(f"broadside {board.stackup.layers[upper].name}/"
@@ -682,7 +692,8 @@ def analyse(board: Board, ruleset: RuleSet, progress=None, accurate: bool = Fals
     guard_tables: list = []
     couplings, layer_pairs, examined = find_couplings(board, ruleset, notes, progress, accurate, models, ref,
                                                       islands, electrical.frequency_hz, guard_tables,
-                                                      np.isnan(electrical.resistance_ohm))
+                                                      np.isfinite(electrical.frequency_hz)
+                                                      & np.isnan(electrical.resistance_ohm))
     guards = concat_guards(guard_tables)
     if progress is not None:
         progress("capacitance to ground and noise")

@@ -17,11 +17,13 @@ length along which it runs.
 
 Grounded or not
 ---------------
-A guard is one track (one ``source`` of the board). Its *grounding points*
-are the places along it where a plated hole of a reference net whose span
-includes the layer touches it (hole pad within w/2 + pad/2 of the
-centreline), and each end that lies on other reference copper of the layer
-(a pour or plane shape). It is:
+A guard is one chain of reference pieces on the layer that touch one
+another (a guard drawn as several strokes is one guard). Its *grounding
+points* are the places along it where a plated hole of a reference net
+whose span includes the layer touches it (hole pad within w/2 + pad/2 of
+the centreline), and each end that lies on a reference pour or plane shape
+(a region) of the layer; other reference traces it touches do not count
+(they may float themselves). It is:
 
 * ``floating``: no grounding point;
 * ``one end``: grounded only near one end (every grounding point within
@@ -39,8 +41,8 @@ centreline), and each end that lies on other reference copper of the layer
 Only a ``stitched`` guard is credited in the physics.
 
 A trace of a third signal net in the gap (found the same way) is a
-conductor held by its driver: where its net class gives no ``resistance``
-(it is not a high-impedance victim node) and no credited guard is there, it
+conductor held by its driver: where its net class marks it as driven (an
+aggressor frequency, no ``resistance``) and no credited guard is there, it
 is credited the same way, as a conductor at AC ground, on the rows that
 feed a noise estimate (one net with an aggressor frequency, the other a
 victim node with a resistance), at most :data:`MAX_THIRD_NET_SOLVES`
@@ -197,11 +199,61 @@ def find_guard_pieces(board: Board, is_ref_piece: np.ndarray, t, layer: int,
     return best, share
 
 
-def grounding(board: Board, is_ref_net: np.ndarray, ref_cover, sources: np.ndarray, frequency_hz: np.ndarray,
+def guard_chains(board: Board, is_ref_piece: np.ndarray, pieces: np.ndarray) -> np.ndarray:
+    """For each reference piece in ``pieces``: the label (its lowest piece
+    index) of the chain it belongs to, the reference pieces of its layer
+    that touch one another end to end or side by side (a guard drawn as
+    several strokes is one guard)."""
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components
+
+    p = board.pieces
+    out = np.empty(pieces.size, np.int64)
+    for k in np.unique(p.layer[pieces]).tolist():
+        refs = np.flatnonzero(is_ref_piece & (p.layer == k) & (p.length > 0))
+        polys = piece_polygons(p, refs, 1e-3)
+        i, j = shapely.STRtree(polys).query(polys, predicate="intersects")
+        graph = coo_matrix((np.ones(i.size), (i, j)), shape=(refs.size, refs.size))
+        _, comp = connected_components(graph, directed=False)
+        first = np.full(comp.max() + 1, np.iinfo(np.int64).max)
+        np.minimum.at(first, comp, refs)
+        label = dict(zip(refs.tolist(), first[comp].tolist()))
+        on = np.flatnonzero(p.layer[pieces] == k)
+        out[on] = [label[int(q)] for q in pieces[on]]
+    return out
+
+
+_WORSE = {"stitched": 0, "sparse": 1, "one end": 2, "floating": 3}
+
+
+def _ground_points(line, k: int, w: float, vias, via_ref: np.ndarray, pours) -> list[float]:
+    """Places (distance along ``line``) where a reference via of layer ``k``
+    touches it, and each end that lies on a reference pour."""
+    at: list[float] = []
+    if len(vias):
+        near = np.flatnonzero(via_ref & (vias.first_layer <= k) & (vias.last_layer >= k))
+        if near.size:
+            pts = shapely.points(vias.x[near], vias.y[near])
+            on = shapely.distance(line, pts) <= w / 2 + vias.pad[near] / 2
+            at.extend(shapely.line_locate_point(line, pts[on]).tolist())
+    if pours is not None:
+        coords = np.asarray(line.coords)
+        for end, s in ((coords[0], 0.0), (coords[-1], float(line.length))):
+            touch = shapely.intersection(pours, shapely.Point(end).buffer(w / 2 + 2e-3))
+            if shapely.area(touch) > 1e-4:
+                at.append(s)
+    return sorted(set(round(a, 9) for a in at))
+
+
+def grounding(board: Board, is_ref_net: np.ndarray, chains: list[np.ndarray], frequency_hz: np.ndarray,
               stitch_fraction: float) -> Guards:
-    """Grounding state of each guard track ``sources`` (module docstring);
-    ``frequency_hz`` per guard (NaN: unknown), ``ref_cover`` the reference
-    copper per layer (``ReferenceCopper.cover``)."""
+    """Grounding state of each guard (module docstring): ``chains[g]`` the
+    reference pieces of guard g (one chain, ``guard_chains``),
+    ``frequency_hz[g]`` the faster neighbouring net's frequency (NaN:
+    unknown). Only reference vias and reference pours (regions) ground a
+    guard: other reference traces it touches do not (they may float
+    themselves). A chain that branches is judged part by part, the worst
+    part deciding."""
     p = board.pieces
     v = board.vias
     st = board.stackup
@@ -212,53 +264,47 @@ def grounding(board: Board, is_ref_net: np.ndarray, ref_cover, sources: np.ndarr
     if len(v):
         has = v.net != NO_NET
         via_ref[has] = is_ref_net[v.net[has].astype(np.int64)]
-    for source, f in zip(sources.tolist(), frequency_hz.tolist()):
-        mine = np.flatnonzero(p.source == source)
-        mine = mine[np.argsort(p.ordinal[mine], kind="stable")]
+    pours: dict[int, object] = {}
+    for mine, f in zip(chains, frequency_hz.tolist()):
+        mine = mine[np.lexsort((p.ordinal[mine], p.source[mine]))]
         k = int(p.layer[mine[0]])
-        coords = np.concatenate([np.stack([p.x1[mine], p.y1[mine]], 1), [[p.x2[mine[-1]], p.y2[mine[-1]]]]])
-        line = shapely.LineString(coords)
-        total = float(line.length)
+        if k not in pours:
+            shapes = [r.polygon for r in board.regions if r.layer == k and r.net != NO_NET and is_ref_net[r.net]]
+            pours[k] = shapely.union_all(shapes) if shapes else None
+        lines = shapely.linestrings(np.stack([np.stack([p.x1[mine], p.x2[mine]], 1),
+                                              np.stack([p.y1[mine], p.y2[mine]], 1)], 2))
+        merged = shapely.line_merge(shapely.union_all(lines))
+        parts = [g for g in shapely.get_parts(merged) if g.length > 0]
         w = float(p.width[mine].max())
-        at: list[float] = []
-        if len(v):
-            near = np.flatnonzero(via_ref & (v.first_layer <= k) & (v.last_layer >= k))
-            if near.size:
-                pts = shapely.points(v.x[near], v.y[near])
-                d = shapely.distance(line, pts)
-                on = d <= w / 2 + v.pad[near] / 2
-                at.extend(shapely.line_locate_point(line, pts[on]).tolist())
-        # an end lying on other reference copper of the layer (a pour) is grounded there
-        cover = ref_cover[k]
-        if not shapely.is_empty(cover):
-            others = shapely.difference(cover, shapely.union_all(piece_polygons(p, mine, 2e-4)))
-            for end, s in ((coords[0], 0.0), (coords[-1], total)):
-                touch = shapely.intersection(others, shapely.Point(end).buffer(w / 2 + 2e-3))
-                if shapely.area(touch) > 1e-4:
-                    at.append(s)
-        at = sorted(set(round(a, 9) for a in at))
-        start = bool(at) and at[0] <= END_ZONE_MM
-        end = bool(at) and at[-1] >= total - END_ZONE_MM
-        if not at:
-            state, gap, mid = "floating", total, total / 2
-        elif not (start and end):
-            # the stretch beyond the last grounding point, out to the free end
-            gap, mid = (total - at[-1], (total + at[-1]) / 2) if start else (at[0], at[0] / 2)
-            state = "one end"
-        else:
-            pts = np.array([0.0] + at + [total])
-            gaps = np.diff(pts)
-            j = int(np.argmax(gaps))
-            gap, mid = float(gaps[j]), float(pts[j] + gaps[j] / 2)
-            state = "stitched"
         er = max((d.er for d in st.dielectrics[max(k - 1, 0):k + 1]), default=1.0)
         limit = stitch_fraction * C0 / (f * np.sqrt(er)) * 1e3 if np.isfinite(f) and f > 0 else np.inf
-        if state == "stitched" and gap > limit:
-            state = "sparse"
-        xy = line.interpolate(mid)
-        for key, val in (("source", source), ("layer", k), ("net", int(p.net[mine[0]])), ("length_mm", total),
-                         ("state", state), ("max_gap_mm", gap), ("limit_mm", limit), ("x", xy.x), ("y", xy.y),
-                         ("points", len(at))):
+        worst, points, total = None, 0, 0.0
+        for line in parts:
+            length = float(line.length)
+            total += length
+            at = _ground_points(line, k, w, v, via_ref, pours[k])
+            points += len(at)
+            start = bool(at) and at[0] <= END_ZONE_MM
+            end = bool(at) and at[-1] >= length - END_ZONE_MM
+            if not at:
+                state, gap, mid = "floating", length, length / 2
+            elif not (start and end):
+                # the stretch beyond the last grounding point, out to the free end
+                gap, mid = (length - at[-1], (length + at[-1]) / 2) if start else (at[0], at[0] / 2)
+                state = "one end"
+            else:
+                pts = np.array([0.0] + at + [length])
+                gaps = np.diff(pts)
+                j = int(np.argmax(gaps))
+                gap, mid = float(gaps[j]), float(pts[j] + gaps[j] / 2)
+                state = "sparse" if gap > limit else "stitched"
+            key = (_WORSE[state], gap)
+            if worst is None or key > worst[0]:
+                worst = (key, state, gap, line.interpolate(mid))
+        _, state, gap, xy = worst
+        for key, val in (("source", int(p.source[mine[0]])), ("layer", k), ("net", int(p.net[mine[0]])),
+                         ("length_mm", total), ("state", state), ("max_gap_mm", gap), ("limit_mm", limit),
+                         ("x", xy.x), ("y", xy.y), ("points", points)):
             cols[key].append(val)
     if not cols["source"]:
         return out
@@ -309,7 +355,10 @@ def guard_factors(board: Board, t, layer: int, guard_piece: np.ndarray, covered:
     with_g = [guard_section(st, layer, *(max(v, GRID_MM) for v in u[:4]), max(u[4], 0.0)) for u in uniq]
     without = [edge_section(st, layer, max(u[0], GRID_MM), max(u[1], GRID_MM), max(u[2], GRID_MM)) for u in uniq]
     solved, _ = solve_shared(with_g + without, GUARD_RESOLUTION, richardson=True)
-    ratio = np.array([min(1.0, RATIO_MARGIN * s.c12 / o.c12) if o.c12 > 0 else 1.0
+    def c12(r) -> float:
+        return float(-r.extrapolated[0, 1]) if r.extrapolated is not None else r.c12
+
+    ratio = np.array([min(1.0, RATIO_MARGIN * c12(s) / c12(o)) if c12(o) > 0 else 1.0
                       for s, o in zip(solved[:len(uniq)], solved[len(uniq):])])
     factor[rows] = 1.0 - covered[rows] + covered[rows] * ratio[inv.ravel()]
     return factor

@@ -196,9 +196,10 @@ def _plane_neighbours(stackup, k: int) -> list[int]:
 
 
 def island_links(board: Board, ref: ReferenceCopper, islands: list[Island], signal: Pieces,
-                 edge_search_mm: float, notes: list[str]) -> IslandLinks:
+                 edge_search_mm: float, notes: list[str], planes_shield: bool = True) -> IslandLinks:
     """C from every island to every net near it, and to ground (module
-    docstring). ``signal``: the board's pieces with reference-net and
+    docstring; ``planes_shield=False``: reference copper between does not
+    shield, as for broadside runs). ``signal``: the board's pieces with reference-net and
     unconnected copper taken off their nets (``NO_NET``)."""
     st = board.stackup
     live = np.flatnonzero((signal.net != NO_NET) & (signal.length > 0))
@@ -233,7 +234,7 @@ def island_links(board: Board, ref: ReferenceCopper, islands: list[Island], sign
             else:
                 d = separation_mm(st, int(i), k)
                 zone = shapely.buffer(isl.polygon, d)
-                shield = ref.between(int(i), k) if ref is not None else None
+                shield = ref.between(int(i), k) if ref is not None and planes_shield else None
                 if shield is not None:
                     zone = shapely.difference(zone, shield)
                 if shapely.is_empty(zone):

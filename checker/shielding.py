@@ -32,7 +32,9 @@ Two pieces on layers i < j couple through whatever lies between. For a
 parallel pair the *coupled window* is the rectangle centred on the pair's
 spot, along the pair, as long as the coupled run and as wide as both traces
 plus a fringe margin ``m`` (the vertical distance between the two layers)
-on either side: the field lines that link the two traces run inside it.
+on either side, widened by the sideways drift of two pieces that are not
+exactly parallel (half the run length x tan of their angle): the field
+lines that link the two traces run inside it.
 A stretch of the run is *shielded* where reference copper of the layers
 between covers the whole width of the window; the rest is *unshielded*:
 
@@ -405,7 +407,9 @@ def _windows(p: Pieces, t, m: float) -> np.ndarray:
         r = np.flatnonzero(par)
         ux, uy = _direction(p, a[r])
         half_l = t.length_mm[r] / 2
-        half_w = np.abs(t.offset_mm[r]) / 2 + np.maximum(p.width[a[r]], p.width[b[r]]) / 2 + m
+        # pieces up to parallel_angle apart drift sideways along the run: widen by that drift
+        drift = half_l * np.tan(np.radians(np.minimum(t.angle_deg[r], 89.0)))
+        half_w = np.abs(t.offset_mm[r]) / 2 + np.maximum(p.width[a[r]], p.width[b[r]]) / 2 + m + drift
         cx, cy = t.x[r], t.y[r]
         lx, ly, nx, ny = ux * half_l, uy * half_l, -uy * half_w, ux * half_w
         xs = np.stack([cx - lx + nx, cx + lx + nx, cx + lx - nx, cx - lx - nx, cx - lx + nx], axis=1)

@@ -131,7 +131,7 @@ def test_overlay_draws_guard_and_stitching_vias(tmp_path):
     assert svg.count('data-role="stitch"') == 1  # the one via at x = 0
 
 
-def third_net_board(net="DATA"):
+def third_net_board(net="CLK_AUX"):
     """As ``board`` but the trace in the gap (y = 0.4, 0.2 mm) is a signal net."""
     tracks = [{"layer": "L1", "net": "CLK", "width": 0.15, "points": [[0, 0], [25, 0]]},
               {"layer": "L1", "net": "SENSE", "width": 0.15, "points": [[0, 0.8], [25, 0.8]]},
@@ -143,16 +143,23 @@ def third_net_board(net="DATA"):
 
 
 def test_driven_third_net_in_the_gap_shields_like_a_grounded_conductor():
-    """A trace of a net with no resistance in its class (driven: held by its
-    driver) in the gap is a conductor at AC ground in the cross-section: the
-    same reduction as a stitched guard of its width and place."""
+    """A trace of a driven net (its class gives an aggressor frequency and no
+    resistance: CLK_AUX matches the default set's clocks) in the gap is a
+    conductor at AC ground in the cross-section: the same reduction as a
+    stitched guard of its width and place."""
     a = analyse(third_net_board(), default_ruleset())
     c = a.couplings
     rows = np.flatnonzero((c.kind == EDGE) & (c.net_a == a.board.net_index()["CLK"])
                           & (c.net_b == a.board.net_index()["SENSE"]))
     stitched = analyse(board([0, 5, 10, 15, 20, 25]), default_ruleset())
     assert c.guard_factor[rows].tolist() == pytest.approx(stitched.couplings.guard_factor[edge_row(stitched)])
-    assert c.gap_net[rows].tolist() == [a.board.net_index()["DATA"]]
+    assert c.gap_net[rows].tolist() == [a.board.net_index()["CLK_AUX"]]
+    # a net in no class (its impedance unknown) is not credited
+    plain = analyse(third_net_board("DATA"), default_ruleset())
+    pc = plain.couplings
+    idx = plain.board.net_index()
+    rows = np.flatnonzero((pc.kind == EDGE) & (pc.net_a == idx["CLK"]) & (pc.net_b == idx["SENSE"]))
+    assert pc.guard_factor[rows].tolist() == [1.0]
 
 
 def test_high_impedance_third_net_is_not_credited():
@@ -163,3 +170,29 @@ def test_high_impedance_third_net_is_not_credited():
     idx = a.board.net_index()
     rows = np.flatnonzero((c.kind == EDGE) & (c.net_a == idx["CLK"]) & (c.net_b == idx["SENSE"]))
     assert c.guard_factor[rows].tolist() == [1.0]
+
+
+def strokes_board(cuts, vias):
+    """``board`` with the guard drawn as several strokes joined end to end
+    at x = ``cuts`` (as many exports draw it)."""
+    xs = [0, *cuts, 25]
+    tracks = [{"layer": "L1", "net": "CLK", "width": 0.15, "points": [[0, 0], [25, 0]]},
+              {"layer": "L1", "net": "SENSE", "width": 0.15, "points": [[0, 0.8], [25, 0.8]]}]
+    tracks += [{"layer": "L1", "net": "GND", "width": 0.2, "points": [[a, 0.4], [b, 0.4]]} for a, b in zip(xs, xs[1:])]
+    return read_board_dict({
+        "format": "couplint-board", "version": 1, "name": "g", "stackup": STACKUP,
+        "nets": [{"name": "CLK"}, {"name": "SENSE"}, {"name": "GND"}], "tracks": tracks,
+        "regions": [{"layer": "L2", "net": "GND", "outline": OUTLINE}],
+        "vias": [{"at": [x, 0.4], "drill": 0.2, "pad": 0.4, "net": "GND", "from": "L1", "to": "L2"} for x in vias],
+        "outline": OUTLINE}, "g.json")
+
+
+def test_guard_in_several_strokes_is_one_guard_and_its_joints_do_not_ground_it():
+    """Three strokes joined at x = 8 and 17, no via: still floating (its
+    joints touch only itself); two strokes with vias at 0 and 25: grounded
+    at both ends, 25 mm apart (not 12.5)."""
+    a = analyse(strokes_board([8, 17], []), default_ruleset())
+    assert a.guards.state == ["floating"] and a.guards.max_gap_mm[0] == pytest.approx(25.0, abs=1e-9)
+    assert a.couplings.guard_factor[a.couplings.kind == EDGE].tolist() == [1.0]
+    b = analyse(strokes_board([12.5], [0, 25]), default_ruleset())
+    assert b.guards.state == ["stitched"] and b.guards.max_gap_mm[0] == pytest.approx(25.0, abs=1e-9)
