@@ -357,15 +357,17 @@ def split_shielded(board: Board, ref: ReferenceCopper, table, upper: int, lower:
         return ShieldSplit(open_fraction, shield_layer)
     p = board.pieces
     m = separation_mm(board.stackup, upper, lower)
-    windows = _windows(p, table, m)
-    touched = shapely.intersects(shield, windows)
-    rows = np.flatnonzero(touched)
+    tiles, tree = ref.open_space(upper, lower)
+    # a row whose window's bounding box meets no open space lies wholly over reference copper
+    x0, y0, x1, y1 = _window_bounds(p, table, m)
+    rows = np.unique(tree.query(shapely.box(x0, y0, x1, y1), predicate="intersects")[0])
+    open_fraction[:] = 0.0
     if rows.size == 0:
         return ShieldSplit(open_fraction, shield_layer)
-    # what of each touched window lies in the open space (no reference copper between): its pieces
-    tiles, tree = ref.open_space(upper, lower)
-    wi, ti = tree.query(windows[rows], predicate="intersects")
-    pieces = shapely.intersection(windows[rows][wi], tiles[ti])
+    windows = _windows(p, table, m, rows)
+    # what of each remaining window lies in the open space (no reference copper between): its pieces
+    wi, ti = tree.query(windows, predicate="intersects")
+    pieces = shapely.intersection(windows[wi], tiles[ti])
     big = shapely.area(pieces) > SLIVER_MM2
     wi, pieces = wi[big], pieces[big]
     par = np.asarray(table.parallel, bool)[rows]
@@ -384,10 +386,10 @@ def split_shielded(board: Board, ref: ReferenceCopper, table, upper: int, lower:
         c = ref.cover[k]
         if shapely.is_empty(c):
             continue
-        still = rows[shield_layer[rows] < 0]
+        still = np.flatnonzero(shield_layer[rows] < 0)
         if still.size:
             hit = shapely.intersects(c, windows[still])
-            shield_layer[still[hit]] = k
+            shield_layer[rows[still[hit]]] = k
     return ShieldSplit(open_fraction, shield_layer)
 
 
@@ -398,19 +400,47 @@ def _direction(p: Pieces, a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return dx / n, dy / n
 
 
-def _windows(p: Pieces, t, m: float) -> np.ndarray:
-    """The coupled window of each row (module docstring)."""
-    a, b = t.a.astype(np.int64), t.b.astype(np.int64)
-    out = np.empty(len(t), dtype=object)
+def _window_shape(p: Pieces, t, m: float, rows: np.ndarray):
+    """Centre, unit direction, half length and half width of the window of
+    each parallel row at ``rows`` (module docstring)."""
+    a, b = t.a[rows].astype(np.int64), t.b[rows].astype(np.int64)
+    ux, uy = _direction(p, a)
+    half_l = t.length_mm[rows] / 2
+    # pieces up to parallel_angle apart drift sideways along the run: widen by that drift
+    drift = half_l * np.tan(np.radians(np.minimum(t.angle_deg[rows], 89.0)))
+    half_w = np.abs(t.offset_mm[rows]) / 2 + np.maximum(p.width[a], p.width[b]) / 2 + m + drift
+    return t.x[rows], t.y[rows], ux, uy, half_l, half_w
+
+
+def _crossing_half(p: Pieces, t, m: float, rows: np.ndarray) -> np.ndarray:
+    """Half side of the square window of each crossing row at ``rows``."""
+    s = np.maximum(np.sin(np.radians(t.angle_deg[rows])), 1e-3)
+    return (p.width[t.a[rows].astype(np.int64)] + p.width[t.b[rows].astype(np.int64)]) / (2 * s) + m
+
+
+def _window_bounds(p: Pieces, t, m: float) -> tuple[np.ndarray, ...]:
+    """(xmin, ymin, xmax, ymax) of every row's window, without building it."""
     par = np.asarray(t.parallel, bool)
+    hx, hy = np.zeros(len(t)), np.zeros(len(t))
+    r = np.flatnonzero(par)
+    if r.size:
+        _, _, ux, uy, hl, hw = _window_shape(p, t, m, r)
+        hx[r] = np.abs(ux) * hl + np.abs(uy) * hw
+        hy[r] = np.abs(uy) * hl + np.abs(ux) * hw
+    r = np.flatnonzero(~par)
+    if r.size:
+        hx[r] = hy[r] = _crossing_half(p, t, m, r)
+    return t.x - hx, t.y - hy, t.x + hx, t.y + hy
+
+
+def _windows(p: Pieces, t, m: float, rows: np.ndarray | None = None) -> np.ndarray:
+    """The coupled window of each row at ``rows`` (default all; module docstring)."""
+    rows = np.arange(len(t)) if rows is None else np.asarray(rows, np.int64)
+    out = np.empty(rows.size, dtype=object)
+    par = np.asarray(t.parallel, bool)[rows]
     if par.any():
         r = np.flatnonzero(par)
-        ux, uy = _direction(p, a[r])
-        half_l = t.length_mm[r] / 2
-        # pieces up to parallel_angle apart drift sideways along the run: widen by that drift
-        drift = half_l * np.tan(np.radians(np.minimum(t.angle_deg[r], 89.0)))
-        half_w = np.abs(t.offset_mm[r]) / 2 + np.maximum(p.width[a[r]], p.width[b[r]]) / 2 + m + drift
-        cx, cy = t.x[r], t.y[r]
+        cx, cy, ux, uy, half_l, half_w = _window_shape(p, t, m, rows[r])
         lx, ly, nx, ny = ux * half_l, uy * half_l, -uy * half_w, ux * half_w
         xs = np.stack([cx - lx + nx, cx + lx + nx, cx + lx - nx, cx - lx - nx, cx - lx + nx], axis=1)
         ys = np.stack([cy - ly + ny, cy + ly + ny, cy + ly - ny, cy - ly - ny, cy - ly + ny], axis=1)
@@ -420,9 +450,9 @@ def _windows(p: Pieces, t, m: float) -> np.ndarray:
         # rectangles (a parallelogram whose half diagonal is at most
         # (wa + wb) / (2 sin angle)) grown by m: a superset, so it errs open
         r = np.flatnonzero(~par)
-        s = np.maximum(np.sin(np.radians(t.angle_deg[r])), 1e-3)
-        half = (p.width[a[r]] + p.width[b[r]]) / (2 * s) + m
-        out[r] = shapely.box(t.x[r] - half, t.y[r] - half, t.x[r] + half, t.y[r] + half)
+        half = _crossing_half(p, t, m, rows[r])
+        x, y = t.x[rows[r]], t.y[rows[r]]
+        out[r] = shapely.box(x - half, y - half, x + half, y + half)
     return out
 
 
