@@ -75,7 +75,7 @@ from .model import NO_NET, Board, Pieces
 from .physics.broadside import solve_shared
 from .physics.edge import edge_section
 from .physics.fieldsolve import GROUND, Conductor, CrossSection
-from .shielding import piece_polygons
+from .shielding import piece_polygons, valid
 
 #: Default fraction of a wavelength between stitching vias (common practice).
 STITCH_FRACTION = 0.05
@@ -269,7 +269,8 @@ def grounding(board: Board, is_ref_net: np.ndarray, chains: list[np.ndarray], fr
         mine = mine[np.lexsort((p.ordinal[mine], p.source[mine]))]
         k = int(p.layer[mine[0]])
         if k not in pours:
-            shapes = [r.polygon for r in board.regions if r.layer == k and r.net != NO_NET and is_ref_net[r.net]]
+            shapes = [valid(r.polygon) for r in board.regions
+                      if r.layer == k and r.net != NO_NET and is_ref_net[r.net]]
             pours[k] = shapely.union_all(shapes) if shapes else None
         lines = shapely.linestrings(np.stack([np.stack([p.x1[mine], p.x2[mine]], 1),
                                               np.stack([p.y1[mine], p.y2[mine]], 1)], 2))

@@ -57,7 +57,7 @@ from .model import NO_NET, Board, Pieces
 from .physics.broadside import BroadsideModel
 from .physics.edge import EdgeModel
 from .physics.network import relayed_mutual
-from .shielding import ReferenceCopper, piece_polygons
+from .shielding import ReferenceCopper, piece_polygons, valid
 from .stackup import effective_er, separation_mm
 
 #: Islands smaller than this (mm^2) are left out.
@@ -123,7 +123,7 @@ def find_islands(board: Board) -> list[Island]:
     p = board.pieces
     out: list[Island] = []
     for k in range(len(board.stackup.layers)):
-        shapes = [r.polygon for r in board.regions if r.layer == k and r.net == NO_NET]
+        shapes = [valid(r.polygon) for r in board.regions if r.layer == k and r.net == NO_NET]
         idx = np.flatnonzero((p.layer == k) & (p.net == NO_NET) & (p.length > 0))
         if idx.size:
             shapes.extend(piece_polygons(p, idx).tolist())

@@ -238,6 +238,13 @@ def subtract_tiles(geoms: np.ndarray, tiles: np.ndarray, tree) -> np.ndarray:
     return left
 
 
+def valid(shape):
+    """``shape`` repaired (``shapely.make_valid``) if it is not a valid
+    geometry, so that unions and differences of copper from any exporter
+    cannot fail on a self-touching outline."""
+    return shape if shapely.is_valid(shape) else shapely.make_valid(shape)
+
+
 def reference_copper(board: Board, patterns) -> ReferenceCopper:
     """Build :class:`ReferenceCopper` for ``board`` (module docstring)."""
     patterns = tuple(patterns)
@@ -260,7 +267,7 @@ def reference_copper(board: Board, patterns) -> ReferenceCopper:
         ref_idx = np.flatnonzero(on & piece_ref)
         regions = [r for r in board.regions if r.layer == k]
         ref_regions = [r for r in regions if r.net != NO_NET and is_ref[r.net]]
-        shapes = [r.polygon for r in ref_regions]
+        shapes = [valid(r.polygon) for r in ref_regions]
         if ref_idx.size:
             shapes.extend(piece_polygons(p, ref_idx, 1e-4).tolist())
         if not shapes:
@@ -269,7 +276,7 @@ def reference_copper(board: Board, patterns) -> ReferenceCopper:
             continue
         geom = shapely.union_all(shapes)
         # copper of any other net (or of none) on the layer is cut out of it
-        others = [r.polygon for r in regions if not (r.net != NO_NET and is_ref[r.net])]
+        others = [valid(r.polygon) for r in regions if not (r.net != NO_NET and is_ref[r.net])]
         other_idx = np.flatnonzero(on & ~piece_ref)
         if other_idx.size:
             polys = piece_polygons(p, other_idx)

@@ -375,3 +375,21 @@ def test_islands_joined_by_a_via_relay_as_one_conductor():
                          a.islands)
     c_clk, c_sense = links.c_pf  # the joined conductor's C to CLK and to SENSE (no plane: no C to ground)
     assert a.couplings.c12_pf[row] == pytest.approx(c_clk * c_sense / (c_clk + c_sense), rel=1e-9)
+
+
+def test_self_crossing_copper_shapes_do_not_break_the_analysis():
+    """A bow-tie region (self-crossing outline, as a careless exporter may
+    write) on GND and one on no net: repaired, not an internal error; the
+    no-net one is two floating islands (the bow tie's two triangles)."""
+    import shapely
+    from dataclasses import replace
+
+    from checker.model import NO_NET, Region
+
+    b = make([plane()])
+    bow = shapely.Polygon([(0, -1), (10, 1), (10, -1), (0, 1)])
+    assert not bow.is_valid
+    gnd = b.net_index()["GND"]
+    b = replace(b, regions=b.regions + (Region(1, gnd, bow, "x"), Region(2, NO_NET, bow, "y")))
+    a = analyse(b, default_ruleset())
+    assert len(a.islands) == 2 and all(i.area_mm2 == pytest.approx(5.0) for i in a.islands)
