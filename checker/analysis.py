@@ -421,13 +421,13 @@ def _guard_edge_rows(board: Board, ref: ReferenceCopper, ground: np.ndarray, t: 
     factor = np.ones(len(t))
     gap_net = np.full(len(t), NO_NET, np.int64)
     if has.size:
-        chain = guard_chains(board, ground, piece[has])
+        refs = np.flatnonzero(ground & (p.layer == layer) & (p.length > 0))
+        members = guard_chains(board, ground, refs)
+        chain = members[np.searchsorted(refs, piece[has])]
         labels, inv = np.unique(chain, return_inverse=True)
         f = np.fmax(frequency_hz[p.net[t.a[has]]], frequency_hz[p.net[t.b[has]]])
         fastest = np.full(labels.size, np.nan)
         np.fmax.at(fastest, inv, f)
-        members = guard_chains(board, ground, np.flatnonzero(ground & (p.layer == layer) & (p.length > 0)))
-        refs = np.flatnonzero(ground & (p.layer == layer) & (p.length > 0))
         chains = [refs[members == lab] for lab in labels.tolist()]
         table = grounding(board, ref.is_reference, chains, fastest, stitch_fraction)
         guards.append(table)

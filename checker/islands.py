@@ -58,7 +58,7 @@ from .physics.broadside import BroadsideModel
 from .physics.edge import EdgeModel
 from .physics.network import relayed_mutual
 from .shielding import ReferenceCopper, piece_polygons, valid
-from .stackup import effective_er, separation_mm
+from .stackup import effective_er, reference_of, separation_mm
 
 #: Islands smaller than this (mm^2) are left out.
 MIN_ISLAND_MM2 = 0.05
@@ -188,13 +188,6 @@ def by_conductor(links: "IslandLinks", islands: list[Island]) -> "IslandLinks":
     return IslandLinks(uniq // n_nets, uniq % n_nets, links.piece[order][first], total, ground)
 
 
-def _plane_neighbours(stackup, k: int) -> list[int]:
-    layers = stackup.layers
-    above = next((i for i in range(k - 1, -1, -1) if layers[i].role == "plane"), None)
-    below = next((i for i in range(k + 1, len(layers)) if layers[i].role == "plane"), None)
-    return [i for i in (above, below) if i is not None]
-
-
 def island_links(board: Board, ref: ReferenceCopper, islands: list[Island], signal: Pieces,
                  edge_search_mm: float, notes: list[str], planes_shield: bool = True) -> IslandLinks:
     """C from every island to every net near it, and to ground (module
@@ -216,7 +209,8 @@ def island_links(board: Board, ref: ReferenceCopper, islands: list[Island], sign
     wanted: dict[tuple, list] = {}  # model key -> list of (island, rows, widths, lengths, gaps)
     for s, isl in enumerate(islands):
         k = isl.layer
-        for plane in _plane_neighbours(st, k):
+        near = reference_of(st, k)
+        for plane in (i for i in (near.plane_above, near.plane_below) if i is not None):
             h = separation_mm(st, plane, k)
             ground[s] += epsilon_0 * effective_er(st, plane, k) * isl.area_mm2 * 1e-6 / (h * 1e-3) * 1e12
         reach = max(edge_search_mm, max(separation_mm(st, k, i) for i in range(len(st.layers))) + 0.0)

@@ -176,18 +176,9 @@ class ReferenceCopper:
                 self._union[key] = (tiles, shapely.STRtree(tiles))
         return self._union[key]
 
-    def between_tiles(self, i: int, j: int):
-        """``between(i, j)`` cut into small tiles (:func:`cover_tiles`) and an
-        STRtree over them, or None where there is no copper between."""
-        key = ("tiles", min(i, j), max(i, j))
-        if key not in self._union:
-            geom = self.between(i, j)
-            if geom is None:
-                self._union[key] = None
-            else:
-                tiles = cover_tiles(geom)
-                self._union[key] = (tiles, shapely.STRtree(tiles))
-        return self._union[key]
+    def role(self, k: int) -> str:
+        """Layer k's role as its reference copper decides it (module docstring)."""
+        return "plane" if self.fraction[k] >= PLANE_COVER_FRACTION else "signal"
 
     def reference_names(self, board: Board) -> tuple[str, ...]:
         return tuple(n.name for n, r in zip(board.nets, self.is_reference) if r)
@@ -220,22 +211,6 @@ def cover_tiles(cover, max_vertices: int = TILE_VERTICES, max_depth: int = 20) -
         parts = parts[(shapely.get_type_id(parts) == 3) & (shapely.area(parts) > 0)]
     done.append(parts)
     return np.concatenate(done)
-
-
-def subtract_tiles(geoms: np.ndarray, tiles: np.ndarray, tree) -> np.ndarray:
-    """Each of ``geoms`` minus the tiles it meets, in rounds (one tile per
-    geometry per round, all geometries of a round at once)."""
-    left = np.array(geoms, dtype=object)
-    wi, ti = tree.query(geoms, predicate="intersects")
-    if wi.size == 0:
-        return left
-    order = np.lexsort((ti, wi))
-    wi, ti = wi[order], ti[order]
-    rank = np.arange(wi.size) - np.searchsorted(wi, wi)
-    for r in range(int(rank.max()) + 1):
-        sel = rank == r
-        left[wi[sel]] = shapely.difference(left[wi[sel]], tiles[ti[sel]])
-    return left
 
 
 def valid(shape):
@@ -296,8 +271,7 @@ def reference_copper(board: Board, patterns) -> ReferenceCopper:
 def effective_stackup(stackup: Stackup, ref: ReferenceCopper) -> Stackup:
     """The stackup with every layer's role decided by its reference copper
     (module docstring, "Roles from copper")."""
-    layers = tuple(CopperLayer(layer.name, "plane" if ref.fraction[k] >= PLANE_COVER_FRACTION else "signal",
-                               layer.thickness_mm) for k, layer in enumerate(stackup.layers))
+    layers = tuple(CopperLayer(layer.name, ref.role(k), layer.thickness_mm) for k, layer in enumerate(stackup.layers))
     return replace(stackup, layers=layers)
 
 
@@ -310,7 +284,7 @@ def role_notes(declared: Stackup, ref: ReferenceCopper, board: Board) -> list[st
              f"(matched by settings.reference_nets: {', '.join(ref.patterns) or 'none'})"]
     parts = []
     for k, layer in enumerate(declared.layers):
-        role = "plane" if ref.fraction[k] >= PLANE_COVER_FRACTION else "signal"
+        role = ref.role(k)
         by = f" {'+'.join(ref.nets[k])}" if ref.nets[k] else ""
         hint = "" if layer.role == role else f", declared {layer.role}"
         parts.append(f"{layer.name} {role} ({ref.fraction[k] * 100:.0f} %{by}{hint})")
