@@ -15,7 +15,7 @@ import numpy as np
 
 from .finder.pairs import PairTable, find_broadside, find_edge
 from .finder.runs import run_labels
-from .guards import (MAX_THIRD_NET_SOLVES, GuardedRows, Guards, concat_guards, find_guard_pieces, grounding,
+from .guards import (MAX_THIRD_NET_SOLVES, GuardedRows, SolveBudget, Guards, concat_guards, find_guard_pieces, grounding,
                      guard_chains, guard_factors)
 from .islands import Island, by_conductor, find_islands, island_links, relays
 from .model import NO_NET, Board, Pieces
@@ -323,6 +323,7 @@ def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=No
     layer_pairs = [(u, l) for n, u in enumerate(layers) for l in layers[n + 1:]]
     tasks = [("broadside", u, l) for u, l in layer_pairs] + [("edge", k, k) for k in layers]
     tables: list[tuple[int, PairTable, np.ndarray]] = []
+    third_budget = SolveBudget(MAX_THIRD_NET_SOLVES)
     searched: list[tuple[int, int]] = []
     covered: list[str] = []
     shielded_rows = 0
@@ -337,7 +338,8 @@ def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=No
             # a pair's window reaches the band, the vertical distance and the other trace's width
             # beyond a piece: grow by all of them, so no pair the window rule would open is dropped
             widest = float(signal.width[(signal.layer == u) | (signal.layer == l)].max())
-            sub = _exposed(signal, u, l, shield, space, band + separation_mm(stackup, u, l) + widest)
+            sub = _exposed(signal, u, l, shield, space, band + separation_mm(stackup, u, l) + widest,
+                           ref.open_mask(u, l) if shield is not None else None)
             if sub is None:
                 if shield is not None:
                     covered.append(f"{stackup.layers[u].name}/{stackup.layers[l].name}")
@@ -358,7 +360,7 @@ def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=No
             t = find_edge(signal, u, s.edge_search_mm, s.parallel_angle_deg)
             c12 = _edge_c12(board, t, u, notes, accurate, models)
             guard = _guard_edge_rows(board, ref, ground, t, u, frequency_hz, s.guard_stitch_fraction,
-                                     guards, notes, driven, np.isfinite(frequency_hz))
+                                     guards, notes, driven, np.isfinite(frequency_hz), third_budget)
             tables.append((EDGE, t, c12 * guard.factor, np.ones(len(t)), np.full(len(t), -1, np.int32),
                            guard))
     if covered:
@@ -408,10 +410,14 @@ def _with_relays(board: Board, c: Couplings, ref: ReferenceCopper, signal: Piece
 
 def _guard_edge_rows(board: Board, ref: ReferenceCopper, ground: np.ndarray, t: PairTable, layer: int,
                      frequency_hz: np.ndarray, stitch_fraction: float, guards: list, notes: list[str],
-                     driven: np.ndarray | None = None, is_aggressor: np.ndarray | None = None) -> GuardedRows:
+                     driven: np.ndarray | None = None, is_aggressor: np.ndarray | None = None,
+                     third_budget: SolveBudget | None = None) -> GuardedRows:
     """Guards in the gaps of the edge rows ``t`` (``checker.guards``): their
     grounding is judged once per guard track and appended to ``guards``
-    (one ``Guards`` table per layer); the factor on each row's C12."""
+    (one ``Guards`` table per layer); the factor on each row's C12. Driven
+    third nets in the gaps take their solves from ``third_budget`` (shared
+    by the board's layers)."""
+    third_budget = SolveBudget(MAX_THIRD_NET_SOLVES) if third_budget is None else third_budget
     p = board.pieces
     piece, covered = find_guard_pieces(board, ground, t, layer)
     offset = sum(len(g) for g in guards)
@@ -450,13 +456,13 @@ def _guard_edge_rows(board: Board, ref: ReferenceCopper, ground: np.ndarray, t: 
             third, share = find_guard_pieces(board, live, sub, layer, exclude_own=True)
             use = third >= 0
             if use.any():
-                more = guard_factors(board, sub, layer, third, share, use, notes, MAX_THIRD_NET_SOLVES)
+                more = guard_factors(board, sub, layer, third, share, use, notes, third_budget)
                 factor[worth] = np.where(use, more, factor[worth])
                 gap_net[worth] = np.where(use & (more < 1.0), net[np.maximum(third, 0)], gap_net[worth])
     return GuardedRows(index, covered, factor, gap_net)
 
 
-def _exposed(signal: Pieces, u: int, l: int, shield, space, grow_mm: float) -> Pieces | None:
+def _exposed(signal: Pieces, u: int, l: int, shield, space, grow_mm: float, mask=None) -> Pieces | None:
     """``signal`` with only the pieces of layers u and l that reference
     copper between them does not wholly cover (grown by ``grow_mm``) left on
     a net; None when either layer has none."""
@@ -465,7 +471,7 @@ def _exposed(signal: Pieces, u: int, l: int, shield, space, grow_mm: float) -> P
     il = np.flatnonzero(live & (signal.layer == l))
     if shield is None:
         return signal if iu.size and il.size else None
-    iu, il = exposed_pieces(signal, iu, space, grow_mm), exposed_pieces(signal, il, space, grow_mm)
+    iu, il = exposed_pieces(signal, iu, space, grow_mm, mask), exposed_pieces(signal, il, space, grow_mm, mask)
     if iu.size == 0 or il.size == 0:
         return None
     net = np.full(len(signal), NO_NET, np.int32)

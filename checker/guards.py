@@ -46,7 +46,8 @@ aggressor frequency, no ``resistance``) and no credited guard is there, it
 is credited the same way, as a conductor at AC ground, on the rows that
 feed a noise estimate (one net with an aggressor frequency, the other a
 victim node with a resistance), at most :data:`MAX_THIRD_NET_SOLVES`
-distinct cross-sections per layer. A third net with a ``resistance`` is not
+distinct cross-sections per board (a layer that would take more than
+what is left is not credited). A third net with a ``resistance`` is not
 credited (it may float and relay); elsewhere third nets are left out. Both
 err toward more coupling.
 
@@ -95,9 +96,18 @@ GUARD_RESOLUTION = 1.0
 #: toward more coupling, never less (covers the 0.6 % above).
 RATIO_MARGIN = 1.01
 
-#: Most distinct cross-sections solved per layer for third nets in gaps
-#: (beyond it they are not credited: C12 errs high).
-MAX_THIRD_NET_SOLVES = 20
+#: Most distinct cross-sections solved per board for third nets in gaps
+#: (beyond it they are not credited: C12 errs high). Each costs two
+#: extrapolated solves, about 0.25 s on an inner layer of the six-layer
+#: bench: this bounds the refinement to about 2 s.
+MAX_THIRD_NET_SOLVES = 8
+
+
+@dataclass
+class SolveBudget:
+    """Distinct cross-sections still allowed (``guard_factors``)."""
+
+    left: int
 
 #: Cross-sections are rounded to this grid (mm) to share solves.
 GRID_MM = 0.005
@@ -326,9 +336,11 @@ def guard_section(stackup, layer: int, wa: float, wb: float, gap: float, wg: flo
 
 
 def guard_factors(board: Board, t, layer: int, guard_piece: np.ndarray, covered: np.ndarray,
-                  credited: np.ndarray, notes: list[str], max_solves: int | None = None) -> np.ndarray:
+                  credited: np.ndarray, notes: list[str], budget: SolveBudget | None = None) -> np.ndarray:
     """Factor on C12 per row of the edge table ``t`` (module docstring, "The
-    reduction"); 1 where the row has no credited guard."""
+    reduction"); 1 where the row has no credited guard. With ``budget``, at
+    most ``budget.left`` distinct cross-sections are solved (else none) and
+    what is solved is taken off it; without, :data:`MAX_GUARD_SOLVES`."""
     p = board.pieces
     factor = np.ones(len(t))
     rows = np.flatnonzero((guard_piece >= 0) & credited & (t.gap_mm > 0))
@@ -346,12 +358,14 @@ def guard_factors(board: Board, t, layer: int, guard_piece: np.ndarray, covered:
     r = lambda v: np.round(np.asarray(v, float) / GRID_MM) * GRID_MM  # noqa: E731
     keys = np.stack([r(p.width[a]), r(p.width[b]), r(t.gap_mm[rows]), r(p.width[g]), r(pos)], axis=1)
     uniq, inv = np.unique(keys, axis=0, return_inverse=True)
-    limit = MAX_GUARD_SOLVES if max_solves is None else max_solves
+    limit = MAX_GUARD_SOLVES if budget is None else budget.left
     if uniq.shape[0] > limit:
         notes.append(f"conductors in the gaps of edge-coupled pairs on {board.stackup.layers[layer].name}: "
-                     f"{uniq.shape[0]} distinct cross-sections, more than {limit}: not credited there "
-                     "(C12 errs high)")
+                     f"{uniq.shape[0]} distinct cross-sections, more than the {max(limit, 0)} still allowed "
+                     "per board: not credited there (C12 errs high)")
         return factor
+    if budget is not None:
+        budget.left -= uniq.shape[0]
     st = board.stackup
     with_g = [guard_section(st, layer, *(max(v, GRID_MM) for v in u[:4]), max(u[4], 0.0)) for u in uniq]
     without = [edge_section(st, layer, max(u[0], GRID_MM), max(u[1], GRID_MM), max(u[2], GRID_MM)) for u in uniq]

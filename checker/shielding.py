@@ -69,6 +69,7 @@ import numpy as np
 import shapely
 
 from .model import NO_NET, Board, CopperLayer, Pieces, Stackup
+from .occupancy import Occupancy
 from .stackup import separation_mm
 
 #: Nets taken as AC ground when the rule file names none (glob patterns,
@@ -145,14 +146,19 @@ class ReferenceCopper:
     bounds: tuple[float, float, float, float] = (0.0, 0.0, 0.0, 0.0)
     _union: dict = field(default_factory=dict, repr=False)
 
+    def _layers_between(self, i: int, j: int) -> tuple[int, ...]:
+        """The layers strictly between i and j that carry reference copper:
+        pairs with the same ones share their unions, tiles and rasters."""
+        lo, hi = min(i, j), max(i, j)
+        return tuple(k for k in range(lo + 1, hi) if not shapely.is_empty(self.cover[k]))
+
     def between(self, i: int, j: int):
         """Reference copper of the layers strictly between i and j (union,
         prepared), or None where there is none."""
-        lo, hi = min(i, j), max(i, j)
-        key = (lo, hi)
+        layers = self._layers_between(i, j)
+        key = ("between", layers)
         if key not in self._union:
-            parts = [self.cover[k] for k in range(lo + 1, hi) if not shapely.is_empty(self.cover[k])]
-            geom = shapely.union_all(parts) if parts else None
+            geom = shapely.union_all([self.cover[k] for k in layers]) if layers else None
             if geom is not None:
                 shapely.prepare(geom)
             self._union[key] = geom
@@ -163,7 +169,7 @@ class ReferenceCopper:
         lies, within a box well beyond the board: small tiles
         (:func:`cover_tiles`) and an STRtree over them, or None where there
         is no copper between (then everything is open)."""
-        key = ("open", min(i, j), max(i, j))
+        key = ("open", self._layers_between(i, j))
         if key not in self._union:
             geom = self.between(i, j)
             if geom is None:
@@ -171,9 +177,29 @@ class ReferenceCopper:
             else:
                 x0, y0, x1, y1 = self.bounds
                 pad = 10.0 + max(x1 - x0, y1 - y0)
-                space = shapely.difference(shapely.box(x0 - pad, y0 - pad, x1 + pad, y1 + pad), geom)
-                tiles = cover_tiles(space) if not shapely.is_empty(space) else np.zeros(0, dtype=object)
+                inside = shapely.difference(shapely.box(x0, y0, x1, y1), geom)
+                tiles = cover_tiles(inside) if not shapely.is_empty(inside) else np.zeros(0, dtype=object)
+                # beyond the board's bounds: four strips, not one frame whose bounding box would
+                # take in every query on the board
+                frame = shapely.box([x0 - pad, x1, x0, x0], [y0 - pad, y0 - pad, y0 - pad, y1],
+                                    [x0, x1 + pad, x1, x1], [y1 + pad, y1 + pad, y0, y1 + pad])
+                tiles = np.concatenate([tiles, frame[shapely.area(frame) > 0]])
                 self._union[key] = (tiles, shapely.STRtree(tiles))
+        return self._union[key]
+
+    def open_mask(self, i: int, j: int) -> Occupancy | None:
+        """Raster prefilter (:class:`checker.occupancy.Occupancy`) of the
+        bounding boxes of ``open_space(i, j)``'s tiles within the board's
+        bounds (a box reaching beyond them always may touch open space), or
+        None where everything is open."""
+        key = ("mask", self._layers_between(i, j))
+        if key not in self._union:
+            space = self.open_space(i, j)
+            if space is None:
+                self._union[key] = None
+            else:
+                b = shapely.bounds(space[0]).reshape(-1, 4)
+                self._union[key] = Occupancy(b[:, 0], b[:, 1], b[:, 2], b[:, 3], self.bounds)
         return self._union[key]
 
     def role(self, k: int) -> str:
@@ -299,20 +325,27 @@ def search_band_mm(stackup: Stackup, i: int, j: int, broadside_search_mm: float)
     return max(broadside_search_mm, BAND_PER_SEPARATION * separation_mm(stackup, i, j))
 
 
-def exposed_pieces(pieces: Pieces, index: np.ndarray, space, grow_mm: float) -> np.ndarray:
+def exposed_pieces(pieces: Pieces, index: np.ndarray, space, grow_mm: float,
+                   mask: Occupancy | None = None) -> np.ndarray:
     """Of the pieces at ``index``, those whose bounding box grown by
     ``grow_mm`` plus half their width (which holds their rectangle grown by
     ``grow_mm``: a superset, so more pieces count as exposed, never fewer)
     meets the open space ``space`` (``ReferenceCopper.open_space``: tiles and
-    their STRtree; None: everything is open)."""
+    their STRtree; None: everything is open). ``mask``
+    (``ReferenceCopper.open_mask``) first drops the boxes that cannot."""
     if space is None or index.size == 0:
         return index
-    tiles, tree = space
+    _, tree = space
     g = grow_mm + pieces.width[index] / 2
     x1, x2, y1, y2 = pieces.x1[index], pieces.x2[index], pieces.y1[index], pieces.y2[index]
-    boxes = shapely.box(np.minimum(x1, x2) - g, np.minimum(y1, y2) - g, np.maximum(x1, x2) + g,
-                        np.maximum(y1, y2) + g)
-    hit, _ = tree.query(boxes, predicate="intersects")
+    bx0, by0 = np.minimum(x1, x2) - g, np.minimum(y1, y2) - g
+    bx1, by1 = np.maximum(x1, x2) + g, np.maximum(y1, y2) + g
+    if mask is not None:
+        near = np.flatnonzero(mask.touches(bx0, by0, bx1, by1))
+        index, bx0, by0, bx1, by1 = index[near], bx0[near], by0[near], bx1[near], by1[near]
+        if index.size == 0:
+            return index
+    hit, _ = tree.query(shapely.box(bx0, by0, bx1, by1), predicate="intersects")
     return index[np.unique(hit)]
 
 
@@ -340,8 +373,8 @@ def split_shielded(board: Board, ref: ReferenceCopper, table, upper: int, lower:
     m = separation_mm(board.stackup, upper, lower)
     tiles, tree = ref.open_space(upper, lower)
     # a row whose window's bounding box meets no open space lies wholly over reference copper
-    x0, y0, x1, y1 = _window_bounds(p, table, m)
-    rows = np.unique(tree.query(shapely.box(x0, y0, x1, y1), predicate="intersects")[0])
+    # (the raster prefilter answers "may meet": the exact test on the window follows)
+    rows = np.flatnonzero(ref.open_mask(upper, lower).touches(*_window_bounds(p, table, m)))
     open_fraction[:] = 0.0
     if rows.size == 0:
         return ShieldSplit(open_fraction, shield_layer)

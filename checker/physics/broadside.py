@@ -179,15 +179,18 @@ TABLE_RESOLUTION = 0.8
 #: (coupling through openings in the copper between): 3-4 times faster than
 #: ``TABLE_RESOLUTION`` and reads higher (+1.7 to +4.6 % against resolution
 #: 3 on L1/L3 and L1/L6 of a six-layer stackup). With the coarser width and
-#: offset knots below, the table reads +0.5 to +9.8 % against direct solves
-#: at resolution 2 (measured over 3 x 3 widths 0.1-0.3 mm and offsets 0-3 mm
-#: on five layer pairs of a six-layer and a thin four-layer stackup), i.e.
-#: always toward more coupling there.
+#: offset knots below, the table reads +1.0 to +5.2 % against direct solves
+#: at resolution 2 (measured over 4 x 3 widths 0.1-0.3 mm and offsets 0-3 mm
+#: on four layer pairs of a six-layer and two of a thin four-layer stackup,
+#: table widths 0.1-0.3 mm), i.e. always toward more coupling there.
 FAR_TABLE_RESOLUTION = 0.5
 
-#: Width knots per layer of such a table (3 instead of 4: 9 width pairs
-#: instead of 16).
-FAR_WIDTH_KNOTS = 3
+#: Width knots per layer of such a table (2 instead of 4: 4 width pairs
+#: instead of 16). Between them C12' is interpolated linearly in ln(width);
+#: C12' is convex in ln(width) both where the layers are far apart compared
+#: with the widths (about 1/ln(d/w)) and where they are close (about w plus
+#: a constant), so the chord reads high, never low.
+FAR_WIDTH_KNOTS = 2
 
 #: Its first offset step beyond the overlap, as a fraction of the distance
 #: between the two layers (``offset_knots(min_step_mm=...)``).
