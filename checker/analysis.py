@@ -19,6 +19,7 @@ from .guards import (MAX_THIRD_NET_SOLVES, GuardedRows, SolveBudget, Guards, con
                      guard_chains, guard_factors)
 from .islands import Island, by_conductor, find_islands, island_links, relays
 from .model import NO_NET, Board, Pieces
+from .netrelays import net_relay_rows
 from .physics import crosstalk
 from .physics.broadside import (FAR_OFFSET_STEP, FAR_TABLE_MARGIN, FAR_TABLE_RESOLUTION, FAR_WIDTH_KNOTS,
                                 BroadsideModel, broadside_c12_pf)
@@ -109,7 +110,8 @@ class NetPairs:
     edge_length_mm: np.ndarray
     area_mm2: np.ndarray
     c12_pf: np.ndarray
-    #: the part of ``c12_pf`` relayed through floating copper (RELAY rows)
+    #: the part of ``c12_pf`` relayed through floating copper or a
+    #: high-impedance third net (RELAY rows)
     relay_pf: np.ndarray
     #: coupled noise (V) with net_a as aggressor onto net_b, and the reverse;
     #: NaN where the classes do not give the attributes the model needs
@@ -125,6 +127,8 @@ class NetPairs:
     layer_groups: tuple[tuple[int, int, int], ...] = ()
     #: index into ``layer_groups`` of each coupled pair row
     row_group: np.ndarray = field(repr=False, default_factory=lambda: np.zeros(0, np.int64))
+    #: the part of ``relay_pf`` through floating copper (islands) alone
+    island_relay_pf: np.ndarray = field(repr=False, default_factory=lambda: np.zeros(0))
 
     def __len__(self) -> int:
         return int(self.net_a.shape[0])
@@ -408,6 +412,31 @@ def _with_relays(board: Board, c: Couplings, ref: ReferenceCopper, signal: Piece
                         for name in Couplings.__dataclass_fields__})
 
 
+def _with_net_relays(board: Board, c: Couplings, electrical: NetElectrical, c2g_pf: np.ndarray,
+                     notes: list[str], pairs) -> Couplings:
+    """``c`` with one RELAY row per pair of nets a high-impedance third net
+    couples (``checker.netrelays``)."""
+    cols = net_relay_rows(c, electrical.resistance_ohm, electrical.frequency_hz, c2g_pf, c.kind != RELAY,
+                          [net.name for net in board.nets], notes)
+    if cols is None:
+        return c
+    p = board.pieces
+    n = cols["c12_pf"].size
+    z = np.zeros(n)
+    at = cols["row"]
+    extra = Couplings(
+        kind=np.full(n, RELAY, np.int8), a=cols["a"], b=cols["b"], net_a=cols["net_a"], net_b=cols["net_b"],
+        layer_a=p.layer[cols["a"]].astype(np.int32), layer_b=p.layer[cols["b"]].astype(np.int32),
+        angle_deg=z, parallel=np.zeros(n, bool), length_mm=z.copy(), offset_mm=z.copy(), gap_mm=z.copy(),
+        overlap_mm2=z.copy(), x=c.x[at], y=c.y[at], c12_pf=cols["c12_pf"], open_fraction=np.ones(n),
+        shield_layer=np.full(n, -1, np.int32), island=np.full(n, -1, np.int64), guard=np.full(n, -1, np.int64),
+        guard_factor=np.ones(n), gap_net=cols["gap_net"])
+    partner = _partners(board, pairs)
+    extra = extra.take(np.flatnonzero(partner[extra.net_a] != extra.net_b))
+    return Couplings(**{name: np.concatenate([getattr(c, name), getattr(extra, name).astype(getattr(c, name).dtype)])
+                        for name in Couplings.__dataclass_fields__})
+
+
 def _guard_edge_rows(board: Board, ref: ReferenceCopper, ground: np.ndarray, t: PairTable, layer: int,
                      frequency_hz: np.ndarray, stitch_fraction: float, guards: list, notes: list[str],
                      driven: np.ndarray | None = None, is_aggressor: np.ndarray | None = None,
@@ -654,6 +683,7 @@ def aggregate_net_pairs(board: Board, c: Couplings, electrical: NetElectrical, c
         noise_small_r_ab_v=_noise(electrical, net_a, net_b, c12, c2g_pf, crosstalk.lumped_noise_small_r_v),
         noise_small_r_ba_v=_noise(electrical, net_b, net_a, c12, c2g_pf, crosstalk.lumped_noise_small_r_v),
         row_pair=inv.astype(np.int64),
+        island_relay_pf=total(np.where((c.kind == RELAY) & (c.island >= 0), c.c12_pf, 0.0)),
     )
     pairs.layer_groups, pairs.layer_mask, pairs.row_group = _layer_masks(c, inv, m)
     return pairs
@@ -704,6 +734,7 @@ def analyse(board: Board, ruleset: RuleSet, progress=None, accurate: bool = Fals
     if progress is not None:
         progress("capacitance to ground and noise")
     c2g = net_capacitance_to_ground_pf(board, electrical, notes, accurate)
+    couplings = _with_net_relays(board, couplings, electrical, c2g, notes, ruleset.pairs)
     net_pairs = aggregate_net_pairs(board, couplings, electrical, c2g)
     gaps = return_gaps(board, ref)  # traces over voids and splits of their reference copper
     return Analysis(board, ruleset, couplings, net_pairs, electrical, c2g, classes, notes,

@@ -88,7 +88,8 @@ def ratio_over(value: float, limit: float) -> float:
 def path_text(ctx, rows: np.ndarray) -> str | None:
     """In words: how much of the broadside length of ``rows`` reference
     copper between the layers shields (and on which layer, by which nets),
-    and what floating islands relay (id, layer, place, area, pF)."""
+    and what floating islands (id, layer, place, area, pF) and high-impedance
+    third nets (name, resistance, pF) relay."""
     from ..analysis import BROADSIDE, EDGE, RELAY
 
     c = ctx.couplings
@@ -132,7 +133,7 @@ def path_text(ctx, rows: np.ndarray) -> str | None:
         cut = 1.0 - float(c.c12_pf[mine].sum()) / before if before > 0 else 0.0
         parts.append(f"a trace of {ctx.net_name(int(k))} in the gap (taken as held by its driver) takes "
                      f"{cut * 100:.0f} % off the edge C12 beside it")
-    rl = rows[c.kind[rows] == RELAY]
+    rl = rows[(c.kind[rows] == RELAY) & (c.island[rows] >= 0)]
     if rl.size:
         for s in np.unique(c.island[rl]).tolist():
             isl = ctx.islands[s]
@@ -143,4 +144,10 @@ def path_text(ctx, rows: np.ndarray) -> str | None:
             parts.append(f"{pf:.3g} pF relayed through floating copper (island {isl.id} on "
                          f"{ctx.layer_name(isl.layer)} at {isl.x:.2f}, {isl.y:.2f}, {isl.area_mm2:.3g} mm^2, "
                          f"on no net{more})")
+    by_net = rows[(c.kind[rows] == RELAY) & (c.island[rows] < 0) & (c.gap_net[rows] >= 0)]
+    for k in np.unique(c.gap_net[by_net]).tolist():
+        pf = float(c.c12_pf[by_net][c.gap_net[by_net] == k].sum())
+        r = float(ctx.electrical.resistance_ohm[k])
+        parts.append(f"{pf:.3g} pF relayed through {ctx.net_name(int(k))} (a high-impedance node: {r:.3g} ohm "
+                     f"to ground, {float(ctx.c2g_pf[k]):.3g} pF to ground)")
     return "; ".join(parts) or None

@@ -164,7 +164,7 @@ def _with_grounding(ctx, text, mine, victims, aggressors, pair, noise, long_runs
     lumped model without the relayed C12; long runs keep their value)."""
     from ..physics import crosstalk
 
-    relay = ctx.net_pairs.relay_pf[pair[mine]]
+    relay = ctx.net_pairs.island_relay_pf[pair[mine]]
     if text is None or not np.any(relay > 0):
         return text
     e = ctx.electrical
