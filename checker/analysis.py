@@ -129,6 +129,13 @@ class NetPairs:
     row_group: np.ndarray = field(repr=False, default_factory=lambda: np.zeros(0, np.int64))
     #: the part of ``relay_pf`` through floating copper (islands) alone
     island_relay_pf: np.ndarray = field(repr=False, default_factory=lambda: np.zeros(0))
+    #: per net (not per pair): its traces' capacitance to ground computed
+    #: alone, the sum of its mutual capacitances to every net it couples to
+    #: (relays included), and its node capacitance from its class, pF
+    #: (:func:`node_total_pf` makes the node's whole capacitance of them)
+    trace_c2g_pf: np.ndarray = field(repr=False, default_factory=lambda: np.zeros(0))
+    coupled_pf: np.ndarray = field(repr=False, default_factory=lambda: np.zeros(0))
+    node_pf: np.ndarray = field(repr=False, default_factory=lambda: np.zeros(0))
 
     def __len__(self) -> int:
         return int(self.net_a.shape[0])
@@ -139,8 +146,11 @@ class VictimNoise:
     """One victim's coupled noise under one noise-budget rule, passing or not:
     the summed noise (mV), the budget (mV), which model gave it
     (``lumped``, ``small-r`` or ``transmission-line`` when any of its
-    aggressors' runs is electrically long), the worst aggressor and how many
-    aggressors contribute."""
+    aggressors' runs is electrically long; ``small-r (out of range)`` where
+    that limit does not hold), the worst aggressor and how many aggressors
+    contribute; the victim node's whole capacitance C_tot and its
+    capacitance to ground in mutual form C_tot - sum_k C_1k (pF,
+    :func:`node_total_pf`)."""
 
     rule: str
     victim: str
@@ -149,6 +159,8 @@ class VictimNoise:
     model: str
     worst_aggressor: str
     aggressors: int
+    c_total_pf: float = float("nan")
+    c_ground_mutual_pf: float = float("nan")
 
     @property
     def passes(self) -> bool:
@@ -417,7 +429,7 @@ def _with_net_relays(board: Board, c: Couplings, electrical: NetElectrical, c2g_
     """``c`` with one RELAY row per pair of nets a high-impedance third net
     couples (``checker.netrelays``)."""
     cols = net_relay_rows(c, electrical.resistance_ohm, electrical.frequency_hz, c2g_pf, c.kind != RELAY,
-                          [net.name for net in board.nets], notes)
+                          [net.name for net in board.nets], notes, electrical.node_capacitance_f * 1e12)
     if cols is None:
         return c
     p = board.pieces
@@ -661,8 +673,26 @@ def net_capacitance_to_ground_pf(board: Board, electrical: NetElectrical, notes:
     return total + electrical.node_capacitance_f * 1e12
 
 
+def node_total_pf(trace_c2g_pf, coupled_pf, node_pf):
+    """A victim node's whole capacitance C_tot = C_1g + sum_k C_1k (pF), the
+    Maxwell diagonal with every neighbour held at ground, in mutual form.
+
+    Taken as max(C of its traces to ground computed alone, sum_k C_1k) plus
+    the node capacitance its class gives. The capacitance to ground of a
+    trace computed alone is the Maxwell diagonal without neighbours; a
+    grounded neighbour only raises the diagonal (a conductor added at ground
+    can only raise the charge the excited one holds: the Dirichlet
+    variational principle of electrostatics), and the
+    diagonal is at least the sum of the mutual capacitances (C_1g >= 0). So
+    this is a lower bound of C_tot: the noise it gives errs high, never low
+    (it is not the single-trace value plus C12, which counts C12 twice)."""
+    return np.maximum(trace_c2g_pf, coupled_pf) + node_pf
+
+
 def aggregate_net_pairs(board: Board, c: Couplings, electrical: NetElectrical, c2g_pf: np.ndarray) -> NetPairs:
-    """Totals per net pair and the lumped-model noise both ways."""
+    """Totals per net pair and the lumped-model noise both ways: each
+    aggressor's share under Kirchhoff's current law at the victim node with
+    all its neighbours (``crosstalk.kcl_noise_v``, :func:`node_total_pf`)."""
     n_nets = max(len(board.nets), 1)
     key = c.net_a * n_nets + c.net_b
     uniq, inv = np.unique(key, return_inverse=True)
@@ -673,17 +703,23 @@ def aggregate_net_pairs(board: Board, c: Couplings, electrical: NetElectrical, c
 
     net_a, net_b = uniq // n_nets, uniq % n_nets
     c12 = total(c.c12_pf)
+    node = electrical.node_capacitance_f * 1e12
+    trace = np.maximum(c2g_pf - node, 0.0)
+    coupled = (np.bincount(net_a, weights=c12, minlength=len(c2g_pf))
+               + np.bincount(net_b, weights=c12, minlength=len(c2g_pf)))[:len(c2g_pf)]
+    c_tot = node_total_pf(trace, coupled, node)
     pairs = NetPairs(
         net_a=net_a, net_b=net_b,
         broadside_length_mm=total(np.where(c.kind == BROADSIDE, c.length_mm, 0.0)),
         edge_length_mm=total(np.where(c.kind == EDGE, c.length_mm, 0.0)),
         area_mm2=total(c.overlap_mm2), c12_pf=c12, relay_pf=total(np.where(c.kind == RELAY, c.c12_pf, 0.0)),
-        noise_ab_v=_noise(electrical, net_a, net_b, c12, c2g_pf, crosstalk.lumped_noise_v),
-        noise_ba_v=_noise(electrical, net_b, net_a, c12, c2g_pf, crosstalk.lumped_noise_v),
-        noise_small_r_ab_v=_noise(electrical, net_a, net_b, c12, c2g_pf, crosstalk.lumped_noise_small_r_v),
-        noise_small_r_ba_v=_noise(electrical, net_b, net_a, c12, c2g_pf, crosstalk.lumped_noise_small_r_v),
+        noise_ab_v=_noise(electrical, net_a, net_b, c12, c_tot, crosstalk.kcl_noise_v),
+        noise_ba_v=_noise(electrical, net_b, net_a, c12, c_tot, crosstalk.kcl_noise_v),
+        noise_small_r_ab_v=_noise(electrical, net_a, net_b, c12, c_tot, crosstalk.lumped_noise_small_r_v),
+        noise_small_r_ba_v=_noise(electrical, net_b, net_a, c12, c_tot, crosstalk.lumped_noise_small_r_v),
         row_pair=inv.astype(np.int64),
         island_relay_pf=total(np.where((c.kind == RELAY) & (c.island >= 0), c.c12_pf, 0.0)),
+        trace_c2g_pf=trace, coupled_pf=coupled, node_pf=node,
     )
     pairs.layer_groups, pairs.layer_mask, pairs.row_group = _layer_masks(c, inv, m)
     return pairs
@@ -705,9 +741,11 @@ def _layer_masks(c: Couplings, inv: np.ndarray, m: int) -> tuple[tuple[tuple[int
 
 
 def _noise(e: NetElectrical, aggressor: np.ndarray, victim: np.ndarray, c12_pf: np.ndarray,
-           c2g_pf: np.ndarray, model) -> np.ndarray:
-    """Noise (V) on ``victim`` from ``aggressor``; NaN where an attribute is missing."""
-    return model(e.resistance_ohm[victim], c12_pf * 1e-12, c2g_pf[victim] * 1e-12,
+           c_tot_pf: np.ndarray, model) -> np.ndarray:
+    """Noise (V) on ``victim`` from ``aggressor`` (``model(R, C1k, C_tot, V,
+    f)``, C_tot the victim node's whole capacitance); NaN where an attribute
+    is missing."""
+    return model(e.resistance_ohm[victim], c12_pf * 1e-12, c_tot_pf[victim] * 1e-12,
                  e.swing_v[aggressor], e.frequency_hz[aggressor])
 
 

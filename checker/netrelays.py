@@ -8,8 +8,11 @@ to ground is
 
     Y_N = 1/R_N + j omega C_N,    C_N = C_Ng + sum_k C_Nk,
 
-C_Ng its capacitance to ground and C_Nk its mutual capacitance to each net
-it couples to (their drivers hold them at AC ground). Driven by net A
+C_Ng its capacitance to ground (mutual form) and C_Nk its mutual
+capacitance to each net it couples to (their drivers hold them at AC
+ground): its whole capacitance, taken as in ``analysis.node_total_pf``
+(max(its traces' capacitance to ground computed alone, sum_k C_Nk) plus its
+node capacitance: a lower bound, so the relay errs high). Driven by net A
 through C_AN, N sits at V_N = j omega C_AN V_A / Y_N and drives net V
 through C_NV. Eliminating N from the nodal equations (Kron reduction, to
 first order: V itself held near ground) adds between A and V
@@ -49,11 +52,16 @@ MAX_NEIGHBOURS = 100
 
 
 def net_relay_rows(c, resistance_ohm: np.ndarray, frequency_hz: np.ndarray, c2g_pf: np.ndarray,
-                   direct: np.ndarray, names: list[str], notes: list[str]) -> dict[str, np.ndarray] | None:
+                   direct: np.ndarray, names: list[str], notes: list[str],
+                   node_pf: np.ndarray | None = None) -> dict[str, np.ndarray] | None:
     """Columns of the RELAY rows (``Couplings`` field names) that the
     high-impedance nets relay between the nets around them; ``direct``
     marks the rows of ``c`` (a ``Couplings``) that are direct coupling.
-    None when no net relays anything."""
+    ``c2g_pf``: per net, its traces' capacitance to ground computed alone
+    plus ``node_pf`` (its class's node capacitance; default none). None when
+    no net relays anything."""
+    from .analysis import node_total_pf
+
     relay_net = np.isfinite(resistance_ohm) & (resistance_ohm > 0)
     has_r, has_f = relay_net, np.isfinite(frequency_hz) & (frequency_hz > 0)
     rows = np.flatnonzero(direct & (c.net_a != NO_NET) & (c.net_b != NO_NET))
@@ -80,7 +88,8 @@ def net_relay_rows(c, resistance_ohm: np.ndarray, frequency_hz: np.ndarray, c2g_
     crowded = []
     for n in np.unique(x).tolist():
         mine = np.flatnonzero(x == n)
-        c_total = float(c2g_pf[n]) + float(total[mine].sum())  # C_N: to ground and to every neighbour
+        node = float(node_pf[n]) if node_pf is not None else 0.0
+        c_total = float(node_total_pf(float(c2g_pf[n]) - node, float(total[mine].sum()), node))  # C_N
         if mine.size > MAX_NEIGHBOURS:
             crowded.append(names[n])
             mine = mine[np.argsort(-total[mine], kind="stable")[:MAX_NEIGHBOURS]]

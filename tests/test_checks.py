@@ -194,13 +194,42 @@ def test_noise_budget_matches_lumped_model(tmp_path):
     c12 = float(a.net_pairs.c12_pf[0]) * 1e-12
     sense = a.board.net_index()["SENSE"]
     c2g = float(a.c2g_pf[sense]) * 1e-12
-    # lumped model, KCL at the victim node: |Vn| = w R C12 V1 / sqrt(1 + (w R (C12 + C2G))^2)
+    # lumped model, KCL at the victim node: |Vn| = w R C12 V1 / sqrt(1 + (w R C_tot)^2), C_tot = C1g + C12
+    # the node's whole capacitance (mutual form); couplint takes it as max(C to ground of the trace
+    # alone, C12) + node capacitance, here the trace's value (a lower bound: errs high)
+    assert c12 < c2g
     w = 2 * math.pi * 10e6
-    expected = w * 1e4 * c12 * 3.3 / math.sqrt(1 + (w * 1e4 * (c12 + c2g)) ** 2)
+    expected = w * 1e4 * c12 * 3.3 / math.sqrt(1 + (w * 1e4 * c2g) ** 2)
     assert len(result.findings) == 1
     assert result.findings[0].value == pytest.approx(expected * 1e3, rel=1e-9, abs=0)
     # the victim's capacitance to ground includes its 10 pF node capacitance
     assert c2g > 10e-12
+
+
+def test_noise_budget_adds_aggressors_by_kcl_at_the_victim_node(tmp_path):
+    """Two clocks onto SENSE (one broadside above, one beside it): the
+    finding is the sum of the two KCL shares w R C1k V / sqrt(1 + (w R
+    C_tot)^2), each with the node's whole capacitance C_tot, evaluated here
+    from the analysis' own capacitances (nodal analysis of one node with two
+    sources, in phase: the worst case)."""
+    b = board([track("TOP", "CLK", [[0, 0], [10, 0]]), track("IN1", "SENSE", [[0, 0], [10, 0]]),
+               track("IN1", "CLK2", [[0, 0.4], [10, 0.4]])])
+    result = check_board(b, rules(tmp_path, "- {name: n, kind: noise-budget, aggressor: fast, victim: quiet, "
+                                            "max_noise: 0.001 mV}\n"))
+    a = result.analysis
+    idx = a.board.net_index()
+    sense = idx["SENSE"]
+    p = a.net_pairs
+    c1k = {name: float(p.c12_pf[(p.net_a == min(idx[name], sense)) & (p.net_b == max(idx[name], sense))][0]) * 1e-12
+           for name in ("CLK", "CLK2")}
+    node = 10e-12
+    trace = float(a.c2g_pf[sense]) * 1e-12 - node
+    c_tot = max(trace, sum(c1k.values())) + node
+    w = 2 * math.pi * 10e6
+    expected = sum(w * 1e4 * c * 3.3 / math.sqrt(1 + (w * 1e4 * c_tot) ** 2) for c in c1k.values())
+    (f,) = result.findings
+    assert f.value == pytest.approx(expected * 1e3, rel=1e-9, abs=0)
+    assert "and 1 more" in f.message
 
 
 def test_differential_partners_are_exempt(tmp_path):
@@ -233,8 +262,10 @@ def test_noise_what_if_meets_the_budget_exactly(tmp_path):
     c12 = float(a.net_pairs.c12_pf[0]) * 1e-12
     c2g = float(a.c2g_pf[a.board.net_index()["SENSE"]]) * 1e-12
     w, r, v1 = 2 * math.pi * 10e6, 1e4, 3.3
-    # lumped model at k * C12 (KCL at the victim node), evaluated here independently
-    at_k = w * r * k * c12 * v1 / math.sqrt(1 + (w * r * (k * c12 + c2g)) ** 2)
+    # lumped model at k * C12 (KCL at the victim node, C_tot = max(trace alone, k C12) + node = C2G
+    # here), evaluated here independently
+    assert k * c12 < c2g
+    at_k = w * r * k * c12 * v1 / math.sqrt(1 + (w * r * c2g) ** 2)
     assert at_k * 1e3 == pytest.approx(budget_mv, rel=1e-9, abs=0)
 
 
@@ -326,3 +357,22 @@ def test_every_victim_is_listed_with_its_model_passing_or_not(tmp_path):
     c2g = float(a.c2g_pf[b.net_index()["REF"]]) * 1e-12
     expected = crosstalk.lumped_noise_v(50.0, c12, c2g, 1.0, 1e3)
     assert short.noise_mv == pytest.approx(float(expected) * 1e3, rel=1e-9, abs=0)
+
+
+def test_small_r_limit_says_when_it_is_out_of_range(tmp_path):
+    """10 kohm at 10 MHz with C_tot > 10 pF: x = w R C_tot > 6, far beyond the
+    0.458 where w R C12 V over-reads the full model by 10 % (sqrt(1 + x^2) -
+    1 = 0.1, solved by hand); the finding says so and gives the full value."""
+    b = board([track("TOP", "CLK", [[0, 0], [10, 0]]), track("IN1", "SENSE", [[0, 0], [10, 0]])])
+    small = check_board(b, rules(tmp_path, "- {name: n, kind: noise-budget, aggressor: fast, victim: quiet, "
+                                           "max_noise: 0.001 mV, model: small-r}\n"))
+    full = check_board(b, rules(tmp_path, "- {name: n, kind: noise-budget, aggressor: fast, victim: quiet, "
+                                          "max_noise: 0.001 mV}\n"))
+    (f,) = small.findings
+    a = small.analysis
+    x = 2 * math.pi * 10e6 * 1e4 * float(a.c2g_pf[a.board.net_index()["SENSE"]]) * 1e-12
+    assert x > 6
+    assert "out of range: w R C_tot = " in f.message and f"{x:.3g}" in f.message
+    assert f"the full model, which gives {full.findings[0].value:.3g} mV" in f.message
+    assert f.value == pytest.approx(full.findings[0].value * math.hypot(1, x), rel=1e-9)
+    assert small.analysis.victim_noise[0].model == "small-r (out of range)"

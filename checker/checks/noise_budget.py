@@ -19,6 +19,16 @@ Options (defaults)::
     max_noise: (required)  # e.g. 10 mV
     model: full            # full | small-r (the small-R limit w*R*C12*V1)
 
+Noise from several aggressors adds by Kirchhoff's current law at the victim
+node: each aggressor's share is w R C1k V / sqrt(1 + (w R C_tot)^2) with the
+node's whole capacitance C_tot (``physics.crosstalk.kcl_noise_v``,
+``analysis.node_total_pf``), magnitudes added (phases aligned: the worst
+case); the sum never exceeds the capacitive divider sum V_k C1k / C_tot.
+The small-R limit is said to be out of range in the finding (and the model
+named ``small-r (out of range)``) where w R C_tot exceeds
+``crosstalk.SMALL_R_LIMIT`` (it then over-reads the full model by more than
+10 %, and the finding gives the full model's value too).
+
 Fails: 40 mV on a 100 kohm sensor input with a 10 mV budget.
 """
 
@@ -26,6 +36,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..physics.crosstalk import SMALL_R_LIMIT
 from .options import Option
 
 KIND = "noise-budget"
@@ -63,9 +74,17 @@ def check(rule, ctx):
     for i, run in long_runs.items():
         noise[i] = max(run.crosstalk.next_v, run.crosstalk.fext_v)
     totals = np.bincount(victims, weights=noise, minlength=len(ctx.board.nets))
+    # the small-R limit holds only while x = w R C_tot is small: per victim, the largest x
+    e = ctx.electrical
+    x = 2 * np.pi * e.frequency_hz[aggressors] * e.resistance_ohm[victims] * _c_tot(ctx, victims) * 1e-12
+    worst_x = np.zeros(len(ctx.board.nets))
+    np.maximum.at(worst_x, victims, np.where(np.isfinite(x), x, 0.0))
+    full = (np.bincount(victims, weights=np.concatenate([np_.noise_ab_v, np_.noise_ba_v])[use],
+                        minlength=len(ctx.board.nets)) if small_r else None)
     by_victim = np.argsort(victims, kind="stable")
     starts = np.searchsorted(victims[by_victim], np.arange(len(ctx.board.nets) + 1))
-    _record_victims(ctx, rule, victims, aggressors, noise, totals, by_victim, starts, long_runs, limit, small_r)
+    _record_victims(ctx, rule, victims, aggressors, noise, totals, by_victim, starts, long_runs, limit, small_r,
+                    worst_x)
     failing = np.flatnonzero(totals > limit)
     scales = _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, limit, small_r)
     longest = ctx.longest_run_mm(pair[np.isin(victims, failing)])
@@ -84,6 +103,12 @@ def check(rule, ctx):
         others = len(order) - 1
         names = ctx.net_name(main) + (f" and {others} more" if others else "")
         how = "small-R limit" if small_r else "lumped model"
+        if small_r and worst_x[victim] > SMALL_R_LIMIT:
+            how += (f", out of range: w R C_tot = {worst_x[victim]:.3g} > {SMALL_R_LIMIT:.3g}, it reads up to "
+                    f"{np.hypot(1.0, worst_x[victim]):.3g} x the full model, which gives "
+                    f"{float(full[victim]) * 1e3:.3g} mV")
+        elif small_r:
+            how += " (in range)"
         long_here = [(int(aggressors[i]), long_runs[int(i)]) for i in order if int(i) in long_runs]
         if long_here:
             how += "; electrically long: " + ", ".join(
@@ -105,7 +130,7 @@ def check(rule, ctx):
 
 
 def _record_victims(ctx, rule, victims, aggressors, noise, totals, by_victim, starts, long_runs, limit,
-                    small_r) -> None:
+                    small_r, worst_x) -> None:
     """Every victim this rule looked at, passing or not, with the model that
     gave its number (``Analysis.victim_noise``; the reports list them)."""
     from ..analysis import VictimNoise
@@ -115,8 +140,12 @@ def _record_victims(ctx, rule, victims, aggressors, noise, totals, by_victim, st
         mine = by_victim[starts[victim]:starts[victim + 1]]
         worst = int(mine[np.argmax(noise[mine])])
         model = "transmission-line" if any(int(i) in long_runs for i in mine.tolist()) else plain
+        if model == "small-r" and worst_x[victim] > SMALL_R_LIMIT:
+            model = "small-r (out of range)"
+        c_tot = float(_c_tot(ctx, np.array([victim]))[0])
         ctx.victim_noise.append(VictimNoise(rule.name, ctx.net_name(victim), float(totals[victim]) * 1e3,
-                                            limit * 1e3, model, ctx.net_name(int(aggressors[worst])), len(mine)))
+                                            limit * 1e3, model, ctx.net_name(int(aggressors[worst])), len(mine),
+                                            c_tot, c_tot - float(ctx.net_pairs.coupled_pf[victim])))
 
 
 def _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, limit, small_r) -> np.ndarray:
@@ -131,7 +160,7 @@ def _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, l
     if failing.size == 0:
         return scales
     e = ctx.electrical
-    model = crosstalk.lumped_noise_small_r_v if small_r else crosstalk.lumped_noise_v
+    model = crosstalk.lumped_noise_small_r_v if small_r else crosstalk.kcl_noise_v
     entries = np.flatnonzero(np.isin(victims, failing))
     vic, agg = victims[entries], aggressors[entries]
     c12 = ctx.net_pairs.c12_pf[pair[entries]] * 1e-12
@@ -143,7 +172,8 @@ def _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, l
 
     def totals_at(k_of_victim: np.ndarray) -> np.ndarray:
         k = k_of_victim[vic]
-        each = model(e.resistance_ohm[vic], k * c12, ctx.c2g_pf[vic] * 1e-12, e.swing_v[agg], e.frequency_hz[agg])
+        each = model(e.resistance_ohm[vic], k * c12, _c_tot(ctx, vic, k) * 1e-12, e.swing_v[agg],
+                     e.frequency_hz[agg])
         if long_at.any():  # FEXT linear in length; NEXT linear up to saturation, flat beyond
             kl = k[long_at]
             each[long_at] = np.maximum(nxt * np.minimum(1.0, kl * ratio) / np.minimum(1.0, ratio), fxt * kl)
@@ -168,11 +198,24 @@ def _with_grounding(ctx, text, mine, victims, aggressors, pair, noise, long_runs
     if text is None or not np.any(relay > 0):
         return text
     e = ctx.electrical
-    model = crosstalk.lumped_noise_small_r_v if small_r else crosstalk.lumped_noise_v
+    model = crosstalk.lumped_noise_small_r_v if small_r else crosstalk.kcl_noise_v
     vic, agg = victims[mine], aggressors[mine]
-    without = model(e.resistance_ohm[vic], (ctx.net_pairs.c12_pf[pair[mine]] - relay) * 1e-12,
-                    ctx.c2g_pf[vic] * 1e-12, e.swing_v[agg], e.frequency_hz[agg])
+    np_ = ctx.net_pairs
+    c_tot = _c_tot(ctx, vic, 1.0, removed_pf=float(relay.sum()))
+    without = model(e.resistance_ohm[vic], (np_.c12_pf[pair[mine]] - relay) * 1e-12,
+                    c_tot * 1e-12, e.swing_v[agg], e.frequency_hz[agg])
     long_at = np.array([int(i) in long_runs for i in mine.tolist()], dtype=bool)
     without[long_at] = noise[mine][long_at]
     removed = float(noise[mine].sum() - without.sum())
     return text + f"; grounding the floating copper would remove {removed * 1e3:.3g} mV"
+
+
+def _c_tot(ctx, victims: np.ndarray, k=1.0, removed_pf: float = 0.0) -> np.ndarray:
+    """The victim nodes' whole capacitance (pF, ``analysis.node_total_pf``)
+    with every mutual capacitance onto them scaled by ``k`` (what-if) and
+    ``removed_pf`` taken off it (floating copper grounded)."""
+    from ..analysis import node_total_pf
+
+    p = ctx.net_pairs
+    return node_total_pf(p.trace_c2g_pf[victims], k * np.maximum(p.coupled_pf[victims] - removed_pf, 0.0),
+                         p.node_pf[victims])

@@ -89,6 +89,48 @@ def lumped_noise_v(R_ohm, C12_F, C2G_F, V1_V, f_Hz):
     return w * R * c12 * v1 / np.hypot(1.0, w * R * (c12 + c2g))
 
 
+def kcl_noise_v(R_ohm, C1k_F, Ctotal_F, Vk_V, f_Hz):
+    r"""One aggressor's share of the noise on a victim node that several
+    aggressors couple to (V).
+
+    .. math::
+
+        |V_{n,k}| = \frac{\omega_k R C_{1k} V_k}{\sqrt{1 + (\omega_k R C_{tot})^2}},
+        \qquad C_{tot} = C_{1g} + \sum_j C_{1j}
+
+    from Kirchhoff's current law at the victim node with every other net
+    held at AC ground by its driver at :math:`\omega_k` (superposition:
+    one aggressor at a time). :math:`C_{tot}` is the node's whole
+    capacitance, its capacitance to ground in mutual form :math:`C_{1g}`
+    (the Maxwell matrix's row sum) plus its mutual capacitance to every
+    neighbour: the Maxwell diagonal. The victim's noise is the sum of the
+    magnitudes over its aggressors (phases aligned: the worst case). Each
+    share is at most :math:`V_k C_{1k}/C_{tot}`, so the sum never exceeds
+    the capacitive-divider limit :math:`\sum_k V_k C_{1k}/C_{tot}`. With one
+    aggressor, :func:`lumped_noise_v` with ``C2G = C_tot - C12``.
+
+    Parameters
+    ----------
+    R_ohm : array_like
+        Victim node resistance to AC ground, ohm.
+    C1k_F : array_like
+        Mutual capacitance of this aggressor onto the victim, F.
+    Ctotal_F : array_like
+        The victim node's whole capacitance :math:`C_{tot}`, F (not less
+        than the sum of its mutual capacitances).
+    Vk_V, f_Hz : array_like
+        This aggressor's amplitude (V) and frequency (Hz).
+
+    References
+    ----------
+    Nodal analysis (KCL) of the lumped coupling network, as
+    :func:`lumped_noise_v`.
+    """
+    R, c1k, ctot, v, f = _arrays(R_ohm, C1k_F, Ctotal_F, Vk_V, f_Hz)
+    w = 2.0 * np.pi * f
+    return w * R * c1k * v / np.hypot(1.0, w * R * ctot)
+
+
 def lumped_noise_small_r_v(R_ohm, C12_F, C2G_F, V1_V, f_Hz):
     r"""Small-R approximation of :func:`lumped_noise_v`,
     :math:`|V_n| \approx \omega R C_{12} V_1` (V).

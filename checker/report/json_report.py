@@ -120,7 +120,33 @@ def victim_noise_rows(result: Result) -> list[dict]:
     rows = sorted(result.analysis.victim_noise, key=lambda v: (v.rule, -v.noise_mv, v.victim))
     return [{"rule": v.rule, "victim": v.victim, "noise_mv": _round6(v.noise_mv), "budget_mv": _round6(v.budget_mv),
              "model": v.model, "passes": v.passes, "worst_aggressor": v.worst_aggressor,
-             "aggressors": v.aggressors} for v in rows]
+             "aggressors": v.aggressors, "c_total_pf": _finite6(v.c_total_pf),
+             "c_ground_mutual_pf": _finite6(v.c_ground_mutual_pf)} for v in rows]
+
+
+def _finite6(value: float) -> float | None:
+    return _round6(value) if np.isfinite(value) else None
+
+
+#: what each number of the report is, and in which form (the report says so itself)
+QUANTITIES = {
+    "c12_pf": "mutual capacitance between two nets in mutual (SPICE) form: -C_ij of the Maxwell capacitance "
+              "matrix of each coupled cross-section times its coupled length, summed over the runs, plus what "
+              "floating copper and high-impedance third nets relay (relayed_c12_pf)",
+    "relayed_c12_pf": "the part of c12_pf passed on through floating copper (zero net charge) or a "
+                      "high-impedance third net (node eliminated at the aggressor's frequency)",
+    "noise_mv_on": "one aggressor's share of the lumped noise on the victim: w R C_ij V / sqrt(1 + (w R C_tot)^2), "
+                   "Kirchhoff's current law at the victim node with all its neighbours at AC ground",
+    "victim_noise.noise_mv": "the victim's noise: the magnitudes of its aggressors' shares added (phases aligned, "
+                             "the worst case), an electrically long run's larger of NEXT and FEXT in place of its "
+                             "share; never above the capacitive divider sum_k V_k C_ik / C_tot for the lumped shares",
+    "victim_noise.c_total_pf": "the victim node's whole capacitance C_tot = C_ig + sum_k C_ik (the Maxwell "
+                               "diagonal, every neighbour at ground), taken as max(its traces' capacitance to "
+                               "ground computed alone, sum_k C_ik) + its node capacitance: a lower bound, so the "
+                               "noise errs high",
+    "victim_noise.c_ground_mutual_pf": "its capacitance to ground in mutual form, C_tot - sum_k C_ik (the row sum "
+                                       "of the Maxwell matrix)",
+}
 
 
 def _round6(value: float) -> float:
@@ -222,6 +248,7 @@ def build_report(result: Result) -> dict:
         "review": review_dict(result.review),
         "victim_noise": victim_noise_rows(result),
         "net_pairs": _NET_PAIRS,
+        "quantities": QUANTITIES,
         "notes": sorted(set(a.notes)),
         "caution": CAUTION,
     }
