@@ -290,7 +290,8 @@ def test_electrically_long_run_uses_transmission_line_model(tmp_path):
           fast: {nets: ["CLK*"], swing: 1 V, rise_time: 100 ps}
           quiet: {nets: ["SENSE*"], resistance: 50 ohm}
         rules:
-          - {name: n, kind: noise-budget, aggressor: fast, victim: quiet, max_noise: 1 mV}
+          - {name: n, kind: noise-budget, aggressor: fast, victim: quiet, max_noise: 1 mV,
+             long_runs: transmission-line}
     """))
     b = board([track("TOP", "CLK", [[0, 0], [40, 0]]), track("TOP", "SENSE", [[0, 0.3], [40, 0.3]])])
     (f,) = check_board(b, load_ruleset(path)).findings
@@ -299,7 +300,21 @@ def test_electrically_long_run_uses_transmission_line_model(tmp_path):
     m = line_matrices(same_layer_section(b.stackup, 0, 0.15, 0.15, 0.15))
     xt = transmission_line_crosstalk(m, 0.040, 100e-12, 1.0)
     assert f.value == pytest.approx(max(xt.next_v, xt.fext_v) * 1e3, rel=1e-6, abs=0)
-    assert "NEXT" in f.message and "FEXT" in f.message
+    assert "NEXT" in f.message and "FEXT" in f.message and "transmission-line value used" in f.message
+    # by default the larger of that and the lumped share (w R C12 V / sqrt(1 + (w R C_tot)^2),
+    # f = 0.35 / tr, evaluated here) counts; here, on a 50 ohm victim, the lumped one is larger
+    path.write_text(path.read_text().replace("long_runs: transmission-line", "long_runs: larger"))
+    result = check_board(b, load_ruleset(path))
+    (g,) = result.findings
+    a = result.analysis
+    sense = a.board.net_index()["SENSE"]
+    c12 = float(a.net_pairs.c12_pf[0]) * 1e-12
+    c_tot = (max(float(a.c2g_pf[sense]), float(a.net_pairs.c12_pf[0])) * 1e-12)
+    w = 2 * math.pi * 0.35 / 100e-12
+    lumped = w * 50 * c12 * 1.0 / math.sqrt(1 + (w * 50 * c_tot) ** 2)
+    assert lumped > max(xt.next_v, xt.fext_v)
+    assert g.value == pytest.approx(lumped * 1e3, rel=1e-6, abs=0)
+    assert "the larger counts" in g.message and f"lumped {lumped * 1e3:.3g} mV" in g.message
 
 
 def test_spacing_what_if_meets_the_budget_when_applied(tmp_path):
@@ -335,7 +350,8 @@ def test_every_victim_is_listed_with_its_model_passing_or_not(tmp_path):
           slow: {nets: ["SLOW*"], swing: 1 V, frequency: 1 kHz}
           quiet: {nets: ["SENSE*", "REF*"], resistance: 50 ohm}
         rules:
-          - {name: n, kind: noise-budget, aggressor: [fast, slow], victim: quiet, max_noise: 1 mV}
+          - {name: n, kind: noise-budget, aggressor: [fast, slow], victim: quiet, max_noise: 1 mV,
+             long_runs: transmission-line}
     """))
     b = board([track("TOP", "CLK", [[0, 0], [40, 0]]), track("TOP", "SENSE", [[0, 0.3], [40, 0.3]]),
                track("TOP", "SLOW", [[0, 20], [5, 20]]), track("TOP", "REF", [[0, 20.3], [5, 20.3]])])

@@ -6,9 +6,12 @@ from the aggressor class's ``swing`` and ``frequency`` (or ``rise_time``)
 and the victim class's ``resistance`` and ``node_capacitance``; the victim's
 noise is the sum over its aggressors (worst case: all in phase). Where an
 aggressor's longest run onto the victim is electrically long (longer than
-the near-end saturation length tr*v/2), the lumped model does not hold and
-the larger of the run's near-end and far-end crosstalk replaces it (see
-:mod:`checker.longruns`; matched terminations assumed). The finding says
+the near-end saturation length tr*v/2), the larger of the run's near-end and
+far-end crosstalk is worked out too (see :mod:`checker.longruns`; matched
+terminations assumed) and, by default, the larger of it and the lumped value
+counts: a high-impedance victim is far from matched, and on it the lumped
+capacitive divider can exceed the matched-line number (``long_runs:
+transmission-line`` takes the line's number alone). The finding says
 which model gave the number; every victim the rule looked at, passing or
 not, is listed with its noise, budget and model in the reports. Fails when
 it exceeds ``max_noise``. Aggressor nets whose class gives no swing, and
@@ -18,6 +21,7 @@ Options (defaults)::
 
     max_noise: (required)  # e.g. 10 mV
     model: full            # full | small-r (the small-R limit w*R*C12*V1)
+    long_runs: larger      # larger | transmission-line
 
 Noise from several aggressors adds by Kirchhoff's current law at the victim
 node: each aggressor's share is w R C1k V / sqrt(1 + (w R C_tot)^2) with the
@@ -46,6 +50,9 @@ OPTIONS = {
                         help="largest coupled noise on a victim"),
     "model": Option("choice", default="full", choices=("full", "small-r"),
                     help="full lumped model or its small-R limit"),
+    "long_runs": Option("choice", default="larger", choices=("larger", "transmission-line"),
+                        help="electrically long runs: the larger of the lumped and the transmission-line "
+                             "numbers, or the transmission-line number alone"),
 }
 
 
@@ -71,8 +78,13 @@ def check(rule, ctx):
     # electrically long runs: the lumped model does not hold; near-/far-end
     # crosstalk of the run's cross-section replaces it (the worse end counts)
     long_runs = long_run_crosstalk(ctx, list(zip(range(len(pair)), pair.tolist(), aggressors.tolist())))
+    lumped = noise.copy()
+    tl_used = set()  # entries whose number is the transmission-line one
     for i, run in long_runs.items():
-        noise[i] = max(run.crosstalk.next_v, run.crosstalk.fext_v)
+        tl = max(run.crosstalk.next_v, run.crosstalk.fext_v)
+        if rule.options["long_runs"] == "transmission-line" or tl >= lumped[i]:
+            noise[i] = tl
+            tl_used.add(i)
     totals = np.bincount(victims, weights=noise, minlength=len(ctx.board.nets))
     # the small-R limit holds only while x = w R C_tot is small: per victim, the largest x
     e = ctx.electrical
@@ -83,10 +95,11 @@ def check(rule, ctx):
                         minlength=len(ctx.board.nets)) if small_r else None)
     by_victim = np.argsort(victims, kind="stable")
     starts = np.searchsorted(victims[by_victim], np.arange(len(ctx.board.nets) + 1))
-    _record_victims(ctx, rule, victims, aggressors, noise, totals, by_victim, starts, long_runs, limit, small_r,
+    _record_victims(ctx, rule, victims, aggressors, noise, totals, by_victim, starts, tl_used, limit, small_r,
                     worst_x)
     failing = np.flatnonzero(totals > limit)
-    scales = _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, limit, small_r)
+    scales = _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, limit, small_r,
+                                    rule.options["long_runs"] != "transmission-line")
     longest = ctx.longest_run_mm(pair[np.isin(victims, failing)])
     answered = set(failing[np.argsort(-totals[failing], kind="stable")][:SPACING_ANSWERS].tolist())
     for victim in failing:
@@ -109,19 +122,23 @@ def check(rule, ctx):
                     f"{float(full[victim]) * 1e3:.3g} mV")
         elif small_r:
             how += " (in range)"
-        long_here = [(int(aggressors[i]), long_runs[int(i)]) for i in order if int(i) in long_runs]
+        long_here = [(int(i), long_runs[int(i)]) for i in order if int(i) in long_runs]
         if long_here:
+            which = ("transmission-line value used" if rule.options["long_runs"] == "transmission-line"
+                     else "the larger counts")
             how += "; electrically long: " + ", ".join(
-                f"{ctx.net_name(a)} over {r.crosstalk.coupled_length_m * 1e3:.1f} mm on {'/'.join(r.layers)} "
-                f"NEXT {r.crosstalk.next_v * 1e3:.3g} mV, FEXT {r.crosstalk.fext_v * 1e3:.3g} mV"
-                for a, r in long_here)
+                f"{ctx.net_name(int(aggressors[i]))} over {r.crosstalk.coupled_length_m * 1e3:.1f} mm on "
+                f"{'/'.join(r.layers)} NEXT {r.crosstalk.next_v * 1e3:.3g} mV, FEXT {r.crosstalk.fext_v * 1e3:.3g} mV "
+                f"(matched terminations), lumped {lumped[i] * 1e3:.3g} mV"
+                for i, r in long_here) + f" ({which})"
         yield make_finding(
             ctx, rule, aggressor=main, victim=int(victim), layers=layers,
             bbox=bbox, at=at, value=total * 1e3, limit=limit * 1e3, unit="mV", excess=total / limit,
             message=(f"{ctx.net_name(int(victim))} picks up {total * 1e3:.3g} mV from {names} "
                      f"({how}; budget {limit * 1e3:.3g} mV)"),
             c12_pf=float(np_.c12_pf[pair[mine]].sum()), noise_mv=total * 1e3,
-            noise_model="transmission-line" if long_here else ("small-r" if small_r else "lumped"),
+            noise_model=("transmission-line" if any(i in tl_used for i, _ in long_here)
+                         else ("small-r" if small_r else "lumped")),
             keep_fraction=scale, extra_spacing_mm=extra if extra is not False else None,
             suggestion=shorten_text(scale, float(longest[pair[mine]].max()), c12_now, extra),
             coupling_path=_with_grounding(ctx, path_text(ctx, rows), mine, victims, aggressors, pair, noise,
@@ -129,7 +146,7 @@ def check(rule, ctx):
         )
 
 
-def _record_victims(ctx, rule, victims, aggressors, noise, totals, by_victim, starts, long_runs, limit,
+def _record_victims(ctx, rule, victims, aggressors, noise, totals, by_victim, starts, tl_used, limit,
                     small_r, worst_x) -> None:
     """Every victim this rule looked at, passing or not, with the model that
     gave its number (``Analysis.victim_noise``; the reports list them)."""
@@ -139,7 +156,7 @@ def _record_victims(ctx, rule, victims, aggressors, noise, totals, by_victim, st
     for victim in np.unique(victims).tolist():
         mine = by_victim[starts[victim]:starts[victim + 1]]
         worst = int(mine[np.argmax(noise[mine])])
-        model = "transmission-line" if any(int(i) in long_runs for i in mine.tolist()) else plain
+        model = "transmission-line" if any(int(i) in tl_used for i in mine.tolist()) else plain
         if model == "small-r" and worst_x[victim] > SMALL_R_LIMIT:
             model = "small-r (out of range)"
         c_tot = float(_c_tot(ctx, np.array([victim]))[0])
@@ -148,7 +165,8 @@ def _record_victims(ctx, rule, victims, aggressors, noise, totals, by_victim, st
                                             c_tot, c_tot - float(ctx.net_pairs.coupled_pf[victim])))
 
 
-def _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, limit, small_r) -> np.ndarray:
+def _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, limit, small_r,
+                           larger: bool = True) -> np.ndarray:
     """Per victim in ``failing``: the largest fraction k of today's coupling
     (every aggressor's C12 onto it, and its long runs' lengths, scaled by k)
     whose total noise meets ``limit``, by the same models; bisection run on
@@ -176,7 +194,8 @@ def _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, l
                      e.frequency_hz[agg])
         if long_at.any():  # FEXT linear in length; NEXT linear up to saturation, flat beyond
             kl = k[long_at]
-            each[long_at] = np.maximum(nxt * np.minimum(1.0, kl * ratio) / np.minimum(1.0, ratio), fxt * kl)
+            tl = np.maximum(nxt * np.minimum(1.0, kl * ratio) / np.minimum(1.0, ratio), fxt * kl)
+            each[long_at] = np.maximum(tl, each[long_at]) if larger else tl
         return np.bincount(vic, weights=each, minlength=len(ctx.board.nets))
 
     lo, hi = np.zeros(len(ctx.board.nets)), np.ones(len(ctx.board.nets))
