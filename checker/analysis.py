@@ -98,6 +98,13 @@ class NetElectrical:
     frequency_hz: np.ndarray
     resistance_ohm: np.ndarray
     node_capacitance_f: np.ndarray
+    #: the aggressor's declared waveform (its class's ``frequency``,
+    #: ``rise_time`` and ``duty``; NaN where not given) and the victim's
+    #: filter corner (``bandwidth`` or its RC; NaN: unfiltered)
+    clock_hz: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    rise_time_s: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    duty: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    corner_hz: np.ndarray = field(default_factory=lambda: np.zeros(0))
 
 
 @dataclass
@@ -161,6 +168,8 @@ class VictimNoise:
     aggressors: int
     c_total_pf: float = float("nan")
     c_ground_mutual_pf: float = float("nan")
+    #: a filtered victim: its noise with the filter left out (mV); NaN otherwise
+    unfiltered_mv: float = float("nan")
 
     @property
     def passes(self) -> bool:
@@ -272,7 +281,8 @@ def electrical_attributes(board: Board, ruleset: RuleSet, classes: list[tuple[st
     """Per-net electrical attributes from the net classes (first class wins
     per attribute, in rule-file order)."""
     n = len(board.nets)
-    out = NetElectrical(np.full(n, np.nan), np.full(n, np.nan), np.full(n, np.nan), np.zeros(n))
+    out = NetElectrical(np.full(n, np.nan), np.full(n, np.nan), np.full(n, np.nan), np.zeros(n),
+                        np.full(n, np.nan), np.full(n, np.nan), np.full(n, np.nan), np.full(n, np.nan))
     by_name: dict[str, NetClass] = {c.name: c for c in ruleset.classes}
     factor = ruleset.settings.bandwidth_factor
     for i, names in enumerate(classes):
@@ -288,6 +298,10 @@ def electrical_attributes(board: Board, ruleset: RuleSet, classes: list[tuple[st
                 out.resistance_ohm[i] = cls.resistance_ohm
             if node_c is None and cls.node_capacitance_f:
                 node_c = cls.node_capacitance_f
+            for arr, value in ((out.clock_hz, cls.frequency_hz), (out.rise_time_s, cls.rise_time_s),
+                               (out.duty, cls.duty), (out.corner_hz, cls.victim_corner_hz())):
+                if np.isnan(arr[i]) and value is not None:
+                    arr[i] = value
         out.node_capacitance_f[i] = node_c or 0.0
     return out
 

@@ -32,6 +32,7 @@ import fnmatch
 import hashlib
 import importlib.resources
 import json
+import math
 import os
 import pathlib
 import re
@@ -112,6 +113,18 @@ CLASS_SCHEMA: dict[str, tuple[str, Option]] = {
     "node_capacitance": ("node_capacitance_f", Option(
         "capacitance", default=0.0, minimum=0.0,
         help="victim: lumped capacitance of the node besides its traces")),
+    "duty": ("duty", Option(
+        "ratio", minimum=0.0, maximum=1.0, exclusive_minimum=True,
+        help="aggressor: share of the period spent high, for its trapezoidal spectrum (default 0.5)")),
+    "bandwidth": ("bandwidth_hz", Option(
+        "frequency", minimum=0.0, exclusive_minimum=True,
+        help="victim: -3 dB bandwidth of what reads the node (a single-pole filter)")),
+    "filter_resistance": ("filter_resistance_ohm", Option(
+        "resistance", minimum=0.0, exclusive_minimum=True,
+        help="victim: R of an RC low-pass between the node and what reads it (with filter_capacitance)")),
+    "filter_capacitance": ("filter_capacitance_f", Option(
+        "capacitance", minimum=0.0, exclusive_minimum=True,
+        help="victim: C of that RC low-pass (with filter_resistance)")),
 }
 CLASS_KEYS: tuple[str, ...] = ("nets", *CLASS_SCHEMA)
 
@@ -159,6 +172,10 @@ class NetClass:
     rise_time_s: float | None
     resistance_ohm: float | None
     node_capacitance_f: float = 0.0
+    duty: float | None = None
+    bandwidth_hz: float | None = None
+    filter_resistance_ohm: float | None = None
+    filter_capacitance_f: float | None = None
     _compiled: tuple[re.Pattern[str], ...] = field(init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
@@ -169,11 +186,23 @@ class NetClass:
         return any(rx.search(net_name) for rx in self._compiled)
 
     def aggressor_frequency_hz(self, bandwidth_factor: float) -> float | None:
-        """``frequency`` if given, else ``bandwidth_factor / rise_time``, else None."""
+        """The one frequency of the lumped model: ``frequency``, or
+        ``bandwidth_factor / rise_time``, the higher where both are given
+        (the lumped noise rises with frequency: the higher errs high), else
+        None."""
+        edge = bandwidth_factor / self.rise_time_s if self.rise_time_s is not None else None
         if self.frequency_hz is not None:
-            return self.frequency_hz
-        if self.rise_time_s is not None:
-            return bandwidth_factor / self.rise_time_s
+            return max(self.frequency_hz, edge) if edge is not None else self.frequency_hz
+        return edge
+
+    def victim_corner_hz(self) -> float | None:
+        """The corner of the victim's single-pole filter: ``bandwidth``, or
+        1 / (2 pi R C) of ``filter_resistance`` and ``filter_capacitance``,
+        else None (unfiltered)."""
+        if self.bandwidth_hz is not None:
+            return self.bandwidth_hz
+        if self.filter_resistance_ohm is not None and self.filter_capacitance_f is not None:
+            return 1.0 / (2.0 * math.pi * self.filter_resistance_ohm * self.filter_capacitance_f)
         return None
 
 
@@ -528,9 +557,13 @@ def _parse_classes(value: Any, file: str) -> dict[str, NetClass]:
                 values[attr] = _read_option(body[key], opt, file, _join(place, key))
             else:
                 values[attr] = opt.default
-        if values["frequency_hz"] is not None and values["rise_time_s"] is not None:
-            raise RuleError(file, _join(place, "rise_time"),
-                            "give either frequency or rise_time, not both")
+        if (values["filter_resistance_ohm"] is None) != (values["filter_capacitance_f"] is None):
+            missing = "filter_capacitance" if values["filter_capacitance_f"] is None else "filter_resistance"
+            raise RuleError(file, _join(place, missing),
+                            "an RC filter needs both filter_resistance and filter_capacitance")
+        if values["bandwidth_hz"] is not None and values["filter_resistance_ohm"] is not None:
+            raise RuleError(file, _join(place, "bandwidth"),
+                            "give either bandwidth or filter_resistance and filter_capacitance, not both")
         out[name] = NetClass(name=name, patterns=patterns, **values)
     return out
 
@@ -859,6 +892,10 @@ def _canonical(settings: Settings, classes: Sequence[NetClass], rules: Sequence[
                 "rise_time_s": c.rise_time_s,
                 "resistance_ohm": c.resistance_ohm,
                 "node_capacitance_f": c.node_capacitance_f,
+                "duty": c.duty,
+                "bandwidth_hz": c.bandwidth_hz,
+                "filter_resistance_ohm": c.filter_resistance_ohm,
+                "filter_capacitance_f": c.filter_capacitance_f,
             }
             for c in classes
         ],

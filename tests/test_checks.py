@@ -392,3 +392,39 @@ def test_small_r_limit_says_when_it_is_out_of_range(tmp_path):
     assert f"the full model, which gives {full.findings[0].value:.3g} mV" in f.message
     assert f.value == pytest.approx(full.findings[0].value * math.hypot(1, x), rel=1e-9)
     assert small.analysis.victim_noise[0].model == "small-r (out of range)"
+
+
+def test_filtered_victim_is_judged_in_its_band(tmp_path):
+    """The same clock run onto SENSE_RAW (unfiltered) and SENSE_LPF (filtered
+    to 1 kHz by its class's RC: 1.59 kohm x 100 nF): the unfiltered one fails
+    a 1 mV budget, the filtered one passes with the peak of the 10 MHz
+    trapezoid's harmonics in its band (physics.spectrum.filtered_noise_v,
+    itself checked against scipy's FFT and a scipy.signal time-domain solve)."""
+    from checker.physics.spectrum import filtered_noise_v
+
+    path = tmp_path / "lpf.yaml"
+    path.write_text(textwrap.dedent("""
+        version: 1
+        net_classes:
+          fast: {nets: ["CLK*"], swing: 3.3 V, frequency: 10 MHz, rise_time: 2 ns}
+          quiet: {nets: ["SENSE*"], resistance: 10 kohm, node_capacitance: 10 pF}
+          lpf: {nets: ["*_LPF"], filter_resistance: 1.59 kohm, filter_capacitance: 100 nF}
+        rules:
+          - {name: n, kind: noise-budget, aggressor: fast, victim: quiet, max_noise: 1 mV}
+    """))
+    b = board([track("TOP", "CLK", [[0, 0], [10, 0]]), track("IN1", "SENSE_RAW", [[0, 0], [10, 0]]),
+               track("TOP", "CLK2", [[0, 20], [10, 20]]), track("IN1", "SENSE_LPF", [[0, 20], [10, 20]])])
+    result = check_board(b, load_ruleset(path))
+    assert [f.victim for f in result.findings] == ["SENSE_RAW"]
+    rows = {v.victim: v for v in result.analysis.victim_noise}
+    a = result.analysis
+    idx = a.board.net_index()
+    lpf, clk2 = idx["SENSE_LPF"], idx["CLK2"]
+    p = a.net_pairs
+    c12 = float(p.c12_pf[(p.net_a == min(lpf, clk2)) & (p.net_b == max(lpf, clk2))][0]) * 1e-12
+    c_tot = max(float(a.c2g_pf[lpf]) - 10.0, c12 * 1e12) * 1e-12 + 10e-12
+    corner = 1 / (2 * math.pi * 1.59e3 * 100e-9)
+    peak = filtered_noise_v(1e4, c12, c_tot, 3.3, 10e6, 2e-9, None, corner)[0]
+    assert rows["SENSE_LPF"].noise_mv == pytest.approx(peak * 1e3, rel=1e-9)
+    assert rows["SENSE_LPF"].passes and not rows["SENSE_RAW"].passes
+    assert rows["SENSE_LPF"].noise_mv < 0.01 * rows["SENSE_RAW"].noise_mv

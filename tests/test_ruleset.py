@@ -78,7 +78,9 @@ def test_default_set_loads_with_the_documented_values():
                                                    "VSS*", "0V", "[0-9]V[0-9]*", "+[0-9]*V*", "VCC", "VCC_*",
                                                    "VDD", "VDD_*"))
     classes = {c.name: c for c in rs.classes}
-    assert list(classes) == ["clocks", "switch-nodes", "sensitive-analog"]
+    assert list(classes) == ["clocks", "switch-nodes", "sensitive-analog", "filtered-analog"]
+    assert classes["filtered-analog"].patterns == ("*_LPF",)
+    assert classes["filtered-analog"].bandwidth_hz == 10.0 and classes["filtered-analog"].victim_corner_hz() == 10.0
     assert classes["clocks"].patterns == ("*CLK*", "*SCK*")
     assert classes["clocks"].swing_v == 3.3 and classes["clocks"].frequency_hz == 25e6
     assert classes["switch-nodes"].patterns == ("SW_*", "*_SW", "*PHASE*")
@@ -361,9 +363,14 @@ ERROR_CASES = [
                  "net_classes.fast.rise_time", "must be > 0 ns, got 0 ns", id="class-rise-time-zero"),
     pytest.param("version: 1\nnet_classes:\n  fast:\n    nets: [F]\n    rise_time: -1 ns\n",
                  "net_classes.fast.rise_time", "must be > 0 ns, got -1 ns", id="class-rise-time-negative"),
-    pytest.param("version: 1\nnet_classes:\n  fast:\n    nets: [F]\n    frequency: 1 MHz\n    rise_time: 1 ns\n",
-                 "net_classes.fast.rise_time", "give either frequency or rise_time, not both",
-                 id="class-frequency-and-rise-time"),
+    pytest.param("version: 1\nnet_classes:\n  v:\n    nets: [V]\n    filter_resistance: 1 kohm\n",
+                 "net_classes.v.filter_capacitance", "an RC filter needs both filter_resistance and "
+                 "filter_capacitance", id="class-filter-half"),
+    pytest.param("version: 1\nnet_classes:\n  v:\n    nets: [V]\n    bandwidth: 10 Hz\n"
+                 "    filter_resistance: 1 kohm\n    filter_capacitance: 100 nF\n",
+                 "net_classes.v.bandwidth", "give either bandwidth or filter_resistance", id="class-filter-twice"),
+    pytest.param("version: 1\nnet_classes:\n  fast:\n    nets: [F]\n    duty: 1.5\n",
+                 "net_classes.fast.duty", "must be > 0 and <= 1, got 1.5", id="class-duty-above-one"),
     pytest.param("version: 1\nnet_classes:\n  fast:\n    nets: [F]\n    swing: 3.3 A\n",
                  "net_classes.fast.swing", "unknown voltage unit 'A' (accepted: V, mV)", id="class-unit"),
     pytest.param("version: 1\nnet_classes:\n  v:\n    nets: [V]\n    node_capacitance: -1 pF\n",

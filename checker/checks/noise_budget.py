@@ -22,6 +22,7 @@ Options (defaults)::
     max_noise: (required)  # e.g. 10 mV
     model: full            # full | small-r (the small-R limit w*R*C12*V1)
     long_runs: larger      # larger | transmission-line
+    measure: peak          # peak | rms (filtered victims only)
 
 Noise from several aggressors adds by Kirchhoff's current law at the victim
 node: each aggressor's share is w R C1k V / sqrt(1 + (w R C_tot)^2) with the
@@ -50,6 +51,9 @@ OPTIONS = {
                         help="largest coupled noise on a victim"),
     "model": Option("choice", default="full", choices=("full", "small-r"),
                     help="full lumped model or its small-R limit"),
+    "measure": Option("choice", default="peak", choices=("peak", "rms"),
+                      help="filtered victims: the peak (sum of harmonic amplitudes, an upper bound) or the "
+                           "RMS of the noise in the victim's band"),
     "long_runs": Option("choice", default="larger", choices=("larger", "transmission-line"),
                         help="electrically long runs: the larger of the lumped and the transmission-line "
                              "numbers, or the transmission-line number alone"),
@@ -75,6 +79,11 @@ def check(rule, ctx):
     pair = np.concatenate([np.arange(len(np_)), np.arange(len(np_))])
     use = agg_ok[aggressors] & vic_ok[victims] & np.isfinite(noise)
     aggressors, victims, noise, pair = aggressors[use], victims[use], noise[use], pair[use]
+    # filtered victims: the aggressor's trapezoidal spectrum in the victim's band (not with small-r)
+    unfiltered = noise.copy()
+    filtered = _filtered_entries(ctx, aggressors, victims) if not small_r else np.zeros(0, np.int64)
+    if filtered.size:
+        noise[filtered] = _filtered_shares(ctx, rule, filtered, aggressors, victims, pair, 1.0)
     # electrically long runs: the lumped model does not hold; near-/far-end
     # crosstalk of the run's cross-section replaces it (the worse end counts)
     long_runs = long_run_crosstalk(ctx, list(zip(range(len(pair)), pair.tolist(), aggressors.tolist())))
@@ -96,10 +105,11 @@ def check(rule, ctx):
     by_victim = np.argsort(victims, kind="stable")
     starts = np.searchsorted(victims[by_victim], np.arange(len(ctx.board.nets) + 1))
     _record_victims(ctx, rule, victims, aggressors, noise, totals, by_victim, starts, tl_used, limit, small_r,
-                    worst_x)
+                    worst_x, set(filtered.tolist()), unfiltered)
     failing = np.flatnonzero(totals > limit)
     scales = _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, limit, small_r,
-                                    rule.options["long_runs"] != "transmission-line")
+                                    rule.options["long_runs"] != "transmission-line",
+                                    (rule, filtered))
     longest = ctx.longest_run_mm(pair[np.isin(victims, failing)])
     answered = set(failing[np.argsort(-totals[failing], kind="stable")][:SPACING_ANSWERS].tolist())
     for victim in failing:
@@ -116,6 +126,11 @@ def check(rule, ctx):
         others = len(order) - 1
         names = ctx.net_name(main) + (f" and {others} more" if others else "")
         how = "small-R limit" if small_r else "lumped model"
+        band = [int(i) for i in order if int(i) in set(filtered.tolist())]
+        if band:
+            measure = rule.options["measure"]
+            how += (f"; filtered to {ctx.electrical.corner_hz[victim]:.3g} Hz: the {measure} of the aggressor's "
+                    f"trapezoidal spectrum in that band, {float(unfiltered[band].sum()) * 1e3:.3g} mV unfiltered")
         if small_r and worst_x[victim] > SMALL_R_LIMIT:
             how += (f", out of range: w R C_tot = {worst_x[victim]:.3g} > {SMALL_R_LIMIT:.3g}, it reads up to "
                     f"{np.hypot(1.0, worst_x[victim]):.3g} x the full model, which gives "
@@ -138,7 +153,8 @@ def check(rule, ctx):
                      f"({how}; budget {limit * 1e3:.3g} mV)"),
             c12_pf=float(np_.c12_pf[pair[mine]].sum()), noise_mv=total * 1e3,
             noise_model=("transmission-line" if any(i in tl_used for i, _ in long_here)
-                         else ("small-r" if small_r else "lumped")),
+                         else ("small-r" if small_r else
+                               (f"lumped, {rule.options['measure']} in band" if band else "lumped"))),
             keep_fraction=scale, extra_spacing_mm=extra if extra is not False else None,
             suggestion=shorten_text(scale, float(longest[pair[mine]].max()), c12_now, extra),
             coupling_path=_with_grounding(ctx, path_text(ctx, rows), mine, victims, aggressors, pair, noise,
@@ -147,7 +163,7 @@ def check(rule, ctx):
 
 
 def _record_victims(ctx, rule, victims, aggressors, noise, totals, by_victim, starts, tl_used, limit,
-                    small_r, worst_x) -> None:
+                    small_r, worst_x, in_band=frozenset(), unfiltered=None) -> None:
     """Every victim this rule looked at, passing or not, with the model that
     gave its number (``Analysis.victim_noise``; the reports list them)."""
     from ..analysis import VictimNoise
@@ -159,14 +175,20 @@ def _record_victims(ctx, rule, victims, aggressors, noise, totals, by_victim, st
         model = "transmission-line" if any(int(i) in tl_used for i in mine.tolist()) else plain
         if model == "small-r" and worst_x[victim] > SMALL_R_LIMIT:
             model = "small-r (out of range)"
+        band_entries = [int(i) for i in mine.tolist() if int(i) in in_band]
+        if model == "lumped" and band_entries:
+            model = f"lumped, {rule.options['measure']} in band"
+        # a filtered victim's noise with the filter left out: the unfiltered shares where filtered
+        raw = (float(totals[victim] - noise[band_entries].sum() + unfiltered[band_entries].sum()) * 1e3
+               if band_entries and unfiltered is not None else float("nan"))
         c_tot = float(_c_tot(ctx, np.array([victim]))[0])
         ctx.victim_noise.append(VictimNoise(rule.name, ctx.net_name(victim), float(totals[victim]) * 1e3,
                                             limit * 1e3, model, ctx.net_name(int(aggressors[worst])), len(mine),
-                                            c_tot, c_tot - float(ctx.net_pairs.coupled_pf[victim])))
+                                            c_tot, c_tot - float(ctx.net_pairs.coupled_pf[victim]), raw))
 
 
 def _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, limit, small_r,
-                           larger: bool = True) -> np.ndarray:
+                           larger: bool = True, band=None) -> np.ndarray:
     """Per victim in ``failing``: the largest fraction k of today's coupling
     (every aggressor's C12 onto it, and its long runs' lengths, scaled by k)
     whose total noise meets ``limit``, by the same models; bisection run on
@@ -183,6 +205,8 @@ def _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, l
     vic, agg = victims[entries], aggressors[entries]
     c12 = ctx.net_pairs.c12_pf[pair[entries]] * 1e-12
     long_at = np.array([int(i) in long_runs for i in entries.tolist()], dtype=bool)
+    in_band = (np.flatnonzero(np.isin(entries, band[1])) if band is not None and band[1].size
+               else np.zeros(0, np.int64))
     runs = [long_runs[int(i)].crosstalk for i in entries[long_at].tolist()]
     nxt = np.array([x.next_v for x in runs])
     fxt = np.array([x.fext_v for x in runs])
@@ -192,6 +216,8 @@ def _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, l
         k = k_of_victim[vic]
         each = model(e.resistance_ohm[vic], k * c12, _c_tot(ctx, vic, k) * 1e-12, e.swing_v[agg],
                      e.frequency_hz[agg])
+        if in_band.size:  # filtered victims: the spectrum at this fraction of the coupling
+            each[in_band] = _filtered_shares(ctx, band[0], entries[in_band], aggressors, victims, pair, k[in_band])
         if long_at.any():  # FEXT linear in length; NEXT linear up to saturation, flat beyond
             kl = k[long_at]
             tl = np.maximum(nxt * np.minimum(1.0, kl * ratio) / np.minimum(1.0, ratio), fxt * kl)
@@ -238,3 +264,34 @@ def _c_tot(ctx, victims: np.ndarray, k=1.0, removed_pf: float = 0.0) -> np.ndarr
     p = ctx.net_pairs
     return node_total_pf(p.trace_c2g_pf[victims], k * np.maximum(p.coupled_pf[victims] - removed_pf, 0.0),
                          p.node_pf[victims])
+
+
+def _filtered_entries(ctx, aggressors: np.ndarray, victims: np.ndarray) -> np.ndarray:
+    """Entries whose victim declares a filter and whose aggressor a period."""
+    e = ctx.electrical
+    ok = np.isfinite(e.corner_hz[victims]) & np.isfinite(e.clock_hz[aggressors]) & (e.clock_hz[aggressors] > 0)
+    return np.flatnonzero(ok)
+
+
+def _filtered_shares(ctx, rule, entries: np.ndarray, aggressors, victims, pair, k) -> np.ndarray:
+    """Per entry: the noise in the victim's band (peak or RMS, the rule's
+    ``measure``) of the aggressor's trapezoidal spectrum through the lumped
+    coupling network at ``k`` times today's coupling
+    (``physics.spectrum.filtered_noise_v``)."""
+    from ..physics.spectrum import filtered_noise_v
+
+    e = ctx.electrical
+    k = np.broadcast_to(np.asarray(k, float), entries.shape)
+    vic, agg = victims[entries], aggressors[entries]
+    c12 = ctx.net_pairs.c12_pf[pair[entries]] * 1e-12
+    c_tot = _c_tot(ctx, vic, k) * 1e-12
+    out = np.empty(entries.size)
+    pick = 0 if rule.options["measure"] == "peak" else 1
+    for j in range(entries.size):
+        a, v = int(agg[j]), int(vic[j])
+        tr = float(e.rise_time_s[a])
+        duty = float(e.duty[a])
+        out[j] = filtered_noise_v(float(e.resistance_ohm[v]), float(k[j] * c12[j]), float(c_tot[j]),
+                                  float(e.swing_v[a]), float(e.clock_hz[a]), tr if np.isfinite(tr) else None,
+                                  duty if np.isfinite(duty) else None, float(e.corner_hz[v]))[pick]
+    return out

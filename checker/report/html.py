@@ -487,7 +487,8 @@ def _victims(result: Result) -> str:
         verdict = "within budget" if v.passes else "over budget"
         out.append(f"<tr><td>{_e(v.rule)}</td><td class=\"nets\">{_e(v.victim)}</td>"
                    f'<td class="r">{_e(_num(v.noise_mv, 3))} mV</td><td class="r">{_e(_num(v.budget_mv, 3))} mV</td>'
-                   f"<td>{_e(v.model)}</td><td>{_e(v.worst_aggressor + more)}</td><td>{verdict}</td></tr>\n")
+                   f"<td>{_e(v.model + (f'; {v.unfiltered_mv:.3g} mV unfiltered' if v.unfiltered_mv >= 0 else ''))}"
+                   f"</td><td>{_e(v.worst_aggressor + more)}</td><td>{verdict}</td></tr>\n")
     out.append("</tbody>\n</table>\n</section>\n")
     return "".join(out)
 

@@ -121,7 +121,8 @@ def victim_noise_rows(result: Result) -> list[dict]:
     return [{"rule": v.rule, "victim": v.victim, "noise_mv": _round6(v.noise_mv), "budget_mv": _round6(v.budget_mv),
              "model": v.model, "passes": v.passes, "worst_aggressor": v.worst_aggressor,
              "aggressors": v.aggressors, "c_total_pf": _finite6(v.c_total_pf),
-             "c_ground_mutual_pf": _finite6(v.c_ground_mutual_pf)} for v in rows]
+             "c_ground_mutual_pf": _finite6(v.c_ground_mutual_pf),
+             "unfiltered_mv": _finite6(v.unfiltered_mv)} for v in rows]
 
 
 def _finite6(value: float) -> float | None:
@@ -144,6 +145,8 @@ QUANTITIES = {
                                "diagonal, every neighbour at ground), taken as max(its traces' capacitance to "
                                "ground computed alone, sum_k C_ik) + its node capacitance: a lower bound, so the "
                                "noise errs high",
+    "victim_noise.unfiltered_mv": "a filtered victim (class bandwidth or RC): its noise with the filter left out; "
+                                  "null for an unfiltered one",
     "victim_noise.c_ground_mutual_pf": "its capacitance to ground in mutual form, C_tot - sum_k C_ik (the row sum "
                                        "of the Maxwell matrix)",
 }

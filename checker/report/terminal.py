@@ -99,7 +99,8 @@ def _render_victims(result: Result, console: Console) -> None:
         for v in mine[:VICTIM_ROWS]:
             mark = "ok  " if v.passes else "FAIL"
             more = f" and {v.aggressors - 1} more" if v.aggressors > 1 else ""
-            console.print(f"  {mark} {v.victim}: {v.noise_mv:.3g} mV ({v.model}; from {v.worst_aggressor}{more})",
+            raw = f"; {v.unfiltered_mv:.3g} mV unfiltered" if v.unfiltered_mv >= 0 else ""
+            console.print(f"  {mark} {v.victim}: {v.noise_mv:.3g} mV ({v.model}; from {v.worst_aggressor}{more}{raw})",
                           highlight=False, markup=False)
         if len(mine) > VICTIM_ROWS:
             console.print(f"  ... {len(mine) - VICTIM_ROWS} more victims in the JSON report (victim_noise)",
