@@ -567,7 +567,8 @@ def _broadside_c12(board: Board, t: PairTable, upper: int, lower: int, search_mm
 
 
 def _accurate_note(what: str, model) -> str:
-    return (f"accurate mode, {what}: {model.solves} direct field solves, one per distinct cross-section "
+    return (f"accurate mode, {what}: {model.solves} direct field solves (resolutions 1 and 2, extrapolated), "
+            f"one per distinct cross-section "
             f"(widths and spacing rounded to {model.grid_mm * 1000:g} um)")
 
 
