@@ -43,6 +43,8 @@ class LongRun:
     crosstalk: Crosstalk
     layers: tuple[str, ...]
     coupling: str  # "broadside" or "edge"
+    #: the run's per-unit-length matrices (aggressor 0, victim 1)
+    matrices: LineMatrices | None = None
 
 
 def longest_runs(ctx, pairs: np.ndarray) -> dict[int, np.ndarray]:
@@ -101,7 +103,7 @@ def long_run_crosstalk(ctx, entries: list[tuple[int, int, int]]) -> dict[int, Lo
         m = cache[section_key]
         if not is_electrically_long(length_m, tr, m.velocity):
             continue
-        out[entry] = LongRun(transmission_line_crosstalk(m, length_m, tr, float(v1)), layers, coupling)
+        out[entry] = LongRun(transmission_line_crosstalk(m, length_m, tr, float(v1)), layers, coupling, m)
     return out
 
 

@@ -89,8 +89,8 @@ def check(rule, ctx):
     long_runs = long_run_crosstalk(ctx, list(zip(range(len(pair)), pair.tolist(), aggressors.tolist())))
     lumped = noise.copy()
     tl_used = set()  # entries whose number is the transmission-line one
-    for i, run in long_runs.items():
-        tl = max(run.crosstalk.next_v, run.crosstalk.fext_v)
+    terminated = {i: _terminated(ctx, run, int(aggressors[i]), int(victims[i])) for i, run in long_runs.items()}
+    for i, tl in terminated.items():
         if rule.options["long_runs"] == "transmission-line" or tl >= lumped[i]:
             noise[i] = tl
             tl_used.add(i)
@@ -107,7 +107,7 @@ def check(rule, ctx):
     _record_victims(ctx, rule, victims, aggressors, noise, totals, by_victim, starts, tl_used, limit, small_r,
                     worst_x, set(filtered.tolist()), unfiltered)
     failing = np.flatnonzero(totals > limit)
-    scales = _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, limit, small_r,
+    scales = _scales_meeting_budget(ctx, failing, victims, aggressors, pair, terminated, limit, small_r,
                                     rule.options["long_runs"] != "transmission-line",
                                     (rule, filtered))
     longest = ctx.longest_run_mm(pair[np.isin(victims, failing)])
@@ -143,8 +143,9 @@ def check(rule, ctx):
                      else "the larger counts")
             how += "; electrically long: " + ", ".join(
                 f"{ctx.net_name(int(aggressors[i]))} over {r.crosstalk.coupled_length_m * 1e3:.1f} mm on "
-                f"{'/'.join(r.layers)} NEXT {r.crosstalk.next_v * 1e3:.3g} mV, FEXT {r.crosstalk.fext_v * 1e3:.3g} mV "
-                f"(matched terminations), lumped {lumped[i] * 1e3:.3g} mV"
+                f"{'/'.join(r.layers)} {terminated[i] * 1e3:.3g} mV with the victim's terminations (matched "
+                f"ends would give NEXT {r.crosstalk.next_v * 1e3:.3g} mV, FEXT {r.crosstalk.fext_v * 1e3:.3g} mV), "
+                f"lumped {lumped[i] * 1e3:.3g} mV"
                 for i, r in long_here) + f" ({which})"
         yield make_finding(
             ctx, rule, aggressor=main, victim=int(victim), layers=layers,
@@ -207,10 +208,7 @@ def _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, l
     long_at = np.array([int(i) in long_runs for i in entries.tolist()], dtype=bool)
     in_band = (np.flatnonzero(np.isin(entries, band[1])) if band is not None and band[1].size
                else np.zeros(0, np.int64))
-    runs = [long_runs[int(i)].crosstalk for i in entries[long_at].tolist()]
-    nxt = np.array([x.next_v for x in runs])
-    fxt = np.array([x.fext_v for x in runs])
-    ratio = np.array([x.coupled_length_m / x.saturation_length_m for x in runs])
+    line = np.array([long_runs[int(i)] for i in entries[long_at].tolist()])
 
     def totals_at(k_of_victim: np.ndarray) -> np.ndarray:
         k = k_of_victim[vic]
@@ -218,9 +216,8 @@ def _scales_meeting_budget(ctx, failing, victims, aggressors, pair, long_runs, l
                      e.frequency_hz[agg])
         if in_band.size:  # filtered victims: the spectrum at this fraction of the coupling
             each[in_band] = _filtered_shares(ctx, band[0], entries[in_band], aggressors, victims, pair, k[in_band])
-        if long_at.any():  # FEXT linear in length; NEXT linear up to saturation, flat beyond
-            kl = k[long_at]
-            tl = np.maximum(nxt * np.minimum(1.0, kl * ratio) / np.minimum(1.0, ratio), fxt * kl)
+        if long_at.any():  # weak coupling: the line's noise in proportion to its coupling
+            tl = line * k[long_at]
             each[long_at] = np.maximum(tl, each[long_at]) if larger else tl
         return np.bincount(vic, weights=each, minlength=len(ctx.board.nets))
 
@@ -295,3 +292,20 @@ def _filtered_shares(ctx, rule, entries: np.ndarray, aggressors, victims, pair, 
                                   float(e.swing_v[a]), float(e.clock_hz[a]), tr if np.isfinite(tr) else None,
                                   duty if np.isfinite(duty) else None, float(e.corner_hz[v]))[pick]
     return out
+
+
+def _terminated(ctx, run, aggressor: int, victim: int) -> float:
+    """The run's noise on the victim with its real terminations
+    (``physics.mtl.terminated_noise_v``): its class's resistance at one end,
+    its node capacitance at the other, its filter if any; the aggressor a
+    periodic trapezoid at its declared frequency (else at the lumped model's
+    frequency), duty 50 % unless its class says."""
+    from ..physics.mtl import terminated_noise_v
+
+    e = ctx.electrical
+    x = run.crosstalk
+    f0 = float(e.clock_hz[aggressor]) if np.isfinite(e.clock_hz[aggressor]) else float(e.frequency_hz[aggressor])
+    duty = float(e.duty[aggressor]) if np.isfinite(e.duty[aggressor]) else 0.5
+    corner = float(e.corner_hz[victim]) if np.isfinite(e.corner_hz[victim]) else None
+    return terminated_noise_v(run.matrices, x.coupled_length_m, float(e.swing_v[aggressor]), f0, x.rise_time_s,
+                              duty, float(e.resistance_ohm[victim]), float(e.node_capacitance_f[victim]), corner)
