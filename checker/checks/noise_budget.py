@@ -6,12 +6,13 @@ from the aggressor class's ``swing`` and ``frequency`` (or ``rise_time``)
 and the victim class's ``resistance`` and ``node_capacitance``; the victim's
 noise is the sum over its aggressors (worst case: all in phase). Where an
 aggressor's longest run onto the victim is electrically long (longer than
-the near-end saturation length tr*v/2), the larger of the run's near-end and
-far-end crosstalk is worked out too (see :mod:`checker.longruns`; matched
-terminations assumed) and, by default, the larger of it and the lumped value
-counts: a high-impedance victim is far from matched, and on it the lumped
-capacitive divider can exceed the matched-line number (``long_runs:
-transmission-line`` takes the line's number alone). The finding says
+the near-end saturation length tr*v/2), the run is also solved as a coupled
+pair of lines with the victim's real terminations (:mod:`checker.physics.mtl`:
+its resistance at one end, its node capacitance at the other; the
+aggressor's trapezoid harmonics) and, by default, the larger of that and the
+lumped value counts (``long_runs: transmission-line`` takes the line's
+number alone); the matched-termination NEXT/FEXT
+(:mod:`checker.longruns`) are given for comparison. The finding says
 which model gave the number; every victim the rule looked at, passing or
 not, is listed with its noise, budget and model in the reports. Fails when
 it exceeds ``max_noise``. Aggressor nets whose class gives no swing, and
