@@ -84,46 +84,46 @@ def net_relay_rows(c, resistance_ohm: np.ndarray, frequency_hz: np.ndarray, c2g_
     first = np.concatenate(([True], key[1:] != key[:-1]))
     total = np.add.reduceat(pf, np.flatnonzero(first))
     x, y, piece_y, row = x[first], y[first], piece_y[first], row[first]
-    cols: dict[str, list] = {k: [] for k in ("a", "b", "net_a", "net_b", "row", "c12_pf", "gap_net")}
-    crowded = []
-    for n in np.unique(x).tolist():
-        mine = np.flatnonzero(x == n)
-        node = float(node_pf[n]) if node_pf is not None else 0.0
-        c_total = float(node_total_pf(float(c2g_pf[n]) - node, float(total[mine].sum()), node))  # C_N
-        if mine.size > MAX_NEIGHBOURS:
-            crowded.append(names[n])
-            mine = mine[np.argsort(-total[mine], kind="stable")[:MAX_NEIGHBOURS]]
-        if mine.size < 2 or c_total <= 0:
-            continue
-        i, j = np.triu_indices(mine.size, k=1)
-        ni, nj = mine[i], mine[j]
-        # only pairs that feed a noise estimate: one net an aggressor (a frequency), the other a node
-        # with a resistance
-        ya, yb = y[ni], y[nj]
-        useful = ((has_f[ya] & has_r[yb]) | (has_f[yb] & has_r[ya])) & (ya != yb)
-        ni, nj = ni[useful], nj[useful]
-        if ni.size == 0:
-            continue
-        f = np.fmax(frequency_hz[y[ni]], frequency_hz[y[nj]])
-        r = float(resistance_ohm[n])
-        leak = 1e12 / (2 * math.pi * f * r)  # 1/(omega R_N) in pF (one of the two always has a frequency)
-        value = total[ni] * total[nj] / np.sqrt(c_total ** 2 + leak ** 2)
-        lo = y[ni] < y[nj]
-        cols["a"].append(np.where(lo, piece_y[ni], piece_y[nj]))
-        cols["b"].append(np.where(lo, piece_y[nj], piece_y[ni]))
-        cols["net_a"].append(np.where(lo, y[ni], y[nj]))
-        cols["net_b"].append(np.where(lo, y[nj], y[ni]))
-        # placed where the relaying net couples most strongly to the victim side (the higher-numbered net)
-        cols["row"].append(np.where(lo, row[nj], row[ni]))
-        cols["c12_pf"].append(value)
-        cols["gap_net"].append(np.full(value.size, n, np.int64))
-    if crowded:
+    # x is sorted: one group of neighbours per relaying net
+    starts = np.flatnonzero(np.concatenate(([True], x[1:] != x[:-1])))
+    sizes = np.diff(np.append(starts, x.size))
+    group = np.repeat(np.arange(starts.size), sizes)
+    nets_x = x[starts]
+    node = node_pf[nets_x] if node_pf is not None else np.zeros(nets_x.size)
+    c_total = node_total_pf(c2g_pf[nets_x] - node, np.add.reduceat(total, starts), node)  # C_N per net
+    # the strongest MAX_NEIGHBOURS neighbours of each net take part
+    order = np.lexsort((-total, group))
+    rank = np.arange(x.size) - starts[group[order]]
+    crowded = nets_x[sizes > MAX_NEIGHBOURS]
+    kept = np.sort(order[rank < MAX_NEIGHBOURS])
+    x, y, piece_y, row, total, group = x[kept], y[kept], piece_y[kept], row[kept], total[kept], group[kept]
+    starts = np.flatnonzero(np.concatenate(([True], group[1:] != group[:-1])))
+    sizes = np.diff(np.append(starts, x.size))
+    # every pair (i < j) within a group: entry i with each later entry of its group
+    later = np.repeat(starts + sizes, sizes) - np.arange(x.size) - 1
+    ni = np.repeat(np.arange(x.size), later)
+    nj = ni + 1 + (np.arange(ni.size) - np.repeat(np.cumsum(later) - later, later))
+    ya, yb = y[ni], y[nj]
+    # only pairs that feed a noise estimate: one net an aggressor (a frequency), the other a node with a resistance
+    useful = ((has_f[ya] & has_r[yb]) | (has_f[yb] & has_r[ya])) & (ya != yb) & (c_total[group[ni]] > 0)
+    ni, nj, ya, yb = ni[useful], nj[useful], ya[useful], yb[useful]
+    if crowded.size:
         notes.append(f"high-impedance nets coupled to more than {MAX_NEIGHBOURS} nets (only the most strongly "
-                     f"coupled take part in their relays): {', '.join(crowded[:10])}"
-                     + (f" and {len(crowded) - 10} more" if len(crowded) > 10 else ""))
-    if not cols["c12_pf"]:
+                     f"coupled take part in their relays): {', '.join(names[k] for k in crowded[:10].tolist())}"
+                     + (f" and {crowded.size - 10} more" if crowded.size > 10 else ""))
+    if ni.size == 0:
         return None
-    out = {k: np.concatenate(v) for k, v in cols.items()}
+    n_of = x[ni]
+    f = np.fmax(frequency_hz[ya], frequency_hz[yb])
+    leak = 1e12 / (2 * math.pi * f * resistance_ohm[n_of])  # 1/(omega R_N) in pF (one always has a frequency)
+    value = total[ni] * total[nj] / np.sqrt(c_total[group[ni]] ** 2 + leak ** 2)
+    lo = ya < yb
+    out = {
+        "a": np.where(lo, piece_y[ni], piece_y[nj]), "b": np.where(lo, piece_y[nj], piece_y[ni]),
+        "net_a": np.where(lo, ya, yb), "net_b": np.where(lo, yb, ya),
+        # placed where the relaying net couples most strongly to the victim side (the higher-numbered net)
+        "row": np.where(lo, row[nj], row[ni]), "c12_pf": value, "gap_net": n_of.astype(np.int64),
+    }
     nets = np.unique(out["gap_net"]).tolist()
     notes.append(f"high-impedance nets as relays: {len(nets)} net(s) whose class gives a resistance "
                  f"({', '.join(names[k] for k in nets[:10])}{' and more' if len(nets) > 10 else ''}) pass "
