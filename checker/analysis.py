@@ -772,7 +772,8 @@ def analyse(board: Board, ruleset: RuleSet, progress=None, accurate: bool = Fals
     ref = reference_copper(board, ruleset.settings.reference_nets)
     notes += role_notes(board.stackup, ref, board)
     # the physics sees each layer's role as its copper decides it (checker.shielding)
-    board = replace(board, stackup=effective_stackup(board.stackup, ref))
+    board = replace(board, stackup=replace(effective_stackup(board.stackup, ref),
+                                           mask_style=ruleset.settings.solder_mask))
     names = [net.name for net in board.nets]
     classes = ruleset.classify(names)
     electrical = electrical_attributes(board, ruleset, classes)

@@ -73,7 +73,7 @@ import shapely
 from scipy.constants import c as C0
 
 from .model import NO_NET, Board, Pieces
-from .physics.broadside import solve_shared
+from .physics.broadside import mask_blocks, solve_shared
 from .physics.edge import edge_section
 from .physics.fieldsolve import GROUND, Conductor, CrossSection
 from .shielding import piece_polygons, valid
@@ -332,7 +332,9 @@ def guard_section(stackup, layer: int, wa: float, wb: float, gap: float, wg: flo
     a = cs.conductors[0]
     x0 = max(a.x1 + pos - wg / 2, a.x1 + 1e-4)
     x1 = min(a.x1 + pos + wg / 2, a.x1 + gap - 1e-4)
-    return CrossSection((*cs.conductors, Conductor(x0, x1, a.y0, a.y1, GROUND)), cs.slabs, cs.planes)
+    guard = Conductor(x0, x1, a.y0, a.y1, GROUND)
+    return CrossSection((*cs.conductors, guard), cs.slabs, cs.planes,
+                        blocks=cs.blocks + mask_blocks(stackup, layer, layer, (guard,)))
 
 
 def guard_factors(board: Board, t, layer: int, guard_piece: np.ndarray, covered: np.ndarray,

@@ -65,16 +65,23 @@ class Stackup:
     ``Dielectric`` whose ``thickness_mm`` is the mask's thickness measured
     from the copper layer's outer surface (over the copper); how the field
     models place it is described in ``checker.physics.broadside``.
+    ``mask_style``: ``"flat"`` (the outer copper band filled with mask and a
+    slab of its thickness over it) or ``"conformal"`` (the mask follows the
+    copper: its thickness over the laminate, over each trace's top and down
+    each trace's sides); the rule file's ``settings.solder_mask`` sets it.
     """
 
     layers: tuple[CopperLayer, ...]
     dielectrics: tuple[Dielectric, ...]
     mask_top: Dielectric | None = None
     mask_bottom: Dielectric | None = None
+    mask_style: str = "flat"
 
     def __post_init__(self) -> None:
         if len(self.dielectrics) != max(len(self.layers) - 1, 0):
             raise ValueError("a stackup needs one dielectric between each pair of copper layers")
+        if self.mask_style not in ("flat", "conformal"):
+            raise ValueError(f"mask_style must be 'flat' or 'conformal', got {self.mask_style!r}")
 
     def index(self, name: str) -> int:
         """Position of the copper layer called ``name`` (top = 0)."""

@@ -36,7 +36,12 @@ The cross-section
   mask, not air, between the sidewalls of neighbouring outer traces, which
   is where it matters most for edge coupling; it overstates the mask where
   the real mask thins over wide gaps (a flat top, not a conformal one).
-  Approximation; project choice. A plane-role layer *between* ``upper`` and
+  That is ``Stackup.mask_style == "flat"``. With ``"conformal"`` (the rule
+  file's default) the mask follows the copper instead: a slab of its
+  thickness over the laminate, and for each trace on the outer layer a cap
+  of that thickness over its top (widened by it each side) and a wall of
+  that width down each side (``mask_blocks``, dielectric blocks of the
+  solver). Approximation; project choice. A plane-role layer *between* ``upper`` and
   ``lower`` (a pair made with ``planes_shield=False``) is treated as absent,
   since the caller has said it cannot be trusted as a shield.
 * The two traces are conductors 0 and 1; C12' = -C_M[0, 1] (mutual form,
@@ -169,7 +174,7 @@ from scipy.constants import epsilon_0
 
 from ..model import Stackup
 from ..stackup import effective_er, separation_mm
-from .fieldsolve import GROUND, CapacitanceResult, Conductor, CrossSection, Slab, solve
+from .fieldsolve import GROUND, Block, CapacitanceResult, Conductor, CrossSection, Slab, solve
 
 #: Solver resolution used for the tables (see ``fieldsolve``): 1.0-1.6 %
 #: high on broadside pairs, 5-30 ms a solve.
@@ -229,6 +234,8 @@ def _canonical(cs: CrossSection, resolution: float, richardson: bool) -> tuple[t
     signal = [c.net for c in cs.conductors if c.net != GROUND]
     if len(set(signal)) != len(signal):
         return None, ()
+    if len({b.er for b in cs.blocks}) > 1:
+        return None, ()  # blocks of different er: their order matters, not shared
 
     def r(v: float) -> float:
         return round(float(v), _SIGNATURE_DECIMALS) + 0.0  # + 0.0: no -0.0
@@ -246,7 +253,9 @@ def _canonical(cs: CrossSection, resolution: float, richardson: bool) -> tuple[t
         order = tuple(net for (*_, ground), net in drawn if not ground)
         slabs = tuple(sorted((*sorted((y(v.y0), y(v.y1))), r(v.er)) for v in cs.slabs))
         planes = tuple(sorted(y(p) for p in cs.planes))
-        return (conductors, slabs, planes), order
+        blocks = tuple(sorted((*sorted((r(sx * b.x0), r(sx * b.x1))), *sorted((y(b.y0), y(b.y1))), r(b.er))
+                              for b in cs.blocks))
+        return (conductors, slabs, planes, blocks), order
 
     shape, order = min(variant(sy, sx) for sy in (1.0, -1.0) for sx in (1.0, -1.0))
     return (shape, r(cs.box_margin), float(resolution), bool(richardson)), order
@@ -382,17 +391,53 @@ def surroundings(stackup: Stackup, upper: int, lower: int) -> tuple[tuple[float,
             continue  # no band, or an outer layer's band (air or mask, below)
         er = 0.5 * (stackup.dielectrics[k - 1].er + stackup.dielectrics[k].er)
         slabs.append(Slab(float(bot[k]), float(top[k]), er))
+    conformal = stackup.mask_style == "conformal" and n > 1
     if above is None and stackup.mask_top is not None:
         m = stackup.mask_top
-        slabs.append(Slab(float(bot[0]), float(top[0]) + m.thickness_mm, float(m.er)))
+        if conformal:  # the coat over the laminate; the traces get theirs from mask_blocks
+            slabs.append(Slab(float(bot[0]), float(bot[0]) + m.thickness_mm, float(m.er)))
+        else:
+            slabs.append(Slab(float(bot[0]), float(top[0]) + m.thickness_mm, float(m.er)))
     if below is None and stackup.mask_bottom is not None:
         m = stackup.mask_bottom
-        if n == 1 and above is None and stackup.mask_top is not None:
+        if conformal:
+            slabs.append(Slab(float(top[n - 1]) - m.thickness_mm, float(top[n - 1]), float(m.er)))
+        elif n == 1 and above is None and stackup.mask_top is not None:
             # one copper layer masked on both sides: the band is already filled
             slabs.append(Slab(float(bot[n - 1]) - m.thickness_mm, float(bot[n - 1]), float(m.er)))
         else:
             slabs.append(Slab(float(bot[n - 1]) - m.thickness_mm, float(top[n - 1]), float(m.er)))
     return tuple(planes), tuple(slabs)
+
+
+def mask_blocks(stackup: Stackup, upper: int, lower: int, conductors) -> tuple[Block, ...]:
+    """With ``stackup.mask_style == "conformal"``: the solder mask that
+    follows each rectangular conductor on a masked outer layer whose surface
+    lies between the section's grounds (layers ``upper`` .. ``lower``) — a
+    cap of the mask's thickness t over its top (widened by t each side) and
+    a wall of width t down each side to the laminate (module docstring,
+    "Solder mask"). Empty otherwise."""
+    if stackup.mask_style != "conformal" or len(stackup.layers) < 2:
+        return ()
+    bot, top = _layer_bands(stackup)
+    above, below = _grounds(stackup, upper, lower)
+    n = len(stackup.layers)
+    out: list[Block] = []
+    for k, m, outward in ((0, stackup.mask_top if above is None else None, 1.0),
+                          (n - 1, stackup.mask_bottom if below is None else None, -1.0)):
+        if m is None:
+            continue
+        t, er, y0, y1 = float(m.thickness_mm), float(m.er), float(bot[k]), float(top[k])
+        surface = y1 if outward > 0 else y0
+        for c in conductors:
+            if not isinstance(c, Conductor) or abs(c.y0 - y0) > 1e-9 or abs(c.y1 - y1) > 1e-9:
+                continue
+            cap = (surface, surface + t) if outward > 0 else (surface - t, surface)
+            out.append(Block(c.x0 - t, c.x1 + t, cap[0], cap[1], er))
+            if y1 > y0:
+                out.append(Block(c.x0 - t, c.x0, y0, y1, er))
+                out.append(Block(c.x1, c.x1 + t, y0, y1, er))
+    return tuple(out)
 
 
 def broadside_section(stackup: Stackup, upper: int, lower: int, wa: float, wb: float, offset_mm: float) -> CrossSection:
@@ -412,7 +457,7 @@ def broadside_section(stackup: Stackup, upper: int, lower: int, wa: float, wb: f
         Conductor(-x - wa / 2, -x + wa / 2, float(bot[upper]), float(top[upper]), 0),
         Conductor(x - wb / 2, x + wb / 2, float(bot[lower]), float(top[lower]), 1),
     )
-    return CrossSection(conductors, slabs, planes)
+    return CrossSection(conductors, slabs, planes, blocks=mask_blocks(stackup, upper, lower, conductors))
 
 
 def width_knots(widths, max_knots: int = MAX_WIDTH_KNOTS) -> np.ndarray:

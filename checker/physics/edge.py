@@ -184,7 +184,7 @@ from scipy.interpolate import PchipInterpolator
 
 from ..model import Stackup
 from ..stackup import effective_er, separation_mm
-from .broadside import _bracket, _grounds, _layer_bands, solve_shared, surroundings, width_knots
+from .broadside import _bracket, _grounds, _layer_bands, mask_blocks, solve_shared, surroundings, width_knots
 from .fieldsolve import Conductor, CrossSection
 
 #: Solver resolution of the tables; each value is the Richardson extrapolation
@@ -226,7 +226,7 @@ def edge_section(stackup: Stackup, layer: int, wa: float, wb: float, gap_mm: flo
     planes, slabs = surroundings(stackup, layer, layer)
     y0, y1, g = float(bot[layer]), float(top[layer]), 0.5 * gap_mm
     conductors = (Conductor(-g - wa, -g, y0, y1, 0), Conductor(g, g + wb, y0, y1, 1))
-    return CrossSection(conductors, slabs, planes)
+    return CrossSection(conductors, slabs, planes, blocks=mask_blocks(stackup, layer, layer, conductors))
 
 
 def ground_section(stackup: Stackup, layer: int, w: float) -> CrossSection:
@@ -236,7 +236,8 @@ def ground_section(stackup: Stackup, layer: int, w: float) -> CrossSection:
         raise ValueError(f"width must be positive, got {w}")
     bot, top = _layer_bands(stackup)
     planes, slabs = surroundings(stackup, layer, layer)
-    return CrossSection((Conductor(-0.5 * w, 0.5 * w, float(bot[layer]), float(top[layer]), 0),), slabs, planes)
+    conductors = (Conductor(-0.5 * w, 0.5 * w, float(bot[layer]), float(top[layer]), 0),)
+    return CrossSection(conductors, slabs, planes, blocks=mask_blocks(stackup, layer, layer, conductors))
 
 
 def gap_knots(max_gap_mm: float, min_gap_mm: float = MIN_GAP_MM) -> np.ndarray:

@@ -14,7 +14,8 @@ Model
   outside it is ground (the shield of a coaxial line). Circles may be mixed
   with rectangles, slabs and planes.
 * Dielectrics are horizontal slabs ``y0 <= y <= y1`` of relative permittivity
-  ``er`` spanning the full width; everything else is vacuum (``er = 1``).
+  ``er`` spanning the full width, and rectangles (``Block``) over them (the
+  grid follows their edges); everything else is vacuum (``er = 1``).
 * ``planes`` are grounded zero-thickness planes at the given y, full width.
 * The domain is closed by a grounded rectangular (or circular) box. Either
   give it (``CrossSection.box``) or let the solver put it ``box_margin`` times the
@@ -281,6 +282,20 @@ class Slab:
 
 
 @dataclass(frozen=True)
+class Block:
+    """A rectangle of dielectric ``x0 <= x <= x1``, ``y0 <= y <= y1`` (mm)
+    of relative permittivity ``er``: it replaces the slabs where it lies
+    (a later block replaces an earlier one), e.g. solder mask that follows
+    the copper."""
+
+    x0: float
+    x1: float
+    y0: float
+    y1: float
+    er: float
+
+
+@dataclass(frozen=True)
 class CrossSection:
     """What to solve. Lengths in mm.
 
@@ -297,6 +312,8 @@ class CrossSection:
     planes: tuple[float, ...] = ()
     box: tuple[float, float, float, float] | Circle | None = None
     box_margin: float = DEFAULT_BOX_MARGIN
+    #: dielectric rectangles over the slabs (``Block``)
+    blocks: tuple[Block, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -625,6 +642,9 @@ def _build(cs: CrossSection, resolution: float) -> _Grid:
     for s, t in zip(slabs[:-1], slabs[1:]):
         if t.y0 < s.y1 - 1e-12:
             raise ValueError(f"slabs {s} and {t} overlap")
+    for b in cs.blocks:
+        if not (b.x0 < b.x1 and b.y0 < b.y1 and b.er >= 1.0):
+            raise ValueError(f"block {b} needs x0 < x1, y0 < y1 and er >= 1")
 
     bx0, bx1, by0, by1 = _domain(cs)
     size = max(bx1 - bx0, by1 - by0)
@@ -636,9 +656,11 @@ def _build(cs: CrossSection, resolution: float) -> _Grid:
     # circles contribute their centre lines and extreme lines as key lines
     ckx = [v for c in round_all for v in (c.cx - c.r, c.cx, c.cx + c.r)]
     cky = [v for c in round_all for v in (c.cy - c.r, c.cy, c.cy + c.r)]
-    xs = np.array([v for c in rects for v in (c.x0, c.x1)] + ckx + [bx0, bx1])
+    xs = np.array([v for c in rects for v in (c.x0, c.x1)] + ckx + [bx0, bx1]
+                  + [v for b in cs.blocks for v in (b.x0, b.x1)])
     ys = [v for c in rects for v in (c.y0, c.y1)] + cky + [by0, by1]
     ys += [v for s in slabs for v in (s.y0, s.y1)] + list(cs.planes)
+    ys += [v for b in cs.blocks for v in (b.y0, b.y1)]
     ys_arr = np.array(ys)
     ys_arr = ys_arr[(ys_arr >= by0 - tol) & (ys_arr <= by1 + tol)]
     xs = xs[(xs >= bx0 - tol) & (xs <= bx1 + tol)]
@@ -749,6 +771,13 @@ def _build(cs: CrossSection, resolution: float) -> _Grid:
     for s in slabs:
         er_rows[(yc > s.y0) & (yc < s.y1)] = s.er
     eps = np.broadcast_to(er_rows, (nx - 1, ny - 1))
+    if cs.blocks:
+        eps = eps.copy()
+        xc = 0.5 * (x[:-1] + x[1:])
+        for b in cs.blocks:
+            inside_x = (xc > b.x0) & (xc < b.x1)
+            inside_y = (yc > b.y0) & (yc < b.y1)
+            eps[np.ix_(inside_x, inside_y)] = b.er
     grid = _Grid(x, y, label, np.ascontiguousarray(eps), len(nets))
     if round_all:
         _cut_edges(grid, circles, enclosure)

@@ -282,9 +282,10 @@ def _positive(name: str, value: float) -> None:
 
 
 def vacuum(section: CrossSection) -> CrossSection:
-    """``section`` with every dielectric slab's ``er`` set to 1 (same slab
-    faces, so the same grid)."""
-    return dataclasses.replace(section, slabs=tuple(dataclasses.replace(s, er=1.0) for s in section.slabs))
+    """``section`` with every dielectric slab's and block's ``er`` set to 1
+    (same faces, so the same grid)."""
+    return dataclasses.replace(section, slabs=tuple(dataclasses.replace(s, er=1.0) for s in section.slabs),
+                               blocks=tuple(dataclasses.replace(b, er=1.0) for b in section.blocks))
 
 
 def line_matrices(section: CrossSection, resolution: float = FAST) -> LineMatrices:

@@ -243,6 +243,7 @@ def build_report(result: Result) -> dict:
             "bandwidth_factor": s.bandwidth_factor,
             "reference_nets": list(s.reference_nets),
             "guard_stitch_fraction": s.guard_stitch_fraction,
+            "solder_mask": s.solder_mask,
         },
         "shielding": shielding_dict(result),
         "summary": summary(result),
