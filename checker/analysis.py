@@ -720,8 +720,11 @@ def aggregate_net_pairs(board: Board, c: Couplings, electrical: NetElectrical, c
     c12 = total(c.c12_pf)
     node = electrical.node_capacitance_f * 1e12
     trace = np.maximum(c2g_pf - node, 0.0)
-    coupled = (np.bincount(net_a, weights=c12, minlength=len(c2g_pf))
-               + np.bincount(net_b, weights=c12, minlength=len(c2g_pf)))[:len(c2g_pf)]
+    # the node's own capacitances: direct rows and island relays (the island is not a row of its own), not
+    # what a high-impedance third net relays (its capacitance to the node is a direct row already)
+    own = total(np.where((c.kind == RELAY) & (c.island < 0), 0.0, c.c12_pf))
+    coupled = (np.bincount(net_a, weights=own, minlength=len(c2g_pf))
+               + np.bincount(net_b, weights=own, minlength=len(c2g_pf)))[:len(c2g_pf)]
     c_tot = node_total_pf(trace, coupled, node)
     pairs = NetPairs(
         net_a=net_a, net_b=net_b,

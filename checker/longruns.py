@@ -45,6 +45,8 @@ class LongRun:
     coupling: str  # "broadside" or "edge"
     #: the run's per-unit-length matrices (aggressor 0, victim 1)
     matrices: LineMatrices | None = None
+    #: the run's C12 (pF), the part of its net pair's that the line replaces
+    c12_pf: float = 0.0
 
 
 def longest_runs(ctx, pairs: np.ndarray) -> dict[int, np.ndarray]:
@@ -103,7 +105,8 @@ def long_run_crosstalk(ctx, entries: list[tuple[int, int, int]]) -> dict[int, Lo
         m = cache[section_key]
         if not is_electrically_long(length_m, tr, m.velocity):
             continue
-        out[entry] = LongRun(transmission_line_crosstalk(m, length_m, tr, float(v1)), layers, coupling, m)
+        out[entry] = LongRun(transmission_line_crosstalk(m, length_m, tr, float(v1)), layers, coupling, m,
+                             float(ctx.couplings.c12_pf[rows].sum()))
     return out
 
 

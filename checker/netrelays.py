@@ -91,11 +91,14 @@ def net_relay_rows(c, resistance_ohm: np.ndarray, frequency_hz: np.ndarray, c2g_
     nets_x = x[starts]
     node = node_pf[nets_x] if node_pf is not None else np.zeros(nets_x.size)
     c_total = node_total_pf(c2g_pf[nets_x] - node, np.add.reduceat(total, starts), node)  # C_N per net
-    # the strongest MAX_NEIGHBOURS neighbours of each net take part
-    order = np.lexsort((-total, group))
+    # of the neighbours that can feed a noise estimate (a frequency or a resistance), the strongest
+    # MAX_NEIGHBOURS of each net take part (C_N above counts every neighbour)
+    can = has_f[y] | has_r[y]
+    order = np.lexsort((-total, ~can, group))
     rank = np.arange(x.size) - starts[group[order]]
-    crowded = nets_x[sizes > MAX_NEIGHBOURS]
-    kept = np.sort(order[rank < MAX_NEIGHBOURS])
+    n_can = np.bincount(group, weights=can.astype(float), minlength=starts.size)
+    crowded = nets_x[n_can > MAX_NEIGHBOURS]
+    kept = np.sort(order[(rank < MAX_NEIGHBOURS) & can[order]])
     x, y, piece_y, row, total, group = x[kept], y[kept], piece_y[kept], row[kept], total[kept], group[kept]
     starts = np.flatnonzero(np.concatenate(([True], group[1:] != group[:-1])))
     sizes = np.diff(np.append(starts, x.size))

@@ -563,6 +563,8 @@ def _parse_classes(value: Any, file: str) -> dict[str, NetClass]:
                 values[attr] = _read_option(body[key], opt, file, _join(place, key))
             else:
                 values[attr] = opt.default
+        if values["duty"] is not None and values["duty"] >= 1.0:
+            raise RuleError(file, _join(place, "duty"), f"must be < 1 (always high couples nothing), got {body['duty']}")
         if (values["filter_resistance_ohm"] is None) != (values["filter_capacitance_f"] is None):
             missing = "filter_capacitance" if values["filter_capacitance_f"] is None else "filter_resistance"
             raise RuleError(file, _join(place, missing),

@@ -24,9 +24,9 @@ def test_exact_broadside_is_the_direct_solve():
     model = accurate.ExactBroadside(DUAL, 1, 2)
     got = model.c12_per_m(np.array([0.15, 0.15]), np.array([0.15, 0.15]), np.array([0.0, 0.15]))
     for value, offset in zip(got, (0.0, 0.15)):
-        direct = -solve(broadside_section(DUAL, 1, 2, 0.15, 0.15, offset), accurate.ACCURATE_RESOLUTION / 2,
-                        richardson=True).extrapolated[0, 1]
-        assert value == pytest.approx(direct, rel=1e-12, abs=0)
+        r = solve(broadside_section(DUAL, 1, 2, 0.15, 0.15, offset), accurate.ACCURATE_RESOLUTION / 2,
+                  richardson=True)
+        assert value == pytest.approx(-r.extrapolated[0, 1] + r.error[0, 1], rel=1e-12, abs=0)
     assert model.solves == 2
 
 
@@ -73,7 +73,8 @@ def test_accurate_edge_stripline_against_cohn_1955(w, spacing):
     gap = spacing * w
     exact = float(cap.coupled_stripline_modes(w, gap, 0.4, 4.0).c12_per_m)
     model = accurate.ExactEdge(stripline(t=0.0), 1)
-    assert float(model.c12_per_m(w, w, gap)) == pytest.approx(exact, rel=0.003)
+    got = float(model.c12_per_m(w, w, gap))
+    assert got == pytest.approx(exact, rel=0.003) and got >= exact  # errs toward more coupling
 
 
 @pytest.mark.parametrize("w", [0.05, 0.2, 0.8])

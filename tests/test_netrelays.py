@@ -138,3 +138,25 @@ def test_driven_or_unclassified_middle_net_relays_nothing():
     for name in ("DATA", "CLK_MID"):
         a = analyse(stacked_board(name), default_ruleset())
         assert not np.any(a.couplings.kind == RELAY), name
+
+
+def test_many_unclassed_neighbours_do_not_crowd_out_the_aggressor_and_victim():
+    """N (1 Mohm) couples 1 pF to each of 150 nets in no class and 0.5 pF to
+    a 25 MHz aggressor A and to a 100 kohm victim V: the relay A-V is still
+    there, with C_N counting every neighbour (150 + 0.5 + 0.5 pF)."""
+    n_other = 150
+    a_net, n_net, v_net = 0, 1, 2
+    others = np.arange(3, 3 + n_other)
+    net_a = np.concatenate([[a_net, n_net], np.full(n_other, n_net)])
+    net_b = np.concatenate([[n_net, v_net], others])
+    pf = np.concatenate([[0.5, 0.5], np.ones(n_other)])
+    resistance = np.full(3 + n_other, np.nan)
+    resistance[[n_net, v_net]] = (1e6, 1e5)
+    frequency = np.full(3 + n_other, np.nan)
+    frequency[a_net] = 25e6
+    c2g = np.full(3 + n_other, 1.0)
+    out = net_relay_rows(_Rows(net_a, net_b, pf), resistance, frequency, c2g, np.ones(net_a.size, bool),
+                         [f"N{i}" for i in range(3 + n_other)], [])
+    assert out is not None and out["net_a"].tolist() == [a_net] and out["net_b"].tolist() == [v_net]
+    leak = 1e12 / (2 * math.pi * 25e6 * 1e6)
+    assert out["c12_pf"][0] == pytest.approx(0.25 / math.hypot(n_other + 1.0, leak), rel=1e-9)

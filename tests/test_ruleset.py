@@ -371,6 +371,8 @@ ERROR_CASES = [
                  "net_classes.v.bandwidth", "give either bandwidth or filter_resistance", id="class-filter-twice"),
     pytest.param("version: 1\nnet_classes:\n  fast:\n    nets: [F]\n    duty: 1.5\n",
                  "net_classes.fast.duty", "must be > 0 and <= 1, got 1.5", id="class-duty-above-one"),
+    pytest.param("version: 1\nnet_classes:\n  fast:\n    nets: [F]\n    duty: 1\n",
+                 "net_classes.fast.duty", "must be < 1", id="class-duty-one"),
     pytest.param("version: 1\nnet_classes:\n  fast:\n    nets: [F]\n    swing: 3.3 A\n",
                  "net_classes.fast.swing", "unknown voltage unit 'A' (accepted: V, mV)", id="class-unit"),
     pytest.param("version: 1\nnet_classes:\n  v:\n    nets: [V]\n    node_capacitance: -1 pF\n",

@@ -90,7 +90,13 @@ def check(rule, ctx):
     long_runs = long_run_crosstalk(ctx, list(zip(range(len(pair)), pair.tolist(), aggressors.tolist())))
     lumped = noise.copy()
     tl_used = set()  # entries whose number is the transmission-line one
-    terminated = {i: _terminated(ctx, run, int(aggressors[i]), int(victims[i])) for i, run in long_runs.items()}
+    # the line replaces its run's share only: the pair's other runs and relays keep their lumped share
+    # (linear in C12 at a fixed node capacitance)
+    terminated = {}
+    for i, run in long_runs.items():
+        pair_pf = float(np_.c12_pf[pair[i]])
+        rest = lumped[i] * max(0.0, 1.0 - run.c12_pf / pair_pf) if pair_pf > 0 else 0.0
+        terminated[i] = _terminated(ctx, run, int(aggressors[i]), int(victims[i])) + rest
     for i, tl in terminated.items():
         if rule.options["long_runs"] == "transmission-line" or tl >= lumped[i]:
             noise[i] = tl
@@ -144,7 +150,7 @@ def check(rule, ctx):
                      else "the larger counts")
             how += "; electrically long: " + ", ".join(
                 f"{ctx.net_name(int(aggressors[i]))} over {r.crosstalk.coupled_length_m * 1e3:.1f} mm on "
-                f"{'/'.join(r.layers)} {terminated[i] * 1e3:.3g} mV with the victim's terminations (matched "
+                f"{'/'.join(r.layers)} {terminated[i] * 1e3:.3g} mV with the victim's terminations (other runs lumped; matched "
                 f"ends would give NEXT {r.crosstalk.next_v * 1e3:.3g} mV, FEXT {r.crosstalk.fext_v * 1e3:.3g} mV), "
                 f"lumped {lumped[i] * 1e3:.3g} mV"
                 for i, r in long_here) + f" ({which})"

@@ -38,8 +38,12 @@ victim's band:
 The sum runs over the first :data:`MAX_HARMONICS` harmonics; what lies
 beyond is bounded from the envelope (|sin x / x| <= 1/x for both sinc
 factors, |H_c| <= C_1k/C_tot, |H_f| <= f_c/f_n) and added to the peak, so
-the peak errs high, never low. A missing rise time is taken as 0 (a
-rectangle: more high-frequency content, errs high), a missing duty as 50 %.
+the peak errs high, never low (the RMS adds the same tail in quadrature).
+Both are capped by the capacitive divider A C_1k/C_tot, which bounds the
+steady-state output outright (the coupling's impulse response has zero area
+and L1 norm 2 C_1k/C_tot, the filter's 1). A missing rise time is taken as
+0 (a rectangle: more high-frequency content, errs high), a missing duty as
+50 %.
 """
 
 from __future__ import annotations
@@ -97,5 +101,10 @@ def filtered_noise_v(r_ohm: float, c1k_f: float, c_tot_f: float, swing_v: float,
     if corner_hz < big_n * frequency_hz:
         k *= corner_hz / frequency_hz
         p += 1
-    tail = k / (p * big_n ** p) if p else math.inf  # a rectangle with no filter: no bound
-    return peak + tail, rms, max_harmonics
+    tail = k / (p * big_n ** p) if p else math.inf  # a rectangle with no filter: no series bound
+    # the steady-state output is bounded outright: the coupling is a high-pass whose impulse response
+    # (C1k/Ctot)(delta - e^(-t/tau)/tau) has L1 norm 2 C1k/Ctot and zero area, the filter's has L1 norm 1,
+    # so |v| <= 2 (C1k/Ctot) max|u - A/2| = A C1k/Ctot (the capacitive divider)
+    divider = swing_v * c1k_f / c_tot_f
+    rms_bound = math.sqrt(rms * rms + tail * tail / 2.0) if math.isfinite(tail) else divider
+    return min(peak + tail, divider), min(rms_bound, divider), max_harmonics
