@@ -20,6 +20,7 @@ from .guards import (MAX_THIRD_NET_SOLVES, GuardedRows, SolveBudget, Guards, con
 from .islands import Island, by_conductor, find_islands, island_links, relays
 from .model import NO_NET, Board, Pieces
 from .netrelays import net_relay_rows
+from .ownruns import own_mutual_pf
 from .physics import crosstalk
 from .physics.broadside import (FAR_OFFSET_STEP, FAR_TABLE_MARGIN, FAR_TABLE_RESOLUTION, FAR_WIDTH_KNOTS,
                                 BroadsideModel, broadside_c12_pf)
@@ -704,7 +705,8 @@ def node_total_pf(trace_c2g_pf, coupled_pf, node_pf):
     return np.maximum(trace_c2g_pf, coupled_pf) + node_pf
 
 
-def aggregate_net_pairs(board: Board, c: Couplings, electrical: NetElectrical, c2g_pf: np.ndarray) -> NetPairs:
+def aggregate_net_pairs(board: Board, c: Couplings, electrical: NetElectrical, c2g_pf: np.ndarray,
+                        own_pf: np.ndarray | None = None) -> NetPairs:
     """Totals per net pair and the lumped-model noise both ways: each
     aggressor's share under Kirchhoff's current law at the victim node with
     all its neighbours (``crosstalk.kcl_noise_v``, :func:`node_total_pf`)."""
@@ -719,7 +721,8 @@ def aggregate_net_pairs(board: Board, c: Couplings, electrical: NetElectrical, c
     net_a, net_b = uniq // n_nets, uniq % n_nets
     c12 = total(c.c12_pf)
     node = electrical.node_capacitance_f * 1e12
-    trace = np.maximum(c2g_pf - node, 0.0)
+    # the sum of the pieces alone, less twice what a net's own side-by-side pieces share (checker.ownruns)
+    trace = np.maximum(c2g_pf - node - (2.0 * own_pf if own_pf is not None else 0.0), 0.0)
     # the node's own capacitances: direct rows and island relays (the island is not a row of its own), not
     # what a high-impedance third net relays (its capacitance to the node is a direct row already)
     own = total(np.where((c.kind == RELAY) & (c.island < 0), 0.0, c.c12_pf))
@@ -792,7 +795,13 @@ def analyse(board: Board, ruleset: RuleSet, progress=None, accurate: bool = Fals
         progress("capacitance to ground and noise")
     c2g = net_capacitance_to_ground_pf(board, electrical, notes, accurate)
     couplings = _with_net_relays(board, couplings, electrical, c2g, notes, ruleset.pairs)
-    net_pairs = aggregate_net_pairs(board, couplings, electrical, c2g)
+    victims = np.isfinite(electrical.resistance_ohm)
+    own = own_mutual_pf(board, victims, ruleset.settings.edge_search_mm, ruleset.settings.parallel_angle_deg)
+    if np.any(own > 0):
+        notes.append(f"{int(np.count_nonzero(own > 0))} victim net(s) run beside themselves (meanders, parallel "
+                     "legs): their capacitance to ground is taken less twice the mutual capacitance of those "
+                     "stretches (checker.ownruns); a net over itself on another layer is not looked for")
+    net_pairs = aggregate_net_pairs(board, couplings, electrical, c2g, own)
     gaps = return_gaps(board, ref)  # traces over voids and splits of their reference copper
     return Analysis(board, ruleset, couplings, net_pairs, electrical, c2g, classes, notes,
                     layer_pairs, examined, "accurate" if accurate else "fast", models, reference=ref,
