@@ -796,7 +796,8 @@ def analyse(board: Board, ruleset: RuleSet, progress=None, accurate: bool = Fals
     c2g = net_capacitance_to_ground_pf(board, electrical, notes, accurate)
     couplings = _with_net_relays(board, couplings, electrical, c2g, notes, ruleset.pairs)
     victims = np.isfinite(electrical.resistance_ohm)
-    own = own_mutual_pf(board, victims, ruleset.settings.edge_search_mm, ruleset.settings.parallel_angle_deg)
+    own = own_mutual_pf(board, victims, ruleset.settings.edge_search_mm, ruleset.settings.parallel_angle_deg,
+                        models)
     if np.any(own > 0):
         notes.append(f"{int(np.count_nonzero(own > 0))} victim net(s) run beside themselves (meanders, parallel "
                      "legs): their capacitance to ground is taken less twice the mutual capacitance of those "

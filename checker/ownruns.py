@@ -29,14 +29,20 @@ from .finder.pairs import find_edge
 from .model import NO_NET, Board
 from .physics.edge import EdgeModel
 
+#: the analysis' key for a layer's edge model (``analysis.EDGE``)
+EDGE = 1
+
 #: Gaps below this (mm) are priced at it (as ``analysis.EDGE_GAP_FLOOR_MM``).
 GAP_FLOOR_MM = 0.01
 
 
-def own_mutual_pf(board: Board, victims: np.ndarray, search_mm: float, parallel_angle_deg: float) -> np.ndarray:
+def own_mutual_pf(board: Board, victims: np.ndarray, search_mm: float, parallel_angle_deg: float,
+                  models: dict | None = None) -> np.ndarray:
     """Per net: the summed mutual capacitance (pF) between its own pieces
     that run side by side on one layer, for the nets flagged in ``victims``
-    (a boolean array over nets); 0 elsewhere."""
+    (a boolean array over nets); 0 elsewhere. ``models``: the analysis'
+    C12' models by (kind, layer, layer); a layer's edge model found there is
+    asked (its tables fill in lazily) instead of building another."""
     out = np.zeros(len(board.nets))
     p = board.pieces
     net = p.net.astype(np.int64)
@@ -58,8 +64,10 @@ def own_mutual_pf(board: Board, victims: np.ndarray, search_mm: float, parallel_
         gap = np.maximum(t.gap_mm[same], GAP_FLOOR_MM)
         length = t.length_mm[same]
         wa, wb = p.width[a], p.width[b]
-        model = EdgeModel(board.stackup, int(layer), np.concatenate([wa, wb]), max_gap_mm=float(gap.max()),
-                          min_gap_mm=float(gap.min()))
+        model = (models or {}).get((EDGE, int(layer), int(layer)))
+        if model is None:
+            model = EdgeModel(board.stackup, int(layer), np.concatenate([wa, wb]), max_gap_mm=float(gap.max()),
+                              min_gap_mm=float(gap.min()))
         pf = model.c12_per_m(wa, wb, gap) * length * 1e-3 * 1e12
         out += np.bincount(net[a], weights=pf, minlength=len(out))
     return out

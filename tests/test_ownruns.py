@@ -57,3 +57,9 @@ def test_two_legs_of_one_net_stay_a_lower_bound_close_to_the_direct_solve(pitch)
     assert bound <= direct * 1.01  # the joint (about 0.01 mm^2 of extra copper) the direct solve leaves out
     assert bound >= 0.9 * direct
     assert alone > 1.1 * direct
+
+
+def test_the_edge_model_key_is_the_analysis_one():
+    from checker import analysis, ownruns
+
+    assert ownruns.EDGE == analysis.EDGE
