@@ -30,6 +30,12 @@ node: each aggressor's share is w R C1k V / sqrt(1 + (w R C_tot)^2) with the
 node's whole capacitance C_tot (``physics.crosstalk.kcl_noise_v``,
 ``analysis.node_total_pf``), magnitudes added (phases aligned: the worst
 case); the sum never exceeds the capacitive divider sum V_k C1k / C_tot.
+A victim whose class gives a ``bandwidth`` (or ``filter_resistance`` and
+``filter_capacitance``) is judged in its band: an aggressor with a
+``frequency`` is a periodic trapezoid (its ``rise_time`` and ``duty``) whose
+harmonics pass the coupling network and then the filter
+(``physics.spectrum``); ``measure`` takes their amplitude sum (a peak bound)
+or their RMS, and the victim list gives the unfiltered number beside it.
 The small-R limit is said to be out of range in the finding (and the model
 named ``small-r (out of range)``) where w R C_tot exceeds
 ``crosstalk.SMALL_R_LIMIT`` (it then over-reads the full model by more than
