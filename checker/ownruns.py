@@ -15,7 +15,10 @@ noise estimate needs (a lower bound: the noise errs high). This module finds
 the same-net side-by-side pairs of the nets that are victims (a
 ``resistance``) on each layer, with the edge finder, and prices their mutual
 capacitance with the layer's field-solved edge table. Pieces joined end to end
-overlap along no length and add nothing; same-net pieces on different layers
+overlap along no length and add nothing; pieces of one net whose copper
+overlaps side by side (a trace drawn as several strokes) are one conductor,
+and there the narrower one's own capacitance to ground over the overlap is
+what the sum counted twice; same-net pieces on different layers
 (a net over itself) are not looked for (the sum then errs high there: noted).
 """
 
@@ -27,7 +30,7 @@ import numpy as np
 
 from .finder.pairs import find_edge
 from .model import NO_NET, Board
-from .physics.edge import EdgeModel
+from .physics.edge import EdgeModel, GroundModel
 
 #: the analysis' key for a layer's edge model (``analysis.EDGE``)
 EDGE = 1
@@ -61,13 +64,34 @@ def own_mutual_pf(board: Board, victims: np.ndarray, search_mm: float, parallel_
         if not same.any():
             continue
         a, b = t.a[same], t.b[same]
-        gap = np.maximum(t.gap_mm[same], GAP_FLOOR_MM)
-        length = t.length_mm[same]
+        gap, length = t.gap_mm[same], t.length_mm[same]
         wa, wb = p.width[a], p.width[b]
-        model = (models or {}).get((EDGE, int(layer), int(layer)))
-        if model is None:
-            model = EdgeModel(board.stackup, int(layer), np.concatenate([wa, wb]), max_gap_mm=float(gap.max()),
-                              min_gap_mm=float(gap.min()))
-        pf = model.c12_per_m(wa, wb, gap) * length * 1e-3 * 1e12
+        pf = np.zeros(a.size)
+        apart = gap > 0
+        if apart.any():
+            model = _edge_model(board, int(layer), wa[apart], wb[apart], np.maximum(gap[apart], GAP_FLOOR_MM),
+                                models)
+            pf[apart] = model.c12_per_m(wa[apart], wb[apart], np.maximum(gap[apart], GAP_FLOOR_MM)) \
+                * length[apart] * 1e-3 * 1e12
+        if (~apart).any():
+            # overlapping copper of one net is one conductor: the sum counted the narrower piece's own
+            # capacitance to ground twice over the overlap (the x2 in the caller takes off half each)
+            narrow = np.minimum(wa[~apart], wb[~apart])
+            ground = GroundModel(board.stackup, int(layer), narrow)
+            pf[~apart] = 0.5 * ground.c_per_m(narrow) * length[~apart] * 1e-3 * 1e12
         out += np.bincount(net[a], weights=pf, minlength=len(out))
     return out
+
+
+def _edge_model(board: Board, layer: int, wa, wb, gap, models: dict | None):
+    """The analysis' field-solved edge model of ``layer`` where it covers
+    these widths (its width knots span them: outside, clamping to a knot
+    would read C12 low, which here would take off too little), else one
+    built for them."""
+    model = (models or {}).get((EDGE, layer, layer))
+    if isinstance(model, EdgeModel):
+        knots = model.widths_knots
+        if knots[0] <= min(wa.min(), wb.min()) and max(wa.max(), wb.max()) <= knots[-1]:
+            return model
+    return EdgeModel(board.stackup, layer, np.concatenate([wa, wb]), max_gap_mm=float(gap.max()),
+                     min_gap_mm=float(gap.min()))

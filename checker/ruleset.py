@@ -92,9 +92,10 @@ SETTINGS_SCHEMA: dict[str, tuple[str, Option]] = {
         help="a guard trace counts as grounded when its stitching vias are at most this fraction of a "
              "wavelength apart (at the faster neighbouring net's frequency)")),
     "solder_mask": ("solder_mask", Option(
-        "choice", default="conformal", choices=("conformal", "flat"),
-        help="how the solder mask of the stackup lies in the cross-sections: following the copper "
-             "(conformal) or filling the outer copper band with a flat top (flat; reads edge C12 higher)")),
+        "choice", default="flat", choices=("flat", "conformal"),
+        help="how the solder mask of the stackup lies in the cross-sections: filling the outer copper band "
+             "with a flat top (flat: errs toward more coupling) or following the copper with one thickness "
+             "(conformal: closer where the mask is as thin over the laminate as over the copper)")),
     "bandwidth_factor": ("bandwidth_factor", Option(
         "ratio", default=0.35, minimum=0.0, maximum=1.0, exclusive_minimum=True,
         help="aggressor frequency = factor / rise_time")),
@@ -151,8 +152,8 @@ class Settings:
     reference_nets: tuple[str, ...] = DEFAULT_REFERENCE_NETS
     #: stitching of guard traces: the largest via spacing, as a fraction of a wavelength
     guard_stitch_fraction: float = 0.05
-    #: solder mask in the cross-sections: "conformal" or "flat" (``Stackup.mask_style``)
-    solder_mask: str = "conformal"
+    #: solder mask in the cross-sections: "flat" or "conformal" (``Stackup.mask_style``)
+    solder_mask: str = "flat"
 
 
 @dataclass(frozen=True)

@@ -63,3 +63,35 @@ def test_the_edge_model_key_is_the_analysis_one():
     from checker import analysis, ownruns
 
     assert ownruns.EDGE == analysis.EDGE
+
+
+def test_a_trace_drawn_twice_counts_once():
+    """Two identical strokes of one net are one conductor: the sum of the
+    pieces alone less twice the shared part is exactly one stroke's
+    capacitance (the narrower piece's own capacitance over the overlap is
+    what was counted twice)."""
+    b = read_board_dict({
+        "format": "couplint-board", "version": 1, "name": "twice", "stackup": STACKUP,
+        "nets": [{"name": "AIN_M"}, {"name": "GND"}],
+        "tracks": [{"layer": "L1", "net": "AIN_M", "width": 0.15, "points": [[0, 0], [20, 0]]},
+                   {"layer": "L1", "net": "AIN_M", "width": 0.15, "points": [[0, 0], [20, 0]]}],
+        "regions": [{"layer": "L2", "net": "GND", "outline": OUTLINE}], "outline": OUTLINE}, "twice.json")
+    a = analyse(b, default_ruleset())
+    alone = float(a.c2g_pf[0]) - 10.0
+    own = float(own_mutual_pf(b, np.array([True, False]), 1.0, 10.0)[0])
+    assert alone - 2 * own == pytest.approx(alone / 2, rel=1e-9)
+
+
+def test_an_edge_model_is_reused_only_inside_its_widths():
+    """Clamping a wider leg to a narrower width knot would read C12 low (and
+    take off too little): a model whose knots do not span the widths asked
+    is not reused."""
+    from checker.ownruns import _edge_model
+    from checker.physics.edge import EdgeModel
+
+    b = analyse(board([[0, 0], [20, 0]]), default_ruleset()).board
+    narrow = EdgeModel(b.stackup, 0, [0.1, 0.15], max_gap_mm=1.0)
+    models = {(1, 0, 0): narrow}
+    gap = np.array([0.2])
+    assert _edge_model(b, 0, np.array([0.12]), np.array([0.14]), gap, models) is narrow
+    assert _edge_model(b, 0, np.array([0.6]), np.array([0.6]), gap, models) is not narrow

@@ -36,12 +36,15 @@ The cross-section
   mask, not air, between the sidewalls of neighbouring outer traces, which
   is where it matters most for edge coupling; it overstates the mask where
   the real mask thins over wide gaps (a flat top, not a conformal one).
-  That is ``Stackup.mask_style == "flat"``. With ``"conformal"`` (the rule
-  file's default) the mask follows the copper instead: a slab of its
+  That is ``Stackup.mask_style == "flat"`` (the rule file's default). With
+  ``"conformal"`` the mask follows the copper instead: a slab of its
   thickness over the laminate, and for each trace on the outer layer a cap
   of that thickness over its top (widened by it each side) and a wall of
   that width down each side (``mask_blocks``, dielectric blocks of the
-  solver). Approximation; project choice. A plane-role layer *between* ``upper`` and
+  solver). It assumes the mask as thin over the laminate as over the
+  copper, where real mask is often thicker there, so it can read low: the
+  rule file's default is the flat fill, which errs high. Approximation;
+  project choice. A plane-role layer *between* ``upper`` and
   ``lower`` (a pair made with ``planes_shield=False``) is treated as absent,
   since the caller has said it cannot be trusted as a shield.
 * The two traces are conductors 0 and 1; C12' = -C_M[0, 1] (mutual form,
@@ -234,8 +237,9 @@ def _canonical(cs: CrossSection, resolution: float, richardson: bool) -> tuple[t
     signal = [c.net for c in cs.conductors if c.net != GROUND]
     if len(set(signal)) != len(signal):
         return None, ()
-    if len({b.er for b in cs.blocks}) > 1:
-        return None, ()  # blocks of different er: their order matters, not shared
+    if any(p.er != q.er and p.x0 < q.x1 and q.x0 < p.x1 and p.y0 < q.y1 and q.y0 < p.y1
+           for k, p in enumerate(cs.blocks) for q in cs.blocks[k + 1:]):
+        return None, ()  # overlapping blocks of different er: their order matters, not shared
 
     def r(v: float) -> float:
         return round(float(v), _SIGNATURE_DECIMALS) + 0.0  # + 0.0: no -0.0

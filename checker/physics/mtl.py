@@ -130,10 +130,11 @@ def terminated_noise_v(m: LineMatrices, length_m: float, swing_v: float, frequen
     from .spectrum import trapezoid_harmonics
 
     z_agg = float(np.sqrt(m.L[0, 0] / m.C[0, 0]))
-    n_max = int(min(MAX_LINE_HARMONICS, max(2.0, HARMONIC_REACH / (np.pi * max(rise_time_s, 1e-15)) / frequency_hz)))
+    tr = min(rise_time_s, min(duty, 1 - duty) / frequency_hz)  # edges cannot outlast the pulse or the gap
+    n_max = int(min(MAX_LINE_HARMONICS, max(2.0, HARMONIC_REACH / (np.pi * max(tr, 1e-15)) / frequency_hz)))
     n = np.arange(1, n_max + 1)
     f = n * frequency_hz
-    c_n = trapezoid_harmonics(swing_v, frequency_hz, min(rise_time_s, min(duty, 1 - duty) / frequency_hz), duty, n)
+    c_n = trapezoid_harmonics(swing_v, frequency_hz, tr, duty, n)
     h_f = 1.0 / np.hypot(1.0, f / corner_hz) if corner_hz else np.ones(n.size)
 
     def receiver(fk: float) -> complex:
@@ -146,7 +147,7 @@ def terminated_noise_v(m: LineMatrices, length_m: float, swing_v: float, frequen
         near, far = victim_transfer(m, length_m, f, zs, zl)
         for h in (near, far):
             g = np.abs(h) * h_f
-            tail = (2.0 * swing_v / np.pi) * (1.0 / (frequency_hz * np.pi * max(rise_time_s, 1e-15))) / n_max \
+            tail = (2.0 * swing_v / np.pi) * (1.0 / (frequency_hz * np.pi * max(tr, 1e-15))) / n_max \
                 * float(g.max())  # sum_{n>N} 1/n^2 <= 1/N
             worst = max(worst, float(np.sum(c_n * g)) + tail)
     return worst
