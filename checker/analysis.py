@@ -25,7 +25,7 @@ from .physics import crosstalk
 from .physics.broadside import (FAR_OFFSET_STEP, FAR_TABLE_MARGIN, FAR_TABLE_RESOLUTION, FAR_WIDTH_KNOTS,
                                 BroadsideModel, broadside_c12_pf)
 from .physics.accurate import ExactBroadside, ExactEdge, ExactGround
-from .physics.edge import EdgeModel, GroundModel
+from .physics.edge import EdgeModel, GroundModel, self_rise_per_m
 from .returnpath import ReturnGaps, return_gaps
 from .ruleset import NetClass, Rule, RuleSet
 from .shielding import (ReferenceCopper, effective_stackup, exposed_pieces, reference_copper, reference_mask,
@@ -705,8 +705,42 @@ def node_total_pf(trace_c2g_pf, coupled_pf, node_pf):
     return np.maximum(trace_c2g_pf, coupled_pf) + node_pf
 
 
+def self_rise_pf(board: Board, c: Couplings, models: dict, victims: np.ndarray) -> np.ndarray:
+    """Per victim net: how much its Maxwell self-capacitance (pF) rises
+    with its same-layer neighbours beside it, over its pieces alone, from
+    the edge tables' own solves (``physics.edge.self_rise_per_m``): per piece
+    the largest rise among its edge rows (a neighbour on each side raises it
+    at least as much as the larger one alone does: a lower bound), summed
+    over the net's pieces. Broadside neighbours are not counted (the bound
+    stays a bound there)."""
+    out = np.zeros(len(board.nets))
+    p = board.pieces
+    rows = np.flatnonzero(c.kind == EDGE)
+    if rows.size == 0 or not victims.any():
+        return out
+    best = np.zeros(len(p))
+    for layer in np.unique(c.layer_a[rows]).tolist():
+        model = models.get((EDGE, layer, layer))
+        if not isinstance(model, EdgeModel):
+            continue
+        mine = rows[c.layer_a[rows] == layer]
+        gap = np.maximum(c.gap_mm[mine], EDGE_GAP_FLOOR_MM)
+        length_m = c.length_mm[mine] * 1e-3
+        for own, other in ((c.a[mine], c.b[mine]), (c.b[mine], c.a[mine])):
+            net = p.net[own].astype(np.int64)
+            pick = victims[np.maximum(net, 0)] & (net != NO_NET)
+            if not pick.any():
+                continue
+            rise = self_rise_per_m(model, p.width[own[pick]], p.width[other[pick]], gap[pick]) * length_m[pick] * 1e12
+            np.maximum.at(best, own[pick], rise)
+    has = best > 0
+    if has.any():
+        out += np.bincount(p.net[has].astype(np.int64), weights=best[has], minlength=len(out))
+    return out
+
+
 def aggregate_net_pairs(board: Board, c: Couplings, electrical: NetElectrical, c2g_pf: np.ndarray,
-                        own_pf: np.ndarray | None = None) -> NetPairs:
+                        own_pf: np.ndarray | None = None, rise_pf: np.ndarray | None = None) -> NetPairs:
     """Totals per net pair and the lumped-model noise both ways: each
     aggressor's share under Kirchhoff's current law at the victim node with
     all its neighbours (``crosstalk.kcl_noise_v``, :func:`node_total_pf`)."""
@@ -721,8 +755,10 @@ def aggregate_net_pairs(board: Board, c: Couplings, electrical: NetElectrical, c
     net_a, net_b = uniq // n_nets, uniq % n_nets
     c12 = total(c.c12_pf)
     node = electrical.node_capacitance_f * 1e12
-    # the sum of the pieces alone, less twice what a net's own side-by-side pieces share (checker.ownruns)
-    trace = np.maximum(c2g_pf - node - (2.0 * own_pf if own_pf is not None else 0.0), 0.0)
+    # the sum of the pieces alone, less twice what a net's own side-by-side pieces share (checker.ownruns),
+    # plus the rise of their self-capacitance with neighbours beside them (self_rise_pf)
+    trace = np.maximum(c2g_pf - node - (2.0 * own_pf if own_pf is not None else 0.0)
+                       + (rise_pf if rise_pf is not None else 0.0), 0.0)
     # the node's own capacitances: direct rows and island relays (the island is not a row of its own), not
     # what a high-impedance third net relays (its capacitance to the node is a direct row already)
     own = total(np.where((c.kind == RELAY) & (c.island < 0), 0.0, c.c12_pf))
@@ -802,7 +838,8 @@ def analyse(board: Board, ruleset: RuleSet, progress=None, accurate: bool = Fals
         notes.append(f"{int(np.count_nonzero(own > 0))} victim net(s) run beside themselves (meanders, parallel "
                      "legs): their capacitance to ground is taken less twice the mutual capacitance of those "
                      "stretches (checker.ownruns); a net over itself on another layer is not looked for")
-    net_pairs = aggregate_net_pairs(board, couplings, electrical, c2g, own)
+    rise = self_rise_pf(board, couplings, models, victims)
+    net_pairs = aggregate_net_pairs(board, couplings, electrical, c2g, own, rise)
     gaps = return_gaps(board, ref)  # traces over voids and splits of their reference copper
     return Analysis(board, ruleset, couplings, net_pairs, electrical, c2g, classes, notes,
                     layer_pairs, examined, "accurate" if accurate else "fast", models, reference=ref,

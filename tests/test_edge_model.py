@@ -211,7 +211,7 @@ def test_table_reproduces_direct_solves_at_knots_and_between():
     st = microstrip(mask=Dielectric(0.015, 3.8))
     m = EdgeModel(st, 0, [0.1, 0.15, 0.2, 0.3], max_gap_mm=0.5)
     m.solve_all()
-    assert m.solves == 10 * m.gaps.size  # pairs i <= j only
+    assert m.solves == 10 * m.gaps.size + m.widths_knots.size  # pairs i <= j only, and each width alone
     for wa, wb in [(0.1, 0.1), (0.15, 0.3)]:
         for gap in m.gaps[::3]:
             assert float(m.c12_per_m(wa, wb, gap)) == approx(direct_c12(st, 0, wa, wb, gap, m.resolution), 1e-12)

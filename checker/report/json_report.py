@@ -143,8 +143,9 @@ QUANTITIES = {
                              "share; never above the capacitive divider sum_k V_k C_ik / C_tot for the lumped shares",
     "victim_noise.c_total_pf": "the victim node's whole capacitance C_tot = C_ig + sum_k C_ik (the Maxwell "
                                "diagonal, every neighbour at ground), taken as max(its traces' capacitance to "
-                               "ground computed alone, sum_k C_ik) + its node capacitance: a lower bound, so the "
-                               "noise errs high",
+                               "ground computed alone, raised by what same-layer neighbours add to each piece's "
+                               "diagonal and less what its own side-by-side pieces share, sum_k C_ik) + its node "
+                               "capacitance: a lower bound, so the noise errs high",
     "victim_noise.unfiltered_mv": "a filtered victim (class bandwidth or RC): its noise with the filter left out; "
                                   "null for an unfiltered one",
     "victim_noise.c_ground_mutual_pf": "its capacitance to ground in mutual form, C_tot - sum_k C_ik (the row sum "
