@@ -144,6 +144,9 @@ class NetPairs:
     trace_c2g_pf: np.ndarray = field(repr=False, default_factory=lambda: np.zeros(0))
     coupled_pf: np.ndarray = field(repr=False, default_factory=lambda: np.zeros(0))
     node_pf: np.ndarray = field(repr=False, default_factory=lambda: np.zeros(0))
+    #: per net: the part of ``trace_c2g_pf`` that is the rise of its pieces' diagonal with neighbours beside
+    #: them (``self_rise_pf``; it shrinks with the coupling in a what-if)
+    rise_pf: np.ndarray = field(repr=False, default_factory=lambda: np.zeros(0))
 
     def __len__(self) -> int:
         return int(self.net_a.shape[0])
@@ -711,14 +714,37 @@ def self_rise_pf(board: Board, c: Couplings, models: dict, victims: np.ndarray) 
     the edge tables' own solves (``physics.edge.self_rise_per_m``): per piece
     the largest rise among its edge rows (a neighbour on each side raises it
     at least as much as the larger one alone does: a lower bound), summed
-    over the net's pieces. Broadside neighbours are not counted (the bound
-    stays a bound there)."""
+    over the net's pieces; a parallel run with a trace on the neighbouring
+    layer counts the same way (``BroadsideModel.self_rise_per_m``, over the
+    run's open part). Runs between layers that are not neighbours, and
+    crossings, add nothing (the bound stays a bound there)."""
     out = np.zeros(len(board.nets))
     p = board.pieces
     rows = np.flatnonzero(c.kind == EDGE)
-    if rows.size == 0 or not victims.any():
+    if not victims.any():
         return out
     best = np.zeros(len(p))
+
+    def take(own: np.ndarray, rise_pf_of) -> None:
+        net = p.net[own].astype(np.int64)
+        pick = (net != NO_NET) & victims[np.maximum(net, 0)]
+        if pick.any():
+            np.maximum.at(best, own[pick], rise_pf_of(pick))
+
+    # neighbouring-layer broadside runs: the rise of each trace's diagonal over the open part of the run
+    bs = np.flatnonzero((c.kind == BROADSIDE) & np.asarray(c.parallel, bool)
+                        & (np.abs(c.layer_a - c.layer_b) == 1))
+    for key in {(int(min(la, lb)), int(max(la, lb))) for la, lb in zip(c.layer_a[bs], c.layer_b[bs])}:
+        model = models.get((BROADSIDE, *key))
+        if not isinstance(model, BroadsideModel):
+            continue
+        mine = bs[np.minimum(c.layer_a[bs], c.layer_b[bs]) == key[0]]
+        up = np.where(c.layer_a[mine] == key[0], c.a[mine], c.b[mine]).astype(np.int64)
+        lo = np.where(c.layer_a[mine] == key[0], c.b[mine], c.a[mine]).astype(np.int64)
+        scale = c.length_mm[mine] * 1e-3 * c.open_fraction[mine] * 1e12
+        for own, upper_side in ((up, True), (lo, False)):
+            take(own, lambda pick, upper_side=upper_side: model.self_rise_per_m(
+                p.width[up[pick]], p.width[lo[pick]], c.offset_mm[mine][pick], upper_side) * scale[pick])
     for layer in np.unique(c.layer_a[rows]).tolist():
         model = models.get((EDGE, layer, layer))
         if not isinstance(model, EdgeModel):
@@ -727,12 +753,8 @@ def self_rise_pf(board: Board, c: Couplings, models: dict, victims: np.ndarray) 
         gap = np.maximum(c.gap_mm[mine], EDGE_GAP_FLOOR_MM)
         length_m = c.length_mm[mine] * 1e-3
         for own, other in ((c.a[mine], c.b[mine]), (c.b[mine], c.a[mine])):
-            net = p.net[own].astype(np.int64)
-            pick = victims[np.maximum(net, 0)] & (net != NO_NET)
-            if not pick.any():
-                continue
-            rise = self_rise_per_m(model, p.width[own[pick]], p.width[other[pick]], gap[pick]) * length_m[pick] * 1e12
-            np.maximum.at(best, own[pick], rise)
+            take(own, lambda pick, own=own, other=other: self_rise_per_m(
+                model, p.width[own[pick]], p.width[other[pick]], gap[pick]) * length_m[pick] * 1e12)
     has = best > 0
     if has.any():
         out += np.bincount(p.net[has].astype(np.int64), weights=best[has], minlength=len(out))
@@ -777,6 +799,7 @@ def aggregate_net_pairs(board: Board, c: Couplings, electrical: NetElectrical, c
         row_pair=inv.astype(np.int64),
         island_relay_pf=total(np.where((c.kind == RELAY) & (c.island >= 0), c.c12_pf, 0.0)),
         trace_c2g_pf=trace, coupled_pf=coupled, node_pf=node,
+        rise_pf=rise_pf if rise_pf is not None else np.zeros(len(c2g_pf)),
     )
     pairs.layer_groups, pairs.layer_mask, pairs.row_group = _layer_masks(c, inv, m)
     return pairs

@@ -348,9 +348,11 @@ def test_repeated_layer_pair_reuses_the_solves_and_they_equal_its_own():
 
 
 def test_layer_pair_with_another_core_shares_nothing():
-    """er 4.4 between S3 and S4: a different problem, solved afresh."""
+    """er 4.4 between S3 and S4: a different problem, solved afresh (only the
+    traces alone, whose surroundings reach past the core to the planes in the
+    same way, may repeat: at most one per trace)."""
     st = repeated_cores(4.4)
     first = BroadsideModel(st, 1, 2, [0.13], [0.13], max_offset_mm=0.4)
     second = BroadsideModel(st, 4, 5, [0.13], [0.13], max_offset_mm=0.4)
-    assert second.shared == 0
+    assert second.shared <= 2 and second.solves - second.shared >= sum(len(o) for o in second.offsets[0])
     assert float(second.c12_per_m(0.13, 0.13, 0.0)) > 1.05 * float(first.c12_per_m(0.13, 0.13, 0.0))

@@ -193,11 +193,12 @@ def test_noise_budget_matches_lumped_model(tmp_path):
     a = result.analysis
     c12 = float(a.net_pairs.c12_pf[0]) * 1e-12
     sense = a.board.net_index()["SENSE"]
-    c2g = float(a.c2g_pf[sense]) * 1e-12
     # lumped model, KCL at the victim node: |Vn| = w R C12 V1 / sqrt(1 + (w R C_tot)^2), C_tot = C1g + C12
-    # the node's whole capacitance (mutual form); couplint takes it as max(C to ground of the trace
-    # alone, C12) + node capacitance, here the trace's value (a lower bound: errs high)
+    # the node's whole capacitance (mutual form, the Maxwell diagonal); couplint's value of it (its trace
+    # alone raised by the neighbour beside it, + 10 pF node capacitance: checked in test_mutual_form)
+    c2g = (float(a.net_pairs.trace_c2g_pf[sense]) + 10.0) * 1e-12
     assert c12 < c2g
+    assert float(a.c2g_pf[sense]) * 1e-12 < c2g  # the neighbour raises it over the trace alone
     w = 2 * math.pi * 10e6
     expected = w * 1e4 * c12 * 3.3 / math.sqrt(1 + (w * 1e4 * c2g) ** 2)
     assert len(result.findings) == 1
@@ -262,10 +263,13 @@ def test_noise_what_if_meets_the_budget_exactly(tmp_path):
     assert f"{k * 100:.0f} %" in f.suggestion
     a = result.analysis
     c12 = float(a.net_pairs.c12_pf[0]) * 1e-12
-    c2g = float(a.c2g_pf[a.board.net_index()["SENSE"]]) * 1e-12
+    sense = a.board.net_index()["SENSE"]
+    p = a.net_pairs
+    # C_tot at k: the trace alone, raised by k times the neighbour's rise of its diagonal, + 10 pF node
+    c2g = (float(p.trace_c2g_pf[sense]) - (1 - k) * float(p.rise_pf[sense]) + 10.0) * 1e-12
     w, r, v1 = 2 * math.pi * 10e6, 1e4, 3.3
-    # lumped model at k * C12 (KCL at the victim node, C_tot = max(trace alone, k C12) + node = C2G
-    # here), evaluated here independently
+    # lumped model at k * C12 (KCL at the victim node, C_tot = max(that, k C12) + node = C2G here),
+    # evaluated here independently
     assert k * c12 < c2g
     at_k = w * r * k * c12 * v1 / math.sqrt(1 + (w * r * c2g) ** 2)
     assert at_k * 1e3 == pytest.approx(budget_mv, rel=1e-9, abs=0)
@@ -395,7 +399,7 @@ def test_small_r_limit_says_when_it_is_out_of_range(tmp_path):
                                           "max_noise: 0.001 mV}\n"))
     (f,) = small.findings
     a = small.analysis
-    x = 2 * math.pi * 10e6 * 1e4 * float(a.c2g_pf[a.board.net_index()["SENSE"]]) * 1e-12
+    x = 2 * math.pi * 10e6 * 1e4 * (float(a.net_pairs.trace_c2g_pf[a.board.net_index()["SENSE"]]) + 10.0) * 1e-12
     assert x > 6
     assert "out of range: w R C_tot = " in f.message and f"{x:.3g}" in f.message
     assert f"the full model, which gives {full.findings[0].value:.3g} mV" in f.message
@@ -431,7 +435,7 @@ def test_filtered_victim_is_judged_in_its_band(tmp_path):
     lpf, clk2 = idx["SENSE_LPF"], idx["CLK2"]
     p = a.net_pairs
     c12 = float(p.c12_pf[(p.net_a == min(lpf, clk2)) & (p.net_b == max(lpf, clk2))][0]) * 1e-12
-    c_tot = max(float(a.c2g_pf[lpf]) - 10.0, c12 * 1e12) * 1e-12 + 10e-12
+    c_tot = max(float(p.trace_c2g_pf[lpf]), c12 * 1e12) * 1e-12 + 10e-12
     corner = 1 / (2 * math.pi * 1.59e3 * 100e-9)
     peak = filtered_noise_v(1e4, c12, c_tot, 3.3, 10e6, 2e-9, None, corner)[0]
     assert rows["SENSE_LPF"].noise_mv == pytest.approx(peak * 1e3, rel=1e-9)

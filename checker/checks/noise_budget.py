@@ -151,6 +151,8 @@ def check(rule, ctx):
         elif small_r:
             how += " (in range)"
         long_here = [(int(i), long_runs[int(i)]) for i in order if int(i) in long_runs]
+        if not long_here and not small_r:
+            how = how.replace("lumped model", "lumped model, in range: runs electrically short", 1)
         if long_here:
             which = ("transmission-line value used" if rule.options["long_runs"] == "transmission-line"
                      else "the larger counts")
@@ -272,7 +274,9 @@ def _c_tot(ctx, victims: np.ndarray, k=1.0, removed_pf: float = 0.0) -> np.ndarr
     from ..analysis import node_total_pf
 
     p = ctx.net_pairs
-    return node_total_pf(p.trace_c2g_pf[victims], k * np.maximum(p.coupled_pf[victims] - removed_pf, 0.0),
+    # the neighbours' rise of the victim's diagonal shrinks with its coupling too
+    trace = p.trace_c2g_pf[victims] - (1.0 - k) * p.rise_pf[victims] if p.rise_pf.size else p.trace_c2g_pf[victims]
+    return node_total_pf(np.maximum(trace, 0.0), k * np.maximum(p.coupled_pf[victims] - removed_pf, 0.0),
                          p.node_pf[victims])
 
 

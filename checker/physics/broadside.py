@@ -444,6 +444,15 @@ def mask_blocks(stackup: Stackup, upper: int, lower: int, conductors) -> tuple[B
     return tuple(out)
 
 
+def ground_section_of(stackup: Stackup, layer: int, w: float) -> CrossSection:
+    """One trace of width ``w`` centred at x = 0 on ``layer``, in the
+    surroundings of that layer alone (as ``edge.ground_section``)."""
+    bot, top = _layer_bands(stackup)
+    planes, slabs = surroundings(stackup, layer, layer)
+    conductors = (Conductor(-0.5 * w, 0.5 * w, float(bot[layer]), float(top[layer]), 0),)
+    return CrossSection(conductors, slabs, planes, blocks=mask_blocks(stackup, layer, layer, conductors))
+
+
 def broadside_section(stackup: Stackup, upper: int, lower: int, wa: float, wb: float, offset_mm: float) -> CrossSection:
     """The cross-section solved for one (wa, wb, offset), all in mm.
 
@@ -565,15 +574,28 @@ class BroadsideModel:
             for j in range(nb)
             for k, off in enumerate(self.offsets[i][j])
         ]
-        solved, self.shared = solve_shared([job[3] for job in jobs], self.resolution)
+        # neighbouring layers: each trace alone in the same surroundings, for the rise of its self-capacitance
+        alone_jobs = ([ground_section_of(stackup, upper, float(w)) for w in self.widths_a_knots]
+                      + [ground_section_of(stackup, lower, float(w)) for w in self.widths_b_knots]
+                      if lower - upper == 1 else [])
+        solved, self.shared = solve_shared([job[3] for job in jobs] + alone_jobs, self.resolution)
+        alone = [float(r.maxwell[0, 0]) for r in solved[len(jobs):]]
+        solved = solved[:len(jobs)]
         values = [r.c12 for r in solved]
         self.table: list[list[np.ndarray]] = [[np.empty(len(self.offsets[i][j])) for j in range(nb)] for i in range(na)]
-        for (i, j, k, _), v in zip(jobs, values):
+        #: rise of the upper (``rise_a``) and lower (``rise_b``) trace's Maxwell self-capacitance with the
+        #: other beside it, over the trace alone (F/m, >= 0); zeros for layers that are not neighbours
+        self.rise_a = [[np.zeros(len(self.offsets[i][j])) for j in range(nb)] for i in range(na)]
+        self.rise_b = [[np.zeros(len(self.offsets[i][j])) for j in range(nb)] for i in range(na)]
+        for (i, j, k, _), v, r in zip(jobs, values, solved):
             if not v > 0:
                 raise RuntimeError(f"non-positive C12' {v} solved at {self.widths_a_knots[i]}, "
                                    f"{self.widths_b_knots[j]}, {self.offsets[i][j][k]}")
             self.table[i][j][k] = v
-        self.solves = len(jobs)
+            if alone:
+                self.rise_a[i][j][k] = max(float(r.maxwell[0, 0]) - alone[i], 0.0)
+                self.rise_b[i][j][k] = max(float(r.maxwell[1, 1]) - alone[na + j], 0.0)
+        self.solves = len(jobs) + len(alone_jobs)
         self.build_seconds = time.perf_counter() - t0
 
     def _along_offset(self, i: int, j: int, offset: np.ndarray) -> np.ndarray:
@@ -619,6 +641,37 @@ class BroadsideModel:
                     x = np.maximum(off[sel] + shift, 0.0)
                     out[sel] += weight[sel] * self._along_offset(i, j, x)
         return out.reshape(shape)
+
+    def self_rise_per_m(self, wa, wb, offset, upper_side: bool) -> np.ndarray:
+        """How much the upper (``upper_side``) or lower trace's Maxwell
+        self-capacitance rises (F/m, >= 0) with the other beside it, over the
+        trace alone, at widths ``wa`` (upper), ``wb`` (lower) and lateral
+        offset; from the same solves as C12', bilinear in the width knots as
+        :meth:`c12_per_m`, linear in the offset, 0 beyond the table and for
+        layers that are not neighbours; counted at ``edge.RISE_MARGIN``."""
+        from .edge import RISE_MARGIN
+
+        wa, wb, off = np.broadcast_arrays(np.asarray(wa, float), np.asarray(wb, float), np.abs(np.asarray(offset, float)))
+        shape = off.shape
+        wa, wb, off = wa.ravel(), wb.ravel(), off.ravel()
+        ia, ta = _bracket(self.widths_a_knots, wa)
+        ib, tb = _bracket(self.widths_b_knots, wb)
+        na, nb = self.widths_a_knots.size, self.widths_b_knots.size
+        rise = self.rise_a if upper_side else self.rise_b
+        out = np.zeros(off.size)
+        for da, weight_a in ((0, 1.0 - ta), (1, ta)):
+            for db, weight_b in ((0, 1.0 - tb), (1, tb)):
+                weight = weight_a * weight_b
+                i, j = np.minimum(ia + da, na - 1), np.minimum(ib + db, nb - 1)
+                for kv in np.unique(i * nb + j).tolist():
+                    ki, kj = kv // nb, kv % nb
+                    sel = np.nonzero((i == ki) & (j == kj) & (weight > 0))[0]
+                    if sel.size == 0:
+                        continue
+                    shift = 0.5 * (self.widths_a_knots[ki] + self.widths_b_knots[kj] - wa[sel] - wb[sel])
+                    x = np.maximum(off[sel] + shift, 0.0)
+                    out[sel] += weight[sel] * np.interp(x, self.offsets[ki][kj], rise[ki][kj], right=0.0)
+        return RISE_MARGIN * out.reshape(shape)
 
     def effective_extension_mm(self, wa, wb) -> np.ndarray:
         """Delta (mm): the edge extension that makes eps0 er_eff (min(wa, wb) +
