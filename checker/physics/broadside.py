@@ -622,25 +622,14 @@ class BroadsideModel:
         wa, wb, off = np.broadcast_arrays(np.asarray(wa, float), np.asarray(wb, float), np.abs(np.asarray(offset, float)))
         shape = off.shape
         wa, wb, off = wa.ravel(), wb.ravel(), off.ravel()
-        ia, ta = _bracket(self.widths_a_knots, wa)
-        ib, tb = _bracket(self.widths_b_knots, wb)
-        na, nb = self.widths_a_knots.size, self.widths_b_knots.size
-        out = np.zeros(off.size)
-        for da, weight_a in ((0, 1.0 - ta), (1, ta)):
-            for db, weight_b in ((0, 1.0 - tb), (1, tb)):
-                weight = weight_a * weight_b
-                key = np.minimum(ia + da, na - 1) * nb + np.minimum(ib + db, nb - 1)
-                key[weight == 0] = -1
-                for kv in np.unique(key):
-                    if kv < 0:
-                        continue
-                    i, j = int(kv // nb), int(kv % nb)
-                    sel = np.nonzero(key == kv)[0]
-                    # same edge gap offset - (wa + wb)/2 as the query
-                    shift = 0.5 * (self.widths_a_knots[i] + self.widths_b_knots[j] - wa[sel] - wb[sel])
-                    x = np.maximum(off[sel] + shift, 0.0)
-                    out[sel] += weight[sel] * self._along_offset(i, j, x)
-        return out.reshape(shape)
+        return blend_width_knots(self.widths_a_knots, self.widths_b_knots, wa, wb,
+                                 lambda i, j, sel: self._along_offset(i, j, self._same_gap(i, j, wa, wb, off, sel))
+                                 ).reshape(shape)
+
+    def _same_gap(self, i: int, j: int, wa, wb, off, sel) -> np.ndarray:
+        """The offset at corner (i, j) with the same edge gap, offset - (wa + wb)/2, as the queries ``sel``."""
+        shift = 0.5 * (self.widths_a_knots[i] + self.widths_b_knots[j] - wa[sel] - wb[sel])
+        return np.maximum(off[sel] + shift, 0.0)
 
     def self_rise_per_m(self, wa, wb, offset, upper_side: bool) -> np.ndarray:
         """How much the upper (``upper_side``) or lower trace's Maxwell
@@ -654,23 +643,9 @@ class BroadsideModel:
         wa, wb, off = np.broadcast_arrays(np.asarray(wa, float), np.asarray(wb, float), np.abs(np.asarray(offset, float)))
         shape = off.shape
         wa, wb, off = wa.ravel(), wb.ravel(), off.ravel()
-        ia, ta = _bracket(self.widths_a_knots, wa)
-        ib, tb = _bracket(self.widths_b_knots, wb)
-        na, nb = self.widths_a_knots.size, self.widths_b_knots.size
         rise = self.rise_a if upper_side else self.rise_b
-        out = np.zeros(off.size)
-        for da, weight_a in ((0, 1.0 - ta), (1, ta)):
-            for db, weight_b in ((0, 1.0 - tb), (1, tb)):
-                weight = weight_a * weight_b
-                i, j = np.minimum(ia + da, na - 1), np.minimum(ib + db, nb - 1)
-                for kv in np.unique(i * nb + j).tolist():
-                    ki, kj = kv // nb, kv % nb
-                    sel = np.nonzero((i == ki) & (j == kj) & (weight > 0))[0]
-                    if sel.size == 0:
-                        continue
-                    shift = 0.5 * (self.widths_a_knots[ki] + self.widths_b_knots[kj] - wa[sel] - wb[sel])
-                    x = np.maximum(off[sel] + shift, 0.0)
-                    out[sel] += weight[sel] * np.interp(x, self.offsets[ki][kj], rise[ki][kj], right=0.0)
+        out = blend_width_knots(self.widths_a_knots, self.widths_b_knots, wa, wb, lambda i, j, sel: np.interp(
+            self._same_gap(i, j, wa, wb, off, sel), self.offsets[i][j], rise[i][j], right=0.0))
         return RISE_MARGIN * out.reshape(shape)
 
     def effective_extension_mm(self, wa, wb) -> np.ndarray:
@@ -690,6 +665,32 @@ def _bracket(knots: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     i = np.clip(np.searchsorted(knots, wc, side="right") - 1, 0, knots.size - 2)
     t = np.log(wc / knots[i]) / np.log(knots[i + 1] / knots[i])
     return i, t
+
+
+def blend_width_knots(knots_a: np.ndarray, knots_b: np.ndarray, wa: np.ndarray, wb: np.ndarray,
+                      evaluate, prepare=None) -> np.ndarray:
+    """Bilinear blend (linear in ln width, :func:`_bracket`) over the four
+    width-knot corners around each query (``wa`` on ``knots_a``, ``wb`` on
+    ``knots_b``; 1-D arrays): the sum of ``weight * evaluate(i, j, sel)``
+    over the corners (i, j) with weight > 0, ``sel`` the queries at that
+    corner. ``prepare(pairs)``, if given, is told each round's corners first
+    (a lazily filled table solves them in one batch)."""
+    ia, ta = _bracket(knots_a, wa)
+    ib, tb = _bracket(knots_b, wb)
+    na, nb = knots_a.size, knots_b.size
+    out = np.zeros(wa.size)
+    for da, weight_a in ((0, 1.0 - ta), (1, ta)):
+        for db, weight_b in ((0, 1.0 - tb), (1, tb)):
+            weight = weight_a * weight_b
+            key = np.minimum(ia + da, na - 1) * nb + np.minimum(ib + db, nb - 1)
+            key[weight == 0] = -1
+            corners = [(int(kv // nb), int(kv % nb)) for kv in np.unique(key) if kv >= 0]
+            if prepare is not None:
+                prepare(corners)
+            for i, j in corners:
+                sel = np.nonzero(key == i * nb + j)[0]
+                out[sel] += weight[sel] * evaluate(i, j, sel)
+    return out
 
 
 def broadside_c12_pf(model: BroadsideModel, wa, wb, offset_mm, length_mm, angle_deg, parallel) -> np.ndarray:

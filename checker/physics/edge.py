@@ -184,7 +184,8 @@ from scipy.interpolate import PchipInterpolator
 
 from ..model import Stackup
 from ..stackup import effective_er, separation_mm
-from .broadside import _bracket, _grounds, _layer_bands, mask_blocks, solve_shared, surroundings, width_knots
+from .broadside import (_grounds, _layer_bands, blend_width_knots, mask_blocks, solve_shared, surroundings,
+                        width_knots)
 from .fieldsolve import Conductor, CrossSection
 
 #: Solver resolution of the tables; each value is the Richardson extrapolation
@@ -485,20 +486,9 @@ class EdgeModel:
         lo, hi, gap = np.minimum(wa, wb).ravel(), np.maximum(wa, wb).ravel(), gap.ravel()
         if np.any(~(gap > 0)):
             raise ValueError("gaps must be positive")
-        ia, ta = _bracket(self.widths_knots, lo)
-        ib, tb = _bracket(self.widths_knots, hi)
-        nw = self.widths_knots.size
-        out = np.zeros(gap.size)
-        for da, weight_a in ((0, 1.0 - ta), (1, ta)):
-            for db, weight_b in ((0, 1.0 - tb), (1, tb)):
-                weight = weight_a * weight_b
-                key = np.minimum(ia + da, nw - 1) * nw + np.minimum(ib + db, nw - 1)
-                key[weight == 0] = -1
-                keys = [int(kv) for kv in np.unique(key) if kv >= 0]
-                self._ensure([(kv // nw, kv % nw) for kv in keys])
-                for kv in keys:
-                    sel = np.nonzero(key == kv)[0]
-                    out[sel] += weight[sel] * self._along_gap(kv // nw, kv % nw, gap[sel])
+        out = blend_width_knots(self.widths_knots, self.widths_knots, lo, hi,
+                                lambda i, j, sel: self._along_gap(i, j, gap[sel]),
+                                prepare=lambda corners: self._ensure(corners))
         return out.reshape(shape)
 
 
@@ -518,23 +508,14 @@ def self_rise_per_m(model: "EdgeModel", w_self, w_other, gap) -> np.ndarray:
                                       np.asarray(gap, float))
     shape = gap.shape
     ws, wo, gap = ws.ravel(), wo.ravel(), gap.ravel()
-    ia, ta = _bracket(model.widths_knots, ws)
-    ib, tb = _bracket(model.widths_knots, wo)
-    nw = model.widths_knots.size
-    out = np.zeros(gap.size)
     u = np.log(np.maximum(gap, 1e-9))
-    for da, weight_a in ((0, 1.0 - ta), (1, ta)):
-        for db, weight_b in ((0, 1.0 - tb), (1, tb)):
-            weight = weight_a * weight_b
-            i = np.minimum(ia + da, nw - 1)
-            j = np.minimum(ib + db, nw - 1)
-            key = np.where(weight > 0, i * nw + j, -1)
-            keys = [int(kv) for kv in np.unique(key) if kv >= 0]
-            model._ensure([(kv // nw, kv % nw) for kv in keys])
-            for kv in keys:
-                sel = np.nonzero(key == kv)[0]
-                column = model.rise[kv // nw, kv % nw]
-                out[sel] += weight[sel] * np.interp(u[sel], model._lng, column, left=column[0], right=0.0)
+
+    def along(i: int, j: int, sel: np.ndarray) -> np.ndarray:
+        column = model.rise[i, j]
+        return np.interp(u[sel], model._lng, column, left=column[0], right=0.0)
+
+    out = blend_width_knots(model.widths_knots, model.widths_knots, ws, wo, along,
+                            prepare=lambda corners: model._ensure(corners))
     return RISE_MARGIN * out.reshape(shape)
 
 
