@@ -10,7 +10,6 @@ its mutual capacitance), and the same trace solved alone.
 
 from __future__ import annotations
 
-import numpy as np
 import pytest
 
 from checker.analysis import analyse
