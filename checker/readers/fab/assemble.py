@@ -83,9 +83,30 @@ def load_package(paths: list[str], stackup: str | None = None, netlist: str | No
     drills = [_read(m, read_excellon) for m in found.drills]
     nets_file = _netlist_of(found, netlist)
     outline = _outline(found.profile, notes)
-    stack = _with_roles(job, copper, gerbers, notes)
+    given = {n: role for n, (_, role) in copper.items()}
+    files = {n: member.name for n, (member, _) in copper.items()}
+    notes += [f"not read: {s}" for s in found.skipped]
+    return board_from_layers(found.name, found.path, job, gerbers, drills, nets_file, outline, notes,
+                             given_roles=given, file_names=files)
+
+
+def board_from_layers(name: str, path: str, job: JobStackup, gerbers: dict[int, GerberLayer],
+                      drills: list[DrillFile], netlist: Netlist | None, outline: shapely.Polygon | None,
+                      notes: list[str], given_roles: dict[int, str | None] | None = None,
+                      file_names: dict[int, str] | None = None) -> Board:
+    """The Board of already-read layers: the one assembly step every
+    fabrication door shares (Gerber package, IPC-2581).
+
+    ``gerbers`` maps each of ``job.copper_numbers`` to its copper layer;
+    ``given_roles`` the role a user or a layer-function field gave
+    (``plane`` / ``signal`` / ``mixed``, else ``None``); ``file_names`` what
+    a note calls each layer's source. ``notes`` are kept, in order, ahead of
+    the assembly's own."""
+    given_roles = given_roles or {}
+    file_names = file_names or {n: g.path for n, g in gerbers.items()}
+    stack = _with_roles(job, given_roles, file_names, gerbers, notes)
     notes += [f"{g.path}: {w}" for g in gerbers.values() for w in g.warnings]
-    return _Builder(found, job, stack, gerbers, drills, nets_file, outline, notes).build()
+    return _Builder(name, path, job, stack, gerbers, drills, netlist, outline, notes).build()
 
 
 def _read(member: Member, reader):
@@ -132,12 +153,12 @@ def _copper_files(found: Sorted, job: JobStackup) -> dict[int, tuple[Member, str
     return {n: found.copper[n] for n in job.copper_numbers}
 
 
-def _with_roles(job: JobStackup, copper: dict[int, tuple[Member, str | None]],
+def _with_roles(job: JobStackup, given_roles: dict[int, str | None], file_names: dict[int, str],
                 gerbers: dict[int, GerberLayer], notes: list[str]) -> Stackup:
     layers = []
     assumed = []
     for layer, number in zip(job.stackup.layers, job.copper_numbers):
-        member, given = copper[number]
+        given = given_roles.get(number)
         ff = gerbers[number].file_function
         from_file = ff[3].lower() if ff is not None and len(ff) > 3 and ff[3] in ("Plane", "Signal", "Mixed") else None
         role = given or from_file or (layer.role if job.roles_given else None)
@@ -146,7 +167,7 @@ def _with_roles(job: JobStackup, copper: dict[int, tuple[Member, str | None]],
             if not gerbers[number].negative:
                 assumed.append(layer.name)
         elif from_file and job.roles_given and from_file != layer.role and not given:
-            notes.append(f"layer {layer.name}: role {from_file} from {member.name} (TF.FileFunction), "
+            notes.append(f"layer {layer.name}: role {from_file} from {file_names[number]} (TF.FileFunction), "
                          f"not {layer.role} as the stackup file says")
         layers.append(dataclasses.replace(layer, role=role))
     if assumed:
@@ -191,9 +212,10 @@ def _outline(profile: Member | None, notes: list[str]) -> shapely.Polygon | None
 class _Builder:
     """Turns the read files into Board columns; one instance per load."""
 
-    def __init__(self, found: Sorted, job: JobStackup, stackup: Stackup, gerbers: dict[int, GerberLayer],
+    def __init__(self, name: str, path: str, job: JobStackup, stackup: Stackup, gerbers: dict[int, GerberLayer],
                  drills: list[DrillFile], netlist: Netlist | None, outline, notes: list[str]) -> None:
-        self.found = found
+        self.name = name
+        self.path = path
         self.job = job
         self.stackup = stackup
         self.numbers = job.copper_numbers
@@ -228,11 +250,11 @@ class _Builder:
         pieces, sources = self._pieces(piece_nets)
         regions = self._regions(shape_nets, pad_used)
         if len(pieces) == 0 and not regions:
-            raise FabError(self.found.path, None, "no copper in the package's copper layers")
+            raise FabError(self.path, None, "no copper in the package's copper layers")
         nets = tuple(Net(name) for name in self.net_names)
-        return Board(name=self.found.name, path=self.found.path, stackup=self.stackup, nets=nets, pieces=pieces,
+        return Board(name=self.name, path=self.path, stackup=self.stackup, nets=nets, pieces=pieces,
                      sources=tuple(sources), regions=tuple(regions), vias=vias, outline=self.outline,
-                     notes=tuple(self.notes + [f"not read: {s}" for s in self.found.skipped]))
+                     notes=tuple(self.notes))
 
     def _known(self, layer: GerberLayer, local: np.ndarray) -> np.ndarray:
         table = np.array([NO_NET if n in _NO_NET_NAMES else self.net(n) for n in layer.net_names] + [_UNKNOWN],
