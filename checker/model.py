@@ -43,6 +43,9 @@ class CopperLayer:
     name: str
     role: LayerRole
     thickness_mm: float
+    #: values the input did not give and a documented default supplied
+    #: (``("thickness",)``); reports mark them "common practice, not your board"
+    assumed: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -53,6 +56,9 @@ class Dielectric:
     er: float
     loss_tangent: float | None = None
     name: str | None = None
+    #: values the input did not give and a documented default supplied
+    #: (``("er",)``, ``("thickness",)``); reports mark them
+    assumed: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True)

@@ -151,11 +151,7 @@ M = "MaterialStackup"
 @pytest.mark.parametrize(
     ("edit", "place", "message"),
     [
-        (lambda j: j[M][7].pop("DielectricConstant"), "MaterialStackup[7]",
-         "missing required key 'DielectricConstant'"),
-        (lambda j: j[M][9].pop("Thickness"), "MaterialStackup[9]", "missing required key 'Thickness'"),
-        (lambda j: j[M][3].pop("Thickness"), "MaterialStackup[3]", "missing required key 'Thickness'"),
-        (lambda j: j[M][2].pop("DielectricConstant"), "MaterialStackup[2]", "a solder mask needs"),
+        (lambda j: j[M][9].pop("Thickness"), "MaterialStackup[9]", "needs its thickness"),
         (lambda j: j[M][3].update(Thickness=0), "MaterialStackup[3].Thickness", "must be > 0, got 0"),
         (lambda j: j[M][3].update(Thickness="0.035"), "MaterialStackup[3].Thickness", 'must be a number, got "0.035"'),
         (lambda j: j[M][7].update(DielectricConstant=0.5), "MaterialStackup[7].DielectricConstant",
@@ -195,6 +191,56 @@ def test_bad_stackup_gives_one_error_with_the_json_path(edit, place: str, messag
     assert err.file == "job.gbrjob" and err.place == place and err.line is None
     assert str(err).startswith(f"job.gbrjob: {place}: ")
     assert message in str(err)
+
+
+def test_dielectric_without_thickness_names_the_flag_that_supplies_it() -> None:
+    # the one value no default may stand for: the message says which option gives it
+    with pytest.raises(FabError, match=r"give the stackup with --stackup FILE"):
+        read(changed(lambda j: j[M][7].pop("Thickness")))
+
+
+def test_optional_values_left_out_get_the_documented_defaults_and_a_note() -> None:
+    # The job format makes every MaterialStackup field but Type optional
+    # (Ucamco, Gerber Job Format, MaterialStackup; from memory). Left out here:
+    # the εr of PP1 (4) and of Core (7), both mask εr values, the bottom mask's
+    # thickness and the TOP copper thickness.
+    def strip(j):
+        for i in (2, 4, 7, 11):
+            j[M][i].pop("DielectricConstant")
+        j[M][11].pop("Thickness")
+        j[M][3].pop("Thickness")
+        j[M][4].pop("LossTangent")
+
+    job = read(changed(strip))
+    st = job.stackup
+    d = jobfile.DEFAULT_DIELECTRIC_ER
+    # PP1 (0.1 mm, default εr) + PP2 (0.1 mm, εr 4.5) in series (hand calculation):
+    # eps = 0.2 / (0.1/d + 0.1/4.5)
+    assert st.dielectrics[0].er == pytest.approx(0.2 / (0.1 / d + 0.1 / 4.5), rel=1e-12)
+    assert st.dielectrics[0].assumed == ("er",) and st.dielectrics[0].loss_tangent is None
+    assert st.dielectrics[1].er == d and st.dielectrics[1].assumed == ("er",)
+    assert st.dielectrics[2].er == 4.2 and st.dielectrics[2].assumed == ()  # given: not marked
+    assert st.mask_top.er == jobfile.DEFAULT_MASK_ER and st.mask_top.thickness_mm == 0.02
+    assert st.mask_top.assumed == ("er",)
+    assert st.mask_bottom.thickness_mm == jobfile.DEFAULT_MASK_MM and st.mask_bottom.assumed == ("thickness", "er")
+    assert st.layers[0].thickness_mm == jobfile.DEFAULT_COPPER_MM and st.layers[0].assumed == ("thickness",)
+    assert st.layers[1].assumed == ()
+    text = "\n".join(job.notes)
+    assert "dielectric εr not given for MaterialStackup[4] (PP1), MaterialStackup[7] (Core): 4.6 used" in text
+    assert "solder mask εr not given for MaterialStackup[2] (Top mask), MaterialStackup[11]: 4 used" in text
+    assert "solder mask thickness not given for MaterialStackup[11]: 0.025 mm used" in text
+    assert "copper thickness not given for MaterialStackup[3] (TOP): 0.035 mm used" in text
+    assert all("common practice, not your board" in n for n in job.notes) and len(job.notes) == 4
+
+
+def test_defaults_sit_at_the_high_end_of_the_usual_ranges() -> None:
+    # Common-practice ranges (rules of thumb, from memory): FR-4 class laminates
+    # 4.2-4.8, LPI solder masks 3.3-4.0, masks 10-30 um over copper; the
+    # defaults must lie in the upper half so coupling errs high.
+    assert 4.5 <= jobfile.DEFAULT_DIELECTRIC_ER <= 4.8
+    assert 3.65 <= jobfile.DEFAULT_MASK_ER <= 4.0
+    assert 0.02 <= jobfile.DEFAULT_MASK_MM <= 0.03
+    assert jobfile.DEFAULT_COPPER_MM == pytest.approx(0.0348, abs=5e-4)  # 1 oz/ft^2 = 34.8 um (common practice)
 
 
 def test_no_material_stackup() -> None:

@@ -325,19 +325,41 @@ def _identity(result: Result, inputs: list[str], when: str) -> str:
 
 
 def _stackup(stackup) -> str:
+    """The stackup table, masks included; a value the input did not give
+    (a documented default) is marked and the mark explained below."""
     out = ['<h3>Stackup (top to bottom)</h3>\n<table class="grid stackup">\n'
            "<thead><tr><th>Layer</th><th>Kind</th><th>Role</th><th class=\"r\">Thickness</th>"
            "<th class=\"r\">\u03b5r</th><th class=\"r\">Loss tangent</th></tr></thead>\n<tbody>\n"]
+    marked = False
+
+    def value(text: str, item, key: str) -> str:
+        nonlocal marked
+        if key in getattr(item, "assumed", ()):
+            marked = True
+            return f'{text}<sup class="assumed" title="assumed: common practice, not your board">*</sup>'
+        return text
+
+    def dielectric_row(d, kind: str) -> str:
+        tan = _num(d.loss_tangent) if d.loss_tangent is not None else ""
+        return (f'<tr class="dielectric"><td>{_e(d.name or "")}</td><td>{kind}</td><td></td>'
+                f'<td class="r">{value(_num(d.thickness_mm) + chr(160) + "mm", d, "thickness")}</td>'
+                f'<td class="r">{value(_num(d.er), d, "er")}</td><td class="r">{tan}</td></tr>\n')
+
+    if stackup.mask_top is not None:
+        out.append(dielectric_row(stackup.mask_top, "solder mask"))
     for i, layer in enumerate(stackup.layers):
         out.append(f'<tr class="copper"><td>{_e(layer.name)}</td><td>copper</td><td>{_e(layer.role)}</td>'
-                   f'<td class="r">{_num(layer.thickness_mm)}\u00a0mm</td><td></td><td></td></tr>\n')
+                   f'<td class="r">{value(_num(layer.thickness_mm) + chr(160) + "mm", layer, "thickness")}</td>'
+                   "<td></td><td></td></tr>\n")
         if i < len(stackup.dielectrics):
-            d = stackup.dielectrics[i]
-            tan = _num(d.loss_tangent) if d.loss_tangent is not None else ""
-            out.append(f'<tr class="dielectric"><td>{_e(d.name or "")}</td><td>dielectric</td><td></td>'
-                       f'<td class="r">{_num(d.thickness_mm)}\u00a0mm</td><td class="r">{_num(d.er)}</td>'
-                       f'<td class="r">{tan}</td></tr>\n')
+            out.append(dielectric_row(stackup.dielectrics[i], "dielectric"))
+    if stackup.mask_bottom is not None:
+        out.append(dielectric_row(stackup.mask_bottom, "solder mask"))
     out.append("</tbody>\n</table>\n")
+    if marked:
+        out.append('<p class="assumed-note">* not given in the input: a documented default was used '
+                   "(common practice, not your board). Give the fabricator's value in the job file or "
+                   "with --stackup FILE.</p>\n")
     return "".join(out)
 
 

@@ -228,9 +228,11 @@ def build_report(result: Result) -> dict:
             "name": b.name,
             "path": b.path,
             "stackup": [
-                {"copper": layer.name, "role": layer.role, "thickness_mm": layer.thickness_mm}
+                {"copper": layer.name, "role": layer.role, "thickness_mm": layer.thickness_mm,
+                 **({"assumed": list(layer.assumed)} if layer.assumed else {})}
                 if layer is not None else
-                {"dielectric": d.name, "thickness_mm": d.thickness_mm, "er": d.er}
+                {"dielectric": d.name, "thickness_mm": d.thickness_mm, "er": d.er,
+                 **({"assumed": list(d.assumed)} if d.assumed else {})}
                 for layer, d in _interleave(b.stackup)
             ],
         },

@@ -41,6 +41,7 @@ import numpy as np
 import shapely
 from scipy.sparse import coo_matrix
 from scipy.sparse.csgraph import connected_components
+from scipy.spatial import cKDTree
 from shapely.geometry.polygon import orient
 
 from ...errors import FabError
@@ -57,8 +58,11 @@ from .stackup_yaml import load_stackup_yaml
 #: 1 nm in a Gerber file with 6 decimals; this absorbs the rounding).
 TOUCH_TOLERANCE_MM = 1e-4
 
-#: A via pad belongs to a plated hole whose centre is within this (mm).
-PAD_AT_HOLE_MM = 1e-3
+#: A pad belongs to a plated hole whose centre is within this (mm). Drill
+#: files in inch with 4 decimals put a hole up to 1.27 um per axis (1.8 um
+#: on the diagonal) off a pad written in mm; 5 um takes that and any
+#: exporter's rounding, and is far below the smallest drill.
+PAD_AT_HOLE_MM = 5e-3
 
 #: Resolution of the round ends of traces when a negative plane subtracts them.
 _ROUND_SEGMENTS = 16
@@ -104,6 +108,7 @@ def board_from_layers(name: str, path: str, job: JobStackup, gerbers: dict[int, 
     the assembly's own."""
     given_roles = given_roles or {}
     file_names = file_names or {n: g.path for n, g in gerbers.items()}
+    notes = list(job.notes) + list(notes)
     stack = _with_roles(job, given_roles, file_names, gerbers, notes)
     notes += [f"{g.path}: {w}" for g in gerbers.values() for w in g.warnings]
     return _Builder(name, path, job, stack, gerbers, drills, netlist, outline, notes).build()
@@ -244,8 +249,12 @@ class _Builder:
         piece_nets = [self._known(layer, layer.traces.net) for layer in self.layers]
         shape_nets = [self._known(layer, np.array([s.net for s in layer.shapes], dtype=np.int64))
                       for layer in self.layers]
+        self.pad_hole = self._pads_at_holes(holes)
         if any((a == _UNKNOWN).any() for a in piece_nets + shape_nets):
             self._connect(piece_nets, shape_nets, holes)
+        else:
+            self.hole_nets = self._hole_nets_from_copper(holes, piece_nets, shape_nets)
+        self._note_holes_without_net(holes)
         vias, pad_used = self._vias(holes, shape_nets)
         pieces, sources = self._pieces(piece_nets)
         regions = self._regions(shape_nets, pad_used)
@@ -460,10 +469,15 @@ class _Builder:
             layer.append(np.full(len(gl.shapes), i))
             x.append(bounds[:, 0])
             y.append(bounds[:, 1])
-            pads = [k for k, sh in enumerate(gl.shapes) if sh.kind == "pad" and sh.at is not None]
-            term_comp.append(label[s0 + np.asarray(pads, dtype=np.int64)])
-            term_key.append(_keys(np.array([gl.shapes[k].at[0] for k in pads]),
-                                  np.array([gl.shapes[k].at[1] for k in pads])))
+            pads = np.array([k for k, sh in enumerate(gl.shapes) if sh.kind == "pad" and sh.at is not None],
+                            dtype=np.int64)
+            px = np.array([gl.shapes[k].at[0] for k in pads.tolist()], dtype=np.float64)
+            py = np.array([gl.shapes[k].at[1] for k in pads.tolist()], dtype=np.float64)
+            at_hole = self.pad_hole[i][pads] if len(pads) else pads  # a pad at a hole is that hole's terminal
+            on = at_hole >= 0
+            px[on], py[on] = holes["x"][at_hole[on]], holes["y"][at_hole[on]]
+            term_comp.append(label[s0 + pads])
+            term_key.append(_keys(px, py))
         comp, layer, x, y = (np.concatenate(v) for v in (comp, layer, x, y))
         # a net joins at least two terminals (pads or plated holes; a via's pads
         # and its hole are one terminal): copper reaching fewer is floating
@@ -493,43 +507,100 @@ class _Builder:
 
     # ---- vias, pieces, regions --------------------------------------------------------
 
+    def _pads_at_holes(self, holes: dict) -> list[np.ndarray]:
+        """Per layer, per shape: the plated hole (index into ``holes``) whose
+        centre is within :data:`PAD_AT_HOLE_MM` of the shape's flash point and
+        whose span includes the layer, the nearest if several; -1 for none
+        and for shapes that are not flashes."""
+        out = []
+        tree = cKDTree(np.column_stack((holes["x"], holes["y"]))) if len(holes["x"]) else None
+        for i, layer in enumerate(self.layers):
+            match = np.full(len(layer.shapes), -1, dtype=np.int64)
+            flashes = [k for k, sh in enumerate(layer.shapes) if sh.kind == "pad" and sh.at is not None]
+            if tree is not None and flashes:
+                at = np.array([layer.shapes[k].at for k in flashes], dtype=np.float64)
+                dist, near = tree.query(at, k=8, distance_upper_bound=PAD_AT_HOLE_MM)
+                for row, k in enumerate(flashes):
+                    for d, h in zip(dist[row].tolist(), near[row].tolist()):
+                        if math.isinf(d):
+                            break
+                        if holes["first"][h] <= i <= holes["last"][h]:
+                            match[k] = h
+                            break
+            out.append(match)
+        return out
+
+    def _hole_nets_from_copper(self, holes: dict, piece_nets: list[np.ndarray],
+                               shape_nets: list[np.ndarray]) -> np.ndarray:
+        """The net of each plated hole when every copper object has a known
+        net: the net of the copper its centre lies on (a pad at it first,
+        else any pad, region or trace the centre is within, with
+        :data:`TOUCH_TOLERANCE_MM`), on the layers it spans; NO_NET if none."""
+        n = len(holes["x"])
+        nets = np.full(n, NO_NET, dtype=np.int64)
+        if not n:
+            return nets
+        for i, layer in enumerate(self.layers):  # a pad at the hole decides
+            at = self.pad_hole[i]
+            k = np.flatnonzero(at >= 0)
+            known = shape_nets[i][k] >= 0
+            free = nets[at[k[known]]] == NO_NET
+            nets[at[k[known][free]]] = shape_nets[i][k[known][free]]
+        points = shapely.points(holes["x"], holes["y"])
+        for i, layer in enumerate(self.layers):
+            todo = np.flatnonzero((nets == NO_NET) & (holes["first"] <= i) & (holes["last"] >= i))
+            if not len(todo):
+                continue
+            geoms, radius, node = _layer_geometry(layer, (0, len(layer.traces)))
+            if not len(geoms):
+                continue
+            net_of = np.concatenate([piece_nets[i], shape_nets[i]])
+            tree = shapely.STRtree(geoms)
+            at, hit = tree.query(points[todo], predicate="dwithin", distance=float(radius.max()) + TOUCH_TOLERANCE_MM)
+            on = shapely.distance(geoms[hit], points[todo][at]) <= radius[hit] + TOUCH_TOLERANCE_MM
+            at, hit = at[on], hit[on]
+            good = net_of[node[hit]] >= 0
+            at, hit = at[good], hit[good]
+            # lowest object index first: deterministic when copper of two nets overlaps
+            order = np.lexsort((hit, at))
+            at, hit = at[order], hit[order]
+            first = np.r_[True, at[1:] != at[:-1]] if len(at) else np.zeros(0, dtype=bool)
+            nets[todo[at[first]]] = net_of[node[hit[first]]]
+        return nets
+
+    def _note_holes_without_net(self, holes: dict) -> None:
+        n = len(holes["x"])
+        if not n or self.hole_nets is None:
+            return
+        lost = int(np.count_nonzero(self.hole_nets < 0))
+        if lost:
+            self.notes.append(f"{lost} of {n} plated hole(s) lie on no copper of a known net and got no net "
+                              f"(a pad counts as the hole's when their centres are within "
+                              f"{PAD_AT_HOLE_MM * 1000:g} um)")
+
     def _vias(self, holes: dict, shape_nets: list[np.ndarray]) -> tuple[Vias, set]:
         """Vias from plated via holes (and holes of unknown function); the pad
-        is the largest flash centred on the hole on the layers it spans."""
+        is the largest flash at the hole (:meth:`_pads_at_holes`) on the
+        layers it spans; the net is the hole's (:attr:`hole_nets`)."""
+        keep = np.array([k for k, f in enumerate(holes["function"]) if f in ("", "ViaDrill") or f.startswith("Via")],
+                        dtype=np.int64)
+        is_via = np.zeros(len(holes["x"]), dtype=bool)
+        is_via[keep] = True
+        pad_size = np.zeros(len(holes["x"]))
         used: set[tuple[int, int]] = set()
-        keep = [k for k, f in enumerate(holes["function"]) if f in ("", "ViaDrill") or f.startswith("Via")]
-        pads: dict[tuple[int, int], list[tuple[int, int]]] = {}
         for i, layer in enumerate(self.layers):
-            for k, s in enumerate(layer.shapes):
-                if s.kind == "pad" and s.at is not None:
-                    pads.setdefault(_grid(s.at), []).append((i, k))
-        hole_nets = self.hole_nets
-        x, y, d, pad, first, last, net = [], [], [], [], [], [], []
-        for k in keep:
-            hx, hy = float(holes["x"][k]), float(holes["y"][k])
-            lo, hi = int(holes["first"][k]), int(holes["last"][k])
-            best, best_net = 0.0, NO_NET
-            for i, j in pads.get(_grid((hx, hy)), []):
-                s = self.layers[i].shapes[j]
-                if lo <= i <= hi and math.dist(s.at, (hx, hy)) <= PAD_AT_HOLE_MM:
-                    x0, y0, x1, y1 = s.polygon.bounds
-                    best = max(best, min(x1 - x0, y1 - y0))
-                    if shape_nets[i][j] >= 0 and best_net == NO_NET:
-                        best_net = int(shape_nets[i][j])
-                    if s.function in (None, "ViaPad"):
-                        used.add((i, j))
-            if hole_nets is not None and hole_nets[k] >= 0:
-                best_net = int(hole_nets[k])
-            x.append(hx)
-            y.append(hy)
-            d.append(float(holes["d"][k]))
-            pad.append(max(best, float(holes["d"][k])))
-            first.append(lo)
-            last.append(hi)
-            net.append(best_net)
-        f = lambda v: np.asarray(v, dtype=np.float64)  # noqa: E731
-        i32 = lambda v: np.asarray(v, dtype=np.int32)  # noqa: E731
-        return Vias(f(x), f(y), f(d), f(pad), i32(first), i32(last), i32(net)), used
+            for k in np.flatnonzero(self.pad_hole[i] >= 0).tolist():
+                h = int(self.pad_hole[i][k])
+                s = layer.shapes[k]
+                x0, y0, x1, y1 = s.polygon.bounds
+                pad_size[h] = max(pad_size[h], min(x1 - x0, y1 - y0))
+                if is_via[h] and s.function in (None, "ViaPad"):
+                    used.add((i, k))
+        d = holes["d"][keep]
+        vias = Vias(holes["x"][keep].astype(np.float64), holes["y"][keep].astype(np.float64), d.astype(np.float64),
+                    np.maximum(pad_size[keep], d).astype(np.float64), holes["first"][keep].astype(np.int32),
+                    holes["last"][keep].astype(np.int32), self.hole_nets[keep].astype(np.int32))
+        return vias, used
 
     def _pieces(self, piece_nets: list[np.ndarray]) -> tuple[Pieces, list[str]]:
         cols: dict[str, list[np.ndarray]] = {k: [] for k in Pieces.__dataclass_fields__}
@@ -571,10 +642,6 @@ def _keys(x: np.ndarray, y: np.ndarray) -> np.ndarray:
     gx = np.round(np.asarray(x, dtype=np.float64) / PAD_AT_HOLE_MM).astype(np.int64)
     gy = np.round(np.asarray(y, dtype=np.float64) / PAD_AT_HOLE_MM).astype(np.int64)
     return (gx << 32) + (gy & 0xFFFFFFFF)
-
-
-def _grid(xy: tuple[float, float]) -> tuple[int, int]:
-    return (round(xy[0] / PAD_AT_HOLE_MM), round(xy[1] / PAD_AT_HOLE_MM))
 
 
 def _layer_geometry(layer: GerberLayer, offsets: tuple[int, int]):

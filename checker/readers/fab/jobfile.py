@@ -29,14 +29,15 @@ How the model :class:`~checker.model.Stackup` is built from it:
 
 * every ``Copper`` entry is a copper layer, in order, named by its
   ``Name`` (``L1``, ``L2`` ... if it has none; two copper entries may not
-  share a name) and with its ``Thickness`` (required, > 0). The role is
+  share a name) and with its ``Thickness`` (> 0). The role is
   ``mixed`` and ``JobStackup.roles_given`` is False: a job file does not
   say which layer is a plane (the Gerber files' ``TF.FileFunction``
-  does). ``copper_numbers`` are 1, 2, ... n in this order.
+  does, and the copper decides in the end). ``copper_numbers`` are 1, 2,
+  ... n in this order.
 * the ``Dielectric`` entries between two neighbouring copper layers
   (a core and a prepreg, say) make one model dielectric. Each needs
-  ``Thickness`` (> 0) and ``DielectricConstant`` (>= 1); ``LossTangent``
-  (>= 0) is optional. The combined layer has the summed thickness
+  ``Thickness`` (> 0); ``DielectricConstant`` (>= 1) and ``LossTangent``
+  (>= 0) are optional. The combined layer has the summed thickness
   T = sum(t_i) and, as capacitors in series (a uniform field normal to
   the layers), the permittivity
 
@@ -48,12 +49,28 @@ How the model :class:`~checker.model.Stackup` is built from it:
   values joined by " + ". Any other ``Type`` between two copper layers
   is refused, and so are two copper layers with nothing between them.
 * a ``SolderMask`` above the first copper layer is ``mask_top``, one
-  below the last is ``mask_bottom``; it needs ``Thickness`` and
-  ``DielectricConstant`` like a dielectric (a mask the file does not
-  describe fully is refused rather than guessed). At most one per side.
+  below the last is ``mask_bottom``; thickness and εr optional. At most
+  one per side.
 * other types above the first / below the last copper layer
   (``Legend``, ``SolderPaste`` ...) are ignored; a ``Dielectric`` there
   is refused (the model has no place for it).
+
+**Optional values left out.** The job format makes every
+``MaterialStackup`` field but ``Type`` optional, and exporters leave
+some out. What the geometry cannot do without — a dielectric's thickness
+between two copper layers — is refused with a message naming
+``--stackup FILE``, which supplies it. Everything else gets a documented
+default, recorded in ``JobStackup.notes`` and in the layer's ``assumed``
+field so the reports mark it "common practice, not your board":
+
+* a dielectric's εr: :data:`DEFAULT_DIELECTRIC_ER` (4.6);
+* a solder mask's εr: :data:`DEFAULT_MASK_ER` (4.0); its thickness:
+  :data:`DEFAULT_MASK_MM` (0.025 mm);
+* a copper layer's thickness: :data:`DEFAULT_COPPER_MM` (0.035 mm).
+
+Each default sits at the high end of the usual range, so the coupling
+it gives errs toward more, not less (C12 grows with εr, with copper
+thickness for edge coupling, and with a mask's thickness and εr).
 
 Refused, with the JSON path: a file over :data:`MAX_FILE_BYTES`, bytes
 that are not UTF-8, invalid JSON (with the line), ``NaN`` / ``Infinity``,
@@ -80,6 +97,27 @@ MAX_FILE_BYTES = 256 * 1024 * 1024
 
 #: A length over 10 m is taken as a units mistake.
 MAX_LENGTH_MM = 10_000.0
+
+#: εr of a dielectric whose entry gives none: FR-4 class laminates are
+#: specified at about 4.2-4.8 between 1 MHz and 1 GHz depending on resin
+#: content (common practice, from memory); the upper half is taken so C12
+#: errs high.
+DEFAULT_DIELECTRIC_ER = 4.6
+
+#: εr of a solder mask whose entry gives none: liquid photoimageable masks
+#: are about 3.3-4.0 (common practice, from memory); the top is taken.
+DEFAULT_MASK_ER = 4.0
+
+#: Thickness of a solder mask whose entry gives none: about 10-30 um over
+#: copper is usual (common practice, from memory).
+DEFAULT_MASK_MM = 0.025
+
+#: Thickness of a copper layer whose entry gives none: 1 oz/ft^2 (35 um),
+#: the usual base copper (common practice).
+DEFAULT_COPPER_MM = 0.035
+
+#: The words that mark a default in notes and reports.
+ASSUMED_WORDS = "common practice, not your board"
 
 _DECIMAL = re.compile(r"\s*([+-]?(?:[0-9]+(?:[.,][0-9]*)?|[.,][0-9]+)(?:[eE][+-]?[0-9]+)?)\s*", re.ASCII)
 
@@ -145,6 +183,8 @@ class _Job:
     def __init__(self, name: str, data: Any) -> None:
         self.name = name
         self.data = data
+        #: (what, value used) -> the entries a default was used for
+        self.assumed: dict[tuple[str, str], list[str]] = {}
 
     def fail(self, path: tuple, message: str) -> NoReturn:
         raise FabError(self.name, None, message, place=format_path(path))
@@ -208,7 +248,22 @@ class _Job:
             roles_given=False,
             files=files,
             size_mm=size,
+            notes=self.assumed_notes(),
         )
+
+    def assumed_notes(self) -> tuple[str, ...]:
+        """One note per kind of default used, naming the entries."""
+        out = []
+        for (what, value), where in self.assumed.items():
+            out.append(f"{self.name}: {what} not given for {', '.join(where)}: {value} used "
+                       f"({ASSUMED_WORDS}; give it in the job file or with --stackup FILE)")
+        return tuple(out)
+
+    def assume(self, what: str, value: str, i: int, entry: dict) -> None:
+        label = f"MaterialStackup[{i}]"
+        if isinstance(entry.get("Name"), str) and entry["Name"].strip():
+            label += f" ({entry['Name']})"
+        self.assumed.setdefault((what, value), []).append(label)
 
     def general(self, root: dict) -> tuple[tuple[float, float] | None, int | None, float | None]:
         if "GeneralSpecs" not in root:
@@ -288,40 +343,55 @@ class _Job:
 
     def copper(self, i: int, entry: dict, number: int) -> CopperLayer:
         here = ("MaterialStackup", i)
-        if "Thickness" not in entry:
-            self.fail(here, "missing required key 'Thickness' (the copper thickness in mm)")
         name = self.text(here + ("Name",), entry["Name"]) if "Name" in entry else f"L{number}"
         if not name.strip():
             self.fail(here + ("Name",), "must not be empty")
+        if "Thickness" not in entry:
+            self.assume("copper thickness", f"{DEFAULT_COPPER_MM:g} mm", i, entry)
+            return CopperLayer(name, "mixed", DEFAULT_COPPER_MM, assumed=("thickness",))
         return CopperLayer(name, "mixed", self.length(here + ("Thickness",), entry["Thickness"]))
 
-    def layer(self, i: int, entry: dict, what: str) -> tuple[float, float, float | None, str | None]:
-        """(thickness, er, loss tangent, name) of a dielectric or mask entry."""
+    def layer(self, i: int, entry: dict, mask: bool) -> tuple[float, float, float | None, str | None, tuple]:
+        """(thickness, er, loss tangent, name, assumed) of a dielectric or
+        mask entry; a missing value a default may stand for is assumed."""
         here = ("MaterialStackup", i)
-        for key in ("Thickness", "DielectricConstant"):
-            if key not in entry:
-                self.fail(here, f"missing required key {key!r}: {what} needs its thickness and permittivity")
-        thickness = self.length(here + ("Thickness",), entry["Thickness"])
-        er = self.number(here + ("DielectricConstant",), entry["DielectricConstant"], minimum=1.0,
-                         exclusive=False, text_ok=True)
+        assumed = []
+        if "Thickness" in entry:
+            thickness = self.length(here + ("Thickness",), entry["Thickness"])
+        elif mask:
+            thickness = DEFAULT_MASK_MM
+            assumed.append("thickness")
+            self.assume("solder mask thickness", f"{DEFAULT_MASK_MM:g} mm", i, entry)
+        else:
+            self.fail(here, "missing key 'Thickness': a dielectric between copper layers needs its thickness "
+                      "(no default can stand for it); give the stackup with --stackup FILE")
+        if "DielectricConstant" in entry:
+            er = self.number(here + ("DielectricConstant",), entry["DielectricConstant"], minimum=1.0,
+                             exclusive=False, text_ok=True)
+        else:
+            er = DEFAULT_MASK_ER if mask else DEFAULT_DIELECTRIC_ER
+            assumed.append("er")
+            self.assume("solder mask εr" if mask else "dielectric εr", f"{er:g}", i, entry)
         tan_d = None
         if "LossTangent" in entry:
             tan_d = self.number(here + ("LossTangent",), entry["LossTangent"], minimum=0.0, exclusive=False,
                                 text_ok=True)
         name = self.text(here + ("Name",), entry["Name"]) if "Name" in entry else None
-        return thickness, er, tan_d, name
+        return thickness, er, tan_d, name, tuple(assumed)
 
     def combine(self, parts: list[tuple[int, dict]]) -> Dielectric:
         """One model dielectric from consecutive entries, by the series rule."""
-        layers = [self.layer(i, e, "a dielectric between copper layers") for i, e in parts]
-        total = sum(t for t, _, _, _ in layers)
-        er = total / sum(t / e for t, e, _, _ in layers)
+        layers = [self.layer(i, e, mask=False) for i, e in parts]
+        total = sum(t for t, _, _, _, _ in layers)
+        er = total / sum(t / e for t, e, _, _, _ in layers)
         tan_d = None
-        if all(tan is not None for _, _, tan, _ in layers):
-            eps = total / sum(t / (e * complex(1.0, -tan)) for t, e, tan, _ in layers)
+        if all(tan is not None for _, _, tan, _, _ in layers):
+            eps = total / sum(t / (e * complex(1.0, -tan)) for t, e, tan, _, _ in layers)
             tan_d = -eps.imag / eps.real
-        names = [n for _, _, _, n in layers if n]
-        return Dielectric(thickness_mm=total, er=er, loss_tangent=tan_d, name=" + ".join(names) or None)
+        names = [n for _, _, _, n, _ in layers if n]
+        assumed = tuple(sorted({a for *_, parts_assumed in layers for a in parts_assumed}))
+        return Dielectric(thickness_mm=total, er=er, loss_tangent=tan_d, name=" + ".join(names) or None,
+                          assumed=assumed)
 
     def outside(self, entries: list, kinds: list[str], span: range, side: str) -> Dielectric | None:
         masks = [i for i in span if kinds[i] == "SolderMask"]
@@ -333,5 +403,5 @@ class _Job:
             self.fail(("MaterialStackup", masks[1]), f"a second SolderMask {side} copper layer")
         if not masks:
             return None
-        thickness, er, tan_d, name = self.layer(masks[0], entries[masks[0]], "a solder mask")
-        return Dielectric(thickness_mm=thickness, er=er, loss_tangent=tan_d, name=name)
+        thickness, er, tan_d, name, assumed = self.layer(masks[0], entries[masks[0]], mask=True)
+        return Dielectric(thickness_mm=thickness, er=er, loss_tangent=tan_d, name=name, assumed=assumed)

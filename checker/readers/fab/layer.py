@@ -163,6 +163,7 @@ class JobStackup:
     ``FilesAttributes`` as (path, file function, polarity) in file order
     (polarity ``""`` if not given; empty for a stackup YAML).
     ``size_mm``: ``GeneralSpecs.Size`` (X, Y) if the file gives it.
+    ``notes``: the defaults the reader used for values the file left out.
     """
 
     path: str
@@ -173,3 +174,6 @@ class JobStackup:
     roles_given: bool
     files: tuple[tuple[str, str, str], ...] = ()
     size_mm: tuple[float, float] | None = None
+    #: what the reader assumed (a documented default for a value the file
+    #: left out), each a sentence for the report's notes
+    notes: tuple[str, ...] = ()
