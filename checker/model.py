@@ -195,7 +195,8 @@ class Board:
     input's own terms (for JSON: ``tracks[3]`` or ``arcs[0]``), so a finding
     can point back into the file. ``notes``: what the reader had to say
     about the input (derived net names, unconnected copper, assumed layer
-    roles); reports show them with the analysis notes.
+    roles); reports show them with the analysis notes. ``files``: how a
+    fabrication package's files were read.
     """
 
     name: str
@@ -208,6 +209,9 @@ class Board:
     vias: Vias = field(default_factory=Vias.empty)
     outline: shapely.Polygon | None = None
     notes: tuple[str, ...] = ()
+    #: for a fabrication package: (file, read as, how it was decided) for
+    #: every file, so a user can confirm what was inferred
+    files: tuple[tuple[str, str, str], ...] = ()
 
     def net_index(self) -> dict[str, int]:
         return {net.name: i for i, net in enumerate(self.nets)}

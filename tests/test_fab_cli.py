@@ -51,15 +51,27 @@ def test_stackup_yaml_replaces_a_missing_job_file(capsys, tmp_path):
     assert [f["id"] for f in json.loads(out)["findings"]] == [f["id"] for f in with_job["findings"]]
 
 
-def test_unidentified_copper_file_is_named_and_layer_option_fixes_it(capsys, tmp_path):
+def test_one_unnamed_copper_file_fills_the_one_free_layer_and_two_need_the_layer_option(capsys, tmp_path):
+    # The fixture package is the reference (its files carry X2 attributes).
+    with_x2 = json.loads(run(capsys, "check", SIX, "--format", "json")[1])
     folder = tmp_path / "renamed"
     shutil.copytree(SIX, folder)
-    text = (folder / "six-layer-fab-L3.gbr").read_text()
-    (folder / "six-layer-fab-L3.gbr").unlink()
-    stripped = "\n".join(line for line in text.splitlines() if "TF.FileFunction" not in line) + "\n"
-    (folder / "inner-a.gbr").write_text(stripped)
+    for n, new_name in ((3, "inner-a.gbr"), (4, "inner-b.gbr")):
+        text = (folder / f"six-layer-fab-L{n}.gbr").read_text()
+        (folder / f"six-layer-fab-L{n}.gbr").unlink()
+        stripped = "\n".join(line for line in text.splitlines() if "TF.FileFunction" not in line) + "\n"
+        (folder / new_name).write_text(stripped)
+        if n == 3:
+            # one file no name claims, one layer no file holds: its content (tracks,
+            # pads and pours) makes it copper, and it can only be L3
+            code, out, err = run(capsys, "check", folder, "--format", "json")
+            assert code == 1, err
+            report = json.loads(out)
+            assert [f["id"] for f in report["findings"]] == [f["id"] for f in with_x2["findings"]]
+            assert any("inner-a.gbr = L3" in note for note in report["notes"])
     code, _, err = run(capsys, "check", folder)
-    assert code == 2 and "L3" in err and "inner-a.gbr" in err and "--layer" in err
+    assert code == 2 and "inner-a.gbr" in err and "inner-b.gbr" in err and "--layer" in err
+    assert "position unknown" in err and "Traceback" not in err
     code, out, err = run(capsys, "check", folder, "--layer", "inner-a.gbr=L3,signal", "--format", "json")
     assert code == 1, err
 

@@ -318,6 +318,12 @@ def _identity(result: Result, inputs: list[str], when: str) -> str:
         out.append('<tr><td colspan="3">No input files were given to the report.</td></tr>\n')
     out.append("</tbody>\n</table>\n")
 
+    if board.files:
+        out.append('<h3>Package files as read</h3>\n<table class="grid files">\n'
+                   "<thead><tr><th>File</th><th>Read as</th><th>How it was decided</th></tr></thead>\n<tbody>\n")
+        for name, read_as, how in board.files:
+            out.append(f'<tr><td class="path">{_e(name)}</td><td>{_e(read_as)}</td><td>{_e(how)}</td></tr>\n')
+        out.append("</tbody>\n</table>\n")
     out.append(_stackup(board.stackup))
     out.append(_settings(rs.settings))
     out.append("</section>\n")

@@ -235,6 +235,7 @@ def build_report(result: Result) -> dict:
                  **({"assumed": list(d.assumed)} if d.assumed else {})}
                 for layer, d in _interleave(b.stackup)
             ],
+            **({"files": [{"file": f, "read_as": r, "how": h} for f, r, h in b.files]} if b.files else {}),
         },
         "ruleset": {"path": a.ruleset.path, "sha256": a.ruleset.sha256},
         "settings": {

@@ -28,6 +28,26 @@ def _severity(f, waived: bool) -> str:
     return f"[{SEVERITY_STYLE[f.severity]}]{f.severity}[/]"
 
 
+#: How a file was identified when no attribute or option said it: the
+#: reasons :mod:`checker.readers.fab.identify` gives start so.
+_INFERRED = ("extension ", "name word", "name ends", "content:")
+
+
+def _render_files(board, console: Console) -> None:
+    """The package's files as read, when any was identified by its name or
+    content rather than by its attributes: the user confirms or corrects
+    the mapping with --layer."""
+    if not any(how.startswith(_INFERRED) for _, _, how in board.files):
+        return
+    table = Table(title="package files (identified by name or content where no attribute says; correct with "
+                        "--layer FILE=L<n>)", title_justify="left", expand=False)
+    for column in ("file", "read as", "how"):
+        table.add_column(column, overflow="fold")
+    for name, read_as, how in board.files:
+        table.add_row(escape(name.rsplit("/", 1)[-1]), escape(read_as), escape(how))
+    console.print(table)
+
+
 def render(result: Result, console: Console) -> None:
     a = result.analysis
     review = result.review
@@ -65,6 +85,7 @@ def render(result: Result, console: Console) -> None:
     else:
         console.print(f"{title}: no findings", highlight=False)
     _render_victims(result, console)
+    _render_files(a.board, console)
     for note in sorted(set(a.notes)):
         console.print(f"[dim]note: {escape(note)}[/]", highlight=False)
     _render_review(result, console)

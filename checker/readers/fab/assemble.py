@@ -35,7 +35,10 @@ from __future__ import annotations
 
 import dataclasses
 import math
+import os
+import re
 from collections import Counter
+from pathlib import Path
 
 import numpy as np
 import shapely
@@ -50,6 +53,7 @@ from .excellon import read_excellon
 from .gerber import read_gerber
 from .ipc356 import read_ipc356
 from .jobfile import read_job
+from .identify import number_copper
 from .layer import NET_UNKNOWN, DrillFile, GerberLayer, JobStackup, Netlist
 from .package import Member, Sorted, collect, parse_layer_override
 from .stackup_yaml import load_stackup_yaml
@@ -82,16 +86,18 @@ def load_package(paths: list[str], stackup: str | None = None, netlist: str | No
     found = collect(paths, overrides)
     notes: list[str] = []
     job = _stackup_of(found, stackup, notes)
-    copper = _copper_files(found, job)
-    gerbers = {n: _read(member, read_gerber) for n, (member, _) in copper.items()}
+    copper = _copper_files(found, job, notes)
+    # the small files first, so a bad drill file or netlist fails in seconds, naming itself
     drills = [_read(m, read_excellon) for m in found.drills]
-    nets_file = _netlist_of(found, netlist)
+    nets_file = _netlist_of(found, netlist, notes)
     outline = _outline(found.profile, notes)
+    gerbers = {n: _read(member, read_gerber) for n, (member, _) in copper.items()}
     given = {n: role for n, (_, role) in copper.items()}
     files = {n: member.name for n, (member, _) in copper.items()}
     notes += [f"not read: {s}" for s in found.skipped]
-    return board_from_layers(found.name, found.path, job, gerbers, drills, nets_file, outline, notes,
-                             given_roles=given, file_names=files)
+    board = board_from_layers(found.name, found.path, job, gerbers, drills, nets_file, outline, notes,
+                              given_roles=given, file_names=files)
+    return dataclasses.replace(board, files=tuple(sorted(found.read_as)))
 
 
 def board_from_layers(name: str, path: str, job: JobStackup, gerbers: dict[int, GerberLayer],
@@ -140,22 +146,56 @@ def _stackup_of(found: Sorted, stackup: str | None, notes: list[str]) -> JobStac
     return _read(found.jobs[0], read_job)
 
 
-def _copper_files(found: Sorted, job: JobStackup) -> dict[int, tuple[Member, str | None]]:
+def _copper_files(found: Sorted, job: JobStackup, notes: list[str]) -> dict[int, tuple[Member, str | None]]:
+    """Copper layer number -> (file, role given), every stackup layer once:
+    the files identified by X2, ``--layer`` or the naming rule, then the job
+    file's ``FilesAttributes`` for files without attributes, then the
+    trade's naming conventions and the content (:mod:`.identify`)."""
+    copper = dict(found.copper)
+    guessed = list(found.guessed)
+    if guessed and job.files:
+        by_base = {Path(path).name.lower(): function for path, function, _ in job.files}
+        left = []
+        for member, guess in guessed:
+            function = by_base.get(Path(member.name.rsplit(":", 1)[-1]).name.lower(), "")
+            fields = [f.strip() for f in function.split(",")]
+            if fields[0] == "Copper" and len(fields) > 1 and re.fullmatch(r"L\d+", fields[1]):
+                n = int(fields[1][1:])
+                if n in copper:
+                    raise FabError(member.name, None, f"copper layer L{n} again (job file FilesAttributes): "
+                                                      f"{copper[n][0].name} holds it too")
+                role = fields[3].lower() if len(fields) > 3 and fields[3] in ("Plane", "Signal", "Mixed") else None
+                copper[n] = (member, role)
+                found.read_as.append((member.name, f"copper L{n}", f"job file FilesAttributes: {function}"))
+            else:
+                left.append((member, guess))
+        guessed = left
     wanted = set(job.copper_numbers)
-    have = set(found.copper)
+    if guessed:
+        roles = [layer.role for layer in job.stackup.layers] if job.roles_given else None
+        placed = number_copper([(m.name, g) for m, g in guessed], {n: m.name for n, (m, _) in copper.items()},
+                               len(job.copper_numbers), roles, found.path)
+        members = {m.name: m for m, _ in guessed}
+        for n, (name, guess) in placed.items():
+            copper[n] = (members[name], guess.role)
+            found.read_as.append((name, f"copper L{n}" + (f", {guess.role}" if guess.role else ""), guess.why))
+        notes.append("copper layers without X2 attributes identified from their file names and content; check "
+                     "the mapping (couplint prints it as 'package files') and correct it with --layer FILE=L<n>: "
+                     + "; ".join(f"{Path(name).name} = L{n}" for n, (name, _) in sorted(placed.items())))
+    have = set(copper)
     missing = sorted(wanted - have)
     extra = sorted(have - wanted)
     if extra:
-        member = found.copper[extra[0]][0]
+        member = copper[extra[0]][0]
         raise FabError(member.name, None, f"copper layer L{extra[0]}, but the stackup ({job.path}) has "
                                           f"{len(wanted)} copper layers (L{min(wanted)}..L{max(wanted)})")
     if missing:
-        unnamed = [s for s in found.skipped if "naming rule" in s]
+        unnamed = [s for s in found.skipped if "--layer" in s]
         hint = f"; files not identified: {', '.join(s.split(' (')[0] for s in unnamed)} (name them with --layer " \
                f"FILE=L<n>)" if unnamed else ""
         raise FabError(found.path, None, f"no Gerber file for copper layer(s) "
                                          f"{', '.join(f'L{n}' for n in missing)} of the stackup ({job.path}){hint}")
-    return {n: found.copper[n] for n in job.copper_numbers}
+    return {n: copper[n] for n in job.copper_numbers}
 
 
 def _with_roles(job: JobStackup, given_roles: dict[int, str | None], file_names: dict[int, str],
@@ -186,9 +226,14 @@ def _with_roles(job: JobStackup, given_roles: dict[int, str | None], file_names:
     return dataclasses.replace(job.stackup, layers=tuple(layers))
 
 
-def _netlist_of(found: Sorted, netlist: str | None) -> Netlist | None:
+def _netlist_of(found: Sorted, netlist: str | None, notes: list[str]) -> Netlist | None:
     if netlist is not None:
         from .ipc356 import load_ipc356
+        same = [m for m in found.netlists if os.path.abspath(m.name) == os.path.abspath(netlist)]
+        others = [m for m in found.netlists if m not in same]
+        if others:
+            notes.append(f"netlist from {netlist} (--netlist); {', '.join(m.name for m in others)} in the package "
+                         "was not used")
         return load_ipc356(netlist)
     if len(found.netlists) > 1:
         raise FabError(found.netlists[1].name, None, f"a second IPC-D-356 netlist; the first is "
@@ -196,19 +241,53 @@ def _netlist_of(found: Sorted, netlist: str | None) -> Netlist | None:
     return _read(found.netlists[0], read_ipc356) if found.netlists else None
 
 
+#: Outline segment ends closer than this (mm) are joined: exporters round
+#: arc end points and chain coordinates differently (gaps of nanometres
+#: are common); 5 um is far below any routed feature.
+OUTLINE_SNAP_MM = 5e-3
+
+
 def _outline(profile: Member | None, notes: list[str]) -> shapely.Polygon | None:
+    """The board outline: the largest face the profile's draws enclose (and
+    its regions), after segment ends within :data:`OUTLINE_SNAP_MM` are
+    joined; ``None`` with a note if nothing closes."""
     if profile is None:
         return None
     drawn = _read(profile, read_gerber)
     t = drawn.traces
-    lines = shapely.linestrings(np.stack([np.column_stack((t.x1, t.y1)), np.column_stack((t.x2, t.y2))], axis=1)) \
-        if len(t) else np.empty(0, dtype=object)
+    ends = np.column_stack((np.concatenate([t.x1, t.x2]), np.concatenate([t.y1, t.y2]))) if len(t) else \
+        np.zeros((0, 2))
+    snapped = 0
+    if len(ends):
+        ends, snapped = _snap_points(ends, OUTLINE_SNAP_MM)
+    n = len(t)
+    lines = shapely.linestrings(np.stack([ends[:n], ends[n:]], axis=1)) if n else np.empty(0, dtype=object)
+    lines = lines[~shapely.is_empty(lines)] if n else lines
     faces = [g for g in shapely.get_parts(shapely.polygonize(list(lines))) if g.area > 0] if len(lines) else []
     faces += [p for s in drawn.shapes for p in shapely.get_parts(s.polygon) if p.area > 0]
     if not faces:
-        notes.append(f"the board outline in {profile.name} is not a closed shape; no outline used")
+        notes.append(f"the board outline in {profile.name} is not a closed shape (segment ends more than "
+                     f"{OUTLINE_SNAP_MM * 1000:g} um apart); no outline used")
         return None
+    if snapped:
+        notes.append(f"board outline {profile.name}: {snapped} segment end(s) within {OUTLINE_SNAP_MM * 1000:g} um "
+                     "of another were joined to close it")
     return orient(max(faces, key=lambda g: g.area), 1.0)
+
+
+def _snap_points(xy: np.ndarray, tolerance: float) -> tuple[np.ndarray, int]:
+    """Points within ``tolerance`` of each other (transitively) moved to
+    their group's first point; returns the points and how many moved."""
+    pairs = cKDTree(xy).query_pairs(tolerance, output_type="ndarray")
+    if not len(pairs):
+        return xy, 0
+    graph = coo_matrix((np.ones(len(pairs), dtype=np.int8), (pairs[:, 0], pairs[:, 1])), shape=(len(xy), len(xy)))
+    _, label = connected_components(graph, directed=False)
+    first = np.full(label.max() + 1, len(xy))
+    np.minimum.at(first, label, np.arange(len(xy)))
+    out = xy[first[label]]
+    moved = int(np.count_nonzero(np.any(out != xy, axis=1)))
+    return out, moved
 
 
 # --------------------------------------------------------------------------- the board

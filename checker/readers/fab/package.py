@@ -28,11 +28,12 @@ import io
 import os
 import re
 import zipfile
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import BinaryIO, Callable
 
 from ...errors import FabError, UsageError
+from .identify import Guess, from_content, from_name
 
 #: Largest file couplint reads from a package (bytes); a copper layer of a
 #: million draws is about 40 MB.
@@ -45,7 +46,6 @@ _NAMED_COPPER = re.compile(r"[-_.]L(\d{1,2})$", re.IGNORECASE)
 _NAMED_PROFILE = re.compile(r"[-_.]profile$", re.IGNORECASE)
 _FILE_FUNCTION = re.compile(rb"TF\.FileFunction,([^*%\r\n]*)")
 _GERBER_START = re.compile(rb"%(FS|MO|TF|TA|AD|AM)|G04|G0?1\*|D0?[123]\*")
-_IPC356_RECORD = re.compile(rb"^(P |C |317|327|367|378|389|999)", re.MULTILINE)
 
 
 @dataclass(frozen=True)
@@ -73,6 +73,12 @@ class Sorted:
     jobs: list[Member]
     netlists: list[Member]
     skipped: list[str]
+    #: Gerber files without X2 identity whose name or content says copper:
+    #: numbered by :func:`checker.readers.fab.identify.number_copper` once
+    #: the stackup is known
+    guessed: list[tuple[Member, Guess]] = field(default_factory=list)
+    #: (file, read as, how it was decided) for every file but guessed copper
+    read_as: list[tuple[str, str, str]] = field(default_factory=list)
 
 
 def is_package(paths: list[str]) -> bool:
@@ -93,43 +99,64 @@ def collect(paths: list[str], layer_overrides: dict[str, str] | None = None) -> 
     used: set[str] = set()
     copper: dict[int, tuple[Member, str | None]] = {}
     profile: Member | None = None
+    profiles: list[tuple[int, Member, str]] = []  # guessed outline files: (rank, member, why)
     drills: list[Member] = []
     jobs: list[Member] = []
     netlists: list[Member] = []
     skipped: list[str] = []
+    guessed: list[tuple[Member, Guess]] = []
+    read_as: list[tuple[str, str, str]] = []
     for m in members:
         override = _override_for(m, overrides, used)
         if override == "ignore":
             skipped.append(f"{m.name} (--layer ignore)")
+            read_as.append((m.name, "ignored", "--layer"))
             continue
         head = _head(m)
-        kind = _kind(head, m.stem)
+        kind = _kind(head, m.stem, m)
         if override is not None and kind not in ("gerber", None):
             raise UsageError(f"--layer {m.name}={override}: the file is {_KIND_WORDS[kind]}, not a Gerber layer")
-        if kind == "job":
-            jobs.append(m)
-        elif kind == "drill":
-            drills.append(m)
-        elif kind == "netlist":
-            netlists.append(m)
+        if kind in ("job", "drill", "netlist"):
+            {"job": jobs, "drill": drills, "netlist": netlists}[kind].append(m)
+            read_as.append((m.name, _KIND_WORDS[kind].split(" ", 1)[1], "content"))
         elif kind == "gerber" or override is not None:
-            layer, role, is_profile = _gerber_identity(m, head, override)
+            layer, role, is_profile, how = _gerber_identity(m, head, override)
             if is_profile:
                 if profile is not None:
                     raise FabError(m.name, None, f"a second board outline (Profile) file; the first is {profile.name}")
                 profile = m
-            elif layer is None:
-                skipped.append(f"{m.name} ({_gerber_function_words(head)})")
-            else:
+                read_as.append((m.name, "board outline", how))
+            elif layer is not None:
                 if layer in copper:
                     raise FabError(m.name, None, f"copper layer L{layer} again: {copper[layer][0].name} holds it too")
                 copper[layer] = (m, role)
+                read_as.append((m.name, f"copper L{layer}" + (f", {role}" if role else ""), how))
+            elif how is not None:  # an X2 file function that is not copper
+                skipped.append(f"{m.name} ({_gerber_function_words(head)})")
+                read_as.append((m.name, "not read", how))
+            else:
+                guess = from_name(m.name) or from_content(head)
+                if guess.kind == "copper":
+                    guessed.append((m, guess))
+                elif guess.kind == "profile":
+                    profiles.append((guess.rank, m, guess.why))
+                else:
+                    skipped.append(f"{m.name} ({guess.why}; if it is copper, name it with --layer FILE=L<n>)")
+                    read_as.append((m.name, "not read", guess.why))
         else:
             skipped.append(f"{m.name} (not a Gerber, Excellon, IPC-D-356 or Gerber job file)")
+    profiles.sort(key=lambda t: (t[0], t[1].name))
+    for k, (_, m, why) in enumerate(profiles):
+        if profile is None and k == 0:
+            profile = m
+            read_as.append((m.name, "board outline", why))
+        else:
+            skipped.append(f"{m.name} ({why}; {profile.name} is used as the outline)")
+            read_as.append((m.name, "not read", f"{why}; another file is the outline"))
     unknown = sorted(set(overrides) - used)
     if unknown:
         raise UsageError(f"--layer {unknown[0]}=...: no file of that name in the package")
-    return Sorted(name, where, copper, profile, drills, jobs, netlists, skipped)
+    return Sorted(name, where, copper, profile, drills, jobs, netlists, skipped, guessed, read_as)
 
 
 _KIND_WORDS = {"job": "a Gerber job file", "drill": "an Excellon drill file", "netlist": "an IPC-D-356 netlist",
@@ -241,16 +268,17 @@ def _override_for(m: Member, overrides: dict[str, str], used: set[str]) -> str |
 
 def sniff_kind(path: str) -> str | None:
     """``gerber``, ``job``, ``drill``, ``netlist`` or ``None`` for the file
-    at ``path``, from its first bytes (unreadable files: ``None``)."""
+    at ``path``, from its content (unreadable files: ``None``)."""
     try:
+        member = _file_member(Path(path))
         with open(path, "rb") as stream:
             head = stream.read(SNIFF_BYTES)
-    except OSError:
+        return _kind(head, _stem(os.path.basename(path)), member)
+    except (OSError, FabError):
         return None
-    return _kind(head, _stem(os.path.basename(path)))
 
 
-def _kind(head: bytes, stem: str) -> str | None:
+def _kind(head: bytes, stem: str, member: Member | None = None) -> str | None:
     text = head.lstrip(b"\xef\xbb\xbf \t\r\n")
     if text.startswith(b"{"):
         keys = (b'"MaterialStackup"', b'"GeneralSpecs"', b'"FilesAttributes"')
@@ -261,36 +289,71 @@ def _kind(head: bytes, stem: str) -> str | None:
         return "drill"
     if _GERBER_START.search(text[:4096]):
         return "gerber"
-    if _IPC356_RECORD.search(text[:4096]) and any(ln.startswith((b"317", b"327", b"999")) for ln in lines):
+    if _looks_like_ipc356(text, member):
         return "netlist"
     return None
 
 
-def _gerber_identity(m: Member, head: bytes, override: str | None) -> tuple[int | None, str | None, bool]:
-    """(copper layer number or None, role or None, is the profile)."""
+#: An IPC-D-356 record: ``C`` comment, ``P`` parameter (column 1, then a
+#: blank or the line's end) or a three-digit operation code.
+_IPC356_LINE = re.compile(rb"(?:[CP](?:\s|$)|[0-9]{3})")
+_IPC356_TEST = re.compile(rb"(?:^|\n)(?:317|327|999)")
+
+
+def _looks_like_ipc356(text: bytes, member: Member | None) -> bool:
+    """Whether the file is an IPC-D-356 netlist: every line of its start is a
+    record (a comment header of any length is), and a test record (317 /
+    327) or the end record (999) stands somewhere in the file — searched
+    through the whole file, not a window, so a long header still reads."""
+    lines = [ln for ln in text.splitlines()[:-1] or text.splitlines() if ln.strip()][:400]
+    if not lines or not all(_IPC356_LINE.match(ln) for ln in lines):
+        return False
+    if _IPC356_TEST.search(text):
+        return True
+    if member is None or member.size <= len(text):
+        return False
+    stream = member.open()
+    try:
+        tail = b""
+        while chunk := stream.read(1 << 20):
+            if _IPC356_TEST.search(tail + chunk):
+                return True
+            tail = chunk[-8:]
+    except (OSError, zipfile.BadZipFile, EOFError, ValueError) as exc:
+        raise FabError(member.name, None, f"cannot read: {exc}") from None
+    finally:
+        stream.close()
+    return False
+
+
+def _gerber_identity(m: Member, head: bytes, override: str | None) -> tuple[int | None, str | None, bool, str | None]:
+    """(copper layer number or None, role or None, is the profile, how it
+    was decided); how is ``None`` when neither attributes, ``--layer`` nor
+    couplint's naming rule say what the file is."""
     if override is not None:
         if override == "profile":
-            return None, None, True
+            return None, None, True, "--layer"
         number, _, role = override[1:].partition(",")
-        return int(number), role or None, False
+        return int(number), role or None, False, "--layer"
     found = _FILE_FUNCTION.search(head)
     if found is not None:
         fields = [f.strip() for f in found.group(1).decode("ascii", "replace").split(",")]
+        how = f"TF.FileFunction,{','.join(fields)}"
         if fields[0] == "Copper":
             if len(fields) < 3 or not re.fullmatch(r"L\d+", fields[1]):
                 raise FabError(m.name, _line_of(head, found.start()),
                                f"TF.FileFunction,{','.join(fields)}: a copper layer needs Copper,L<n>,Top|Inr|Bot")
             role = fields[3].lower() if len(fields) > 3 and fields[3] in ("Plane", "Signal", "Mixed") else None
-            return int(fields[1][1:]), role, False
+            return int(fields[1][1:]), role, False, how
         if fields[0] == "Profile":
-            return None, None, True
-        return None, None, False
+            return None, None, True, how
+        return None, None, False, how
     named = _NAMED_COPPER.search(m.stem)
     if named is not None:
-        return int(named.group(1)), None, False
+        return int(named.group(1)), None, False, "name -L<n> (couplint's naming rule)"
     if _NAMED_PROFILE.search(m.stem):
-        return None, None, True
-    return None, None, False
+        return None, None, True, "name -Profile (couplint's naming rule)"
+    return None, None, False, None
 
 
 def _gerber_function_words(head: bytes) -> str:
