@@ -15,11 +15,13 @@ tie, so a renamed export still reads:
   named in a note.
 
 Which copper layer a Gerber file holds comes from its
-``TF.FileFunction,Copper,L<n>,...`` attribute. A file without that
-attribute is taken as copper layer *n* only when its name follows
-couplint's naming rule — the stem ends in ``-L<n>``, ``_L<n>`` or ``.L<n>``
-(``ctrl-board-L3.gbr``) — or when the user says so with
-``--layer FILE=L<n>``; it is never guessed from a vendor's file extension.
+``TF.FileFunction,Copper,L<n>,...`` attribute, from ``--layer FILE=L<n>``,
+or from couplint's naming rule (the stem ends in ``-L<n>``, ``_L<n>`` or
+``.L<n>``: ``ctrl-board-L3.gbr``). A file none of these identify is
+guessed from the trade's naming conventions and its content
+(:mod:`.identify`); ``Sorted.guessed`` holds those, numbered once the
+stackup is known (``assemble``), and ``Sorted.read_as`` says for every
+file how it was decided.
 """
 
 from __future__ import annotations
