@@ -123,3 +123,16 @@ def test_several_json_boards_point_to_batch(capsys):
     board = ROOT / "fixtures" / "six_layer_fab.json"
     code, _, err = run(capsys, "check", board, board)
     assert code == 2 and "couplint batch" in err
+
+
+def test_a_bad_drill_file_fails_before_any_gerber_is_read(capsys, tmp_path):
+    # the drill files are read first, so a bad one stops the run in seconds,
+    # naming itself, even when a Gerber file is bad too (and would take long)
+    folder = tmp_path / "bad"
+    shutil.copytree(SIX, folder)
+    drill = folder / "six-layer-fab-PTH-1-6.drl"
+    drill.write_text(drill.read_text().replace("T01\n", "T07\n", 1))  # select an undefined tool
+    (folder / "six-layer-fab-L1.gbr").write_text("%FSLAX46Y46*%\n%MOMM*%\nD10*\nX0Y0D03*\nM02*\n")
+    code, _, err = run(capsys, "check", folder)
+    assert code == 2 and "six-layer-fab-PTH-1-6.drl" in err and "L1.gbr" not in err
+    assert "Traceback" not in err
