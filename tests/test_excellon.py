@@ -290,8 +290,11 @@ H = "M48\nMETRIC\nT1C0.3\n%\n"  # a good header: lines 1-4
         (H + "T1\nG00X1.Y1.\nM15\nG02X2.Y2.\nM30\n", 8, "circular routing (G02) is not supported"),
         ("M48\nMETRIC\nICI,ON\n%\nM30\n", 3, "incremental coordinates (ICI,ON) are not supported"),
         (H + "G91\nM30\n", 5, "incremental coordinates (G91) are not supported"),
-        ("M48\nINCH\nT1C0.01\n%\nT1\nX15Y25\nM30\n", 6, "does not say LZ or TZ"),
-        ("M48\nMETRIC,TZ\nT1C0.01\n%\nT1\nX1234567Y0\nM30\n", 6, "more digits than the format 3.3"),
+        # (these two asserted refusals of an ambiguous X15 and of 7 digits with no digit format
+        # stated; both are now read: test_ambiguous_zeros_read_as_tz, test_digit_format_inferred)
+        # Excellon: a short coordinate with a leading 0 cannot be TZ, one with a trailing 0 cannot be LZ
+        ("M48\nINCH\nT1C0.01\n%\nT1\nX015Y0\nX150Y1\nM30\n", 7, "no reading of the implied decimal point fits both"),
+        ("M48\nMETRIC,TZ,000.000\nT1C0.01\n%\nT1\nX1234567Y0\nM30\n", 6, "more digits than the format 3.3"),
         ("M48\nMETRIC\nT1C0\n%\nM30\n", 3, "diameter must be > 0"),
         ("M48\nMETRIC\nT1C0.3\nT1C0.4\n%\nM30\n", 4, "defined twice with different diameters"),
         ("M48\nT1C0.3\nMETRIC\n%\nM30\n", 2, "before the units are set"),
@@ -346,3 +349,292 @@ def test_missing_file_and_folder(tmp_path: Path) -> None:
         load_excellon(tmp_path / "none.drl")
     with pytest.raises(FabError, match="is a folder"):
         load_excellon(tmp_path)
+
+
+# --------------------------------------------------------------------------- files as found in the wild
+
+DRILL = Path(__file__).resolve().parent.parent / "fixtures" / "drill"
+
+
+def gerbonara_holes_told(text: str, unit: str, digits: tuple[int, int], lz: bool,
+                         tools_mm: dict[int, float] | None = None) -> list[tuple[float, float, float]]:
+    """gerbonara 1.5's reading when it is *told* the unit, digit format and
+    zero suppression (and, for tools the file leaves undefined, a diameter):
+    for files whose format gerbonara cannot find itself. It then checks the
+    arithmetic of the reading, not how the format was found."""
+    gx = pytest.importorskip("gerbonara.excellon", reason="gerbonara is the oracle for Excellon positions")
+    from gerbonara.apertures import ExcellonTool
+    from gerbonara.cam import FileSettings
+    from gerbonara.utils import MM, Inch
+
+    u = MM if unit == "mm" else Inch
+    # gerbonara names the zeros left out (Gerber convention): Excellon LZ is its zeros="trailing"
+    settings = FileSettings(unit=u, number_format=digits, zeros="trailing" if lz else "leading")
+    external = {n: ExcellonTool(diameter=d, unit=MM) for n, d in (tools_mm or {}).items()}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", SyntaxWarning)
+        f = gx.ExcellonFile.from_string(text, settings=settings, external_tools=external)
+    return [(c.x, c.y, MM.convert_from(d.aperture.unit, d.aperture.diameter))
+            for d in f.drills() for c in [d.converted(MM)]]
+
+
+def test_fully_stated_file_has_no_notes() -> None:
+    # METRIC,TZ,000.000 and decimal points: nothing is taken from a comment,
+    # assumed or inferred, so there is nothing to note.
+    assert read(METRIC_DECIMAL).notes == []
+
+
+def test_metric_file_format_comment_fixture() -> None:
+    # ;FILE_FORMAT=4:4 gives 4 integer and 4 decimal digits; METRIC,LZ keeps
+    # leading zeros, so short values are padded on the right. Hand-worked:
+    # X00125000 = 0012.5000 -> 12.5; Y0075 -> 00750000 -> 75.0; X0205 -> 205.0;
+    # Y00301250 -> 30.125; X01234567 -> 123.4567 mm.
+    path = DRILL / "metric-file-format-4-4.drl"
+    before = path.read_bytes()
+    d = load_excellon(path)
+    assert path.read_bytes() == before  # the input is never modified
+    np.testing.assert_allclose(holes(d), [(12.5, 25.0, 0.3), (123.4567, 75.0, 0.3), (205.0, 30.125, 0.3),
+                                          (10.0, 10.0, 1.0)], rtol=1e-12)
+    assert d.notes == [("line 5: digit format 4.4 taken from the format comment ';FILE_FORMAT=4:4' where no "
+                       "command states them")]
+    # gerbonara 1.5 reads ;FILE_FORMAT=W:F itself: the same holes
+    np.testing.assert_allclose(holes(d), gerbonara_holes(before.decode()), rtol=1e-12)
+
+
+def test_without_the_comment_the_smaller_plausible_reading_is_taken() -> None:
+    # The same coordinates with no format stated: 8 digits, more than 3.3.
+    # Read as 3.5 (mm default's 3 integer digits, the rest decimals): X01234567
+    # -> 012.34567 = 12.34567 mm (hand); 4.4 (123.4567 mm) is also within 1 m and
+    # is named in the note, the smaller reading taken (module docstring rule).
+    text = "M48\nMETRIC,LZ\nT1C0.3\n%\nT1\nX01234567Y00500000\nM30\n"
+    d = read(text)
+    np.testing.assert_allclose([d.x[0], d.y[0]], [12.34567, 5.0], rtol=1e-12)
+    assert len(d.notes) == 1
+    assert d.notes[0].startswith("line 6: no digit format stated, and coordinates have up to 8 digits, more than "
+                                 "the default 3.3 (mm) allows: read as 3.5")
+    assert "4.4 would also give a plausible board (largest coordinate 123.457 mm)" in d.notes[0]
+    assert "errs toward holes being placed" in d.notes[0]
+    # gerbonara told 3.5, LZ, mm: the same arithmetic
+    np.testing.assert_allclose(holes(d), gerbonara_holes_told(text, "mm", (3, 5), lz=True), rtol=1e-12)
+
+
+def test_inch_format_comment_fixture() -> None:
+    # ; FORMAT={2:5/ absolute / inch / suppress trailing zeros}: 2.5 digits,
+    # inch, trailing zeros left out (= LZ), and no INCH command. Hand-worked:
+    # X0125 -> 0125000 -> 01.25000 in = 31.75 mm; Y01 -> 1.0 in = 25.4 mm;
+    # X015 -> 1.5 in = 38.1; Y0225 -> 2.25 in = 57.15; X1234567 -> 12.34567 in
+    # = 313.580018 mm; Y0055 -> 0.55 in = 13.97 mm; T01C0.0120 = 0.3048 mm.
+    path = DRILL / "inch-format-comment.drl"
+    text = path.read_text()
+    d = load_excellon(path)
+    expected = [(31.75, 25.4, 0.3048), (38.1, 57.15, 0.3048), (313.580018, 13.97, 1.016)]
+    np.testing.assert_allclose(holes(d), expected, rtol=1e-12)
+    assert d.notes == [("line 4: digit format 2.5, unit inch, zero suppression LZ taken from the format comment "
+                       "'; FORMAT={2:5/ absolute / inch / supp...' where no command states them")]
+    # gerbonara 1.5 reads only the "/ decimal}" form of this comment and refuses
+    # the file (no number format); told 2.5, LZ, inch it gives the same holes
+    np.testing.assert_allclose(holes(d), gerbonara_holes_told(text, "in", (2, 5), lz=True), rtol=1e-12)
+
+
+def test_headerless_fixture() -> None:
+    # No M48, no units, T1/T2 selected without a diameter. Short coordinates
+    # keep a leading 0 (X0135, Y015), which TZ would have left out: LZ.
+    # Units: mm gives a largest coordinate of 30 mm, inch 76.2 mm; both within
+    # 1 m, the smaller (mm) is taken. Hand-worked in 3.3 LZ mm: X012500 ->
+    # 12.5; X0135 -> 013500 -> 13.5; Y015 -> 15.0; X025 -> 25.0; Y0175 -> 17.5;
+    # X03 -> 30.0; Y02 -> 20.0. Diameter: the assumed 0.15 mm.
+    path = DRILL / "headerless.drl"
+    text = path.read_text()
+    d = load_excellon(path)
+    expected = [(12.5, 15.0, 0.15), (13.5, 15.0, 0.15), (25.0, 17.5, 0.15), (30.0, 20.0, 0.15)]
+    np.testing.assert_allclose(holes(d), expected, rtol=1e-12)
+    assert d.line.tolist() == [5, 6, 8, 10]
+    assert d.notes == [
+        ("no M48 header: read as an Excellon program without header (tool sizes and units only as the body "
+        "states them)"),
+        ("line 10: no LZ or TZ stated, and the coordinate 03 has fewer digits than the format but keeps its leading "
+        "zero: read as LZ (leading zeros kept, digits counted from the left)"),
+        ("line 5: no units stated (no METRIC, INCH, M71, M72 or format comment): read as mm, largest coordinate "
+        "30 mm; inch would also be plausible (largest coordinate 76.2 mm): the smaller reading was taken, as it "
+        "errs toward holes being placed on the board's copper rather than dropped beyond it"),
+        "line 5: no digit format stated: implied-decimal coordinates read as 3.3 (mm), the common default",
+        ("tool(s) T1, T2 selected without a diameter (no header defines them): taken as 0.15 mm, the smallest "
+        "mechanical via drill fabricators commonly offer; this is an assumption, not read from the file"),
+    ]
+    # gerbonara 1.5 refuses the file (T1 undefined, no number format); told mm,
+    # 3.3, LZ and the 0.15 mm tools it gives the same holes
+    told = gerbonara_holes_told(text, "mm", (3, 3), lz=True, tools_mm={1: 0.15, 2: 0.15})
+    np.testing.assert_allclose(holes(d), told, rtol=1e-12)
+
+
+def test_ambiguous_zeros_read_as_tz() -> None:
+    # Was refused (no LZ/TZ, X15 shorter than 2.4). Now TZ, the common
+    # practice: X15 -> 0.0015 in = 0.0381 mm, Y25 -> 0.0635 mm (hand); gerbonara
+    # 1.5 reads a bare INCH the same way (2.4, leading zeros left out).
+    text = "M48\nINCH\nT1C0.01\n%\nT1\nX15Y25\nM30\n"
+    d = read(text)
+    np.testing.assert_allclose([d.x[0], d.y[0]], [0.0381, 0.0635], rtol=1e-12)
+    np.testing.assert_allclose(holes(d), gerbonara_holes(text), rtol=1e-12)
+    assert any(n.startswith("line 6: no LZ or TZ stated, and the coordinate 15 has fewer digits than the format: "
+                            "read as TZ") and "common practice" in n for n in d.notes)
+
+
+def test_a_short_coordinate_with_a_leading_zero_shows_lz() -> None:
+    # X015 keeps a leading 0 that TZ would leave out: LZ. X015 -> 01.5 in =
+    # 38.1 mm, Y02 -> 02.0 in = 50.8 mm (hand); gerbonara told INCH,LZ agrees.
+    text = "M48\nINCH\nT1C0.01\n%\nT1\nX015Y02\nM30\n"
+    d = read(text)
+    np.testing.assert_allclose([d.x[0], d.y[0]], [38.1, 50.8], rtol=1e-12)
+    np.testing.assert_allclose(holes(d), gerbonara_holes(text.replace("INCH\n", "INCH,LZ\n")), rtol=1e-12)
+    assert "read as LZ (leading zeros kept, digits counted from the left)" in d.notes[0]
+
+
+def test_digit_format_inferred() -> None:
+    # Was refused (7 digits, METRIC,TZ with no digit format). TZ counts digits
+    # from the right; 3 integer digits (mm default) leave 4 decimals:
+    # X1234567 -> 123.4567 mm (hand). 4.3 would give 1234.567 mm, beyond 1 m.
+    d = read("M48\nMETRIC,TZ\nT1C0.01\n%\nT1\nX1234567Y0\nM30\n")
+    assert d.x.tolist() == [123.4567] and d.y.tolist() == [0.0]
+    assert d.notes == [("line 6: no digit format stated, and coordinates have up to 7 digits, more than the default "
+                       "3.3 (mm) allows: read as 3.4 (the mm default's 3 integer digits, the rest decimals); the "
+                       "largest coordinate is 123.457 mm")]
+
+
+def test_digit_format_inferred_fewer_integer_digits_when_beyond_1_m() -> None:
+    # INCH,TZ, 7 digits: 2.5 would read X9234567 as 92.34567 in = 2.35 m, not a
+    # plausible board; 1.6 gives 9.234567 in = 234.5580018 mm; Y500000 ->
+    # 0.5 in = 12.7 mm (hand).
+    d = read("M48\nINCH,TZ\nT1C0.01\n%\nT1\nX9234567Y500000\nM30\n")
+    np.testing.assert_allclose([d.x[0], d.y[0]], [234.5580018, 12.7], rtol=1e-12)
+    assert "read as 1.6, as 2.5 (the inch default's 2 integer digits, the rest decimals) would put a coordinate " \
+           "2.35 m from the origin" in d.notes[0]
+
+
+def test_commands_win_over_comments() -> None:
+    # METRIC,TZ,000.000 states 3.3: the comment's 4:4 is overridden, X1500 ->
+    # 1.500 mm, Y25 -> 0.025 mm (hand; gerbonara 1.5 agrees: its METRIC line
+    # comes after the comment and replaces its format).
+    text = ";FILE_FORMAT=4:4\nM48\nMETRIC,TZ,000.000\nT1C0.3\n%\nT1\nX1500Y25\nM30\n"
+    d = read(text)
+    np.testing.assert_allclose([d.x[0], d.y[0]], [1.5, 0.025], rtol=1e-12)
+    np.testing.assert_allclose(holes(d), gerbonara_holes(text), rtol=1e-12)
+    assert d.notes == ["line 3: the digit format 3.3 overrides the format comment's 4.4: commands win over comments"]
+    # a comment's unit that the unit command contradicts is not used, so a
+    # diameter before METRIC is refused as before
+    with pytest.raises(FabError, match=r"^x\.drl: line 3: tool diameter before the units are set"):
+        read("; FORMAT={-:-/ absolute / inch / decimal}\nM48\nT1C0.01\nMETRIC\n%\nM30\n", "x.drl")
+    d = read("; FORMAT={-:-/ absolute / inch / decimal}\nM48\nMETRIC\nT1C0.3\n%\nT1\nX1.5Y2.5\nM30\n")
+    assert holes(d) == [(1.5, 2.5, 0.3)]
+    assert d.notes == [("line 1: the format comment's unit (inch) is overridden by the unit command on line 3 (mm): "
+                       "commands win over comments")]
+
+
+def test_decimal_format_comment_gives_the_unit() -> None:
+    # ; FORMAT={-:-/ absolute / metric / decimal}: mm, coordinates with a
+    # decimal point, no METRIC command (gerbonara 1.5 reads it the same).
+    text = ";FORMAT={-:-/ absolute / metric / decimal}\nM48\nT1C0.3\n%\nT1\nX1.5Y2.5\nM30\n"
+    d = read(text)
+    assert holes(d) == [(1.5, 2.5, 0.3)]
+    np.testing.assert_allclose(holes(d), gerbonara_holes(text), rtol=1e-12)
+
+
+def test_vague_leading_word_is_not_used() -> None:
+    # "; Format : 2.4 / Absolute / Inch / Trailing": digits and unit are taken;
+    # "Trailing" does not say kept or left out and is not used. Y025 keeps a
+    # leading 0, so LZ: X15 -> 15.0000 in = 381 mm, Y025 -> 2.5 in = 63.5 mm
+    # (hand). gerbonara 1.5 takes "Trailing" as trailing zeros kept (TZ) and
+    # reads 0.0381, 0.0635 mm, which Y025's leading 0 contradicts.
+    d = read("; Format : 2.4 / Absolute / Inch / Trailing\nM48\nT1C0.01\n%\nT1\nX15Y025\nM30\n")
+    np.testing.assert_allclose([d.x[0], d.y[0]], [381.0, 63.5], rtol=1e-12)
+    assert d.notes[0] == ("line 1: the format comment's 'Trailing' does not say whether those zeros are kept or left "
+                          "out: not used")
+
+
+def test_headerless_units_from_a_later_command() -> None:
+    # M72 on line 3 sets inch for the whole file: X012500 in 2.4 with a leading
+    # 0 kept (LZ) = 1.25 in = 31.75 mm; Y015000 = 1.5 in = 38.1 mm (hand).
+    d = read("T1\nX012500Y015000\nM72\nX0125Y015\nM30\n")
+    np.testing.assert_allclose(holes(d), [(31.75, 38.1, 0.15)] * 2, rtol=1e-12)
+    assert "line 2: values come before the first unit command (line 3): read in its unit, inch" in d.notes
+
+
+@pytest.mark.parametrize(
+    ("text", "unit", "diameter_mm"),
+    [
+        # C0.0135 read as mm is a 13.5 um drill, below 0.05 mm: inch (0.3429 mm, hand)
+        ("T1C0.0135\nX1.Y1.\nM30\n", "inch", 0.3429),
+        # C0.8 read as inch is a 20.32 mm drill, above 10 mm: mm
+        ("T1C0.8\nX1.Y1.\nM30\n", "mm", 0.8),
+    ],
+)
+def test_headerless_units_from_the_only_plausible_reading(text: str, unit: str, diameter_mm: float) -> None:
+    # X1. is 1 in = 25.4 mm or 1 mm as written (hand); plausible drills 0.05 to 10 mm (module docstring)
+    d = read(text)
+    assert d.diameter[0] == pytest.approx(diameter_mm, rel=1e-12)
+    assert d.x[0] == pytest.approx(25.4 if unit == "inch" else 1.0, rel=1e-12)
+    assert f"read as {unit}, the only plausible reading" in d.notes[1]
+
+
+def test_headerless_tool_defined_in_the_body_and_percent_first() -> None:
+    # Excellon: %, then M71 (metric) and T1C0.3, which defines and selects the
+    # tool in the body; X1.5Y2.5 as written, in mm (hand). No tool is assumed.
+    d = read("%\nM71\nT1C0.3\nX1.5Y2.5\nM30\n")
+    assert holes(d) == [(1.5, 2.5, 0.3)]
+    assert not any("assumption" in n for n in d.notes)
+
+
+def test_percent_before_m48_is_accepted() -> None:
+    # Excellon: % is the rewind stop; some exporters write it before M48.
+    # X1.Y1. with a decimal point is 1 mm, 1 mm as written (hand).
+    d = read("%\nM48\nMETRIC\nT1C0.3\n%\nT1\nX1.Y1.\nM30\n")
+    assert holes(d) == [(1.0, 1.0, 0.3)]
+
+
+@pytest.mark.parametrize(
+    ("text", "line", "message"),
+    [
+        # neither unit plausible: C0.01 as mm is 10 um, C0.8 as inch is 20 mm
+        ("T1C0.01\nX1.Y1.\nT2C0.8\nX2.Y2.\nM30\n", 1, "neither reading is a plausible board"),
+        # a Gerber file is not read as a drill program without header
+        ("G04 invented*\n%FSLAX26Y26*%\n%MOMM*%\nX100Y200D03*\nM02*\n", 1, "expected the header start M48"),
+        # the first pass needs a second one (7 digits), and the error after it is the one reported
+        ("M48\nMETRIC\nT1C0.3\n%\nT1\nX1234567Y0\nM25\nM30\n", 7, "unknown or unsupported command 'M25'"),
+        # headerless, but cut short
+        ("T1\nX1.Y1.\n", 2, "no end of program (M30)"),
+    ],
+)
+def test_in_the_wild_errors(text: str, line: int, message: str) -> None:
+    with pytest.raises(FabError) as info:
+        read(text, "w.drl")
+    assert info.value.file == "w.drl" and info.value.line == line
+    assert str(info.value).startswith(f"w.drl: line {line}: ") and message in str(info.value)
+
+
+# --------------------------------------------------------------------------- looks_like_drill
+
+GERBER = b"G04 invented*\n%FSLAX26Y26*%\n%MOMM*%\n%ADD10C,0.1*%\nD10*\nX0Y0D02*\nX100Y0D01*\nM02*\n"
+IPC356 = b"C  invented netlist\nP  JOB   BOARD\nP  UNITS CUST 1\n317GND       VIA   D0150PA00X 000100Y 000200X0300Y0000R000 S0\n999\n"
+
+
+@pytest.mark.parametrize(
+    ("head", "expected"),
+    [
+        (METRIC_DECIMAL.encode(), True),  # M48 header
+        ((DRILL / "headerless.drl").read_bytes(), True),  # comments, %, T1, hits, M30
+        (b"T01\nX012500Y015000\nT02\nX1.5Y2.5\nM30\n", True),
+        (b"\xef\xbb\xbfM72\nG90\nT1C0.3\nX1.Y1.\nR3X1.\nG05\n", True),  # BOM, no M30 (head cut)
+        (b"T1\nX012500Y015000\nX0125", True),  # the last line cut short by the end of head
+        (b"T1\nX012500Y015000\nX01Q", True),  # ditto, even unreadable
+        (GERBER, False),
+        (IPC356, False),
+        (b"X1.Y1.\nM30\n", False),  # no tool
+        (b"T1\nM30\n", False),  # no hit
+        (b"; only comments\n", False),
+        (b"T1\nX1.Y1.\nhello\nM30\n", False),  # a line no drill program has
+        (b"", False),
+    ],
+)
+def test_looks_like_drill(head: bytes, expected: bool) -> None:
+    # Excellon body commands (tool selection, hits, M30, %, M71/M72, G90, G05);
+    # Gerber lines end in '*', IPC-D-356 records start with C, P, 317, 999.
+    assert excellon.looks_like_drill(head) is expected

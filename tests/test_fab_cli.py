@@ -136,3 +136,20 @@ def test_a_bad_drill_file_fails_before_any_gerber_is_read(capsys, tmp_path):
     code, _, err = run(capsys, "check", folder)
     assert code == 2 and "six-layer-fab-PTH-1-6.drl" in err and "L1.gbr" not in err
     assert "Traceback" not in err
+
+
+def test_ipc2581_file_checks_like_the_gerber_package(capsys, tmp_path):
+    # reference: the Gerber X2 package of the same board (both written from
+    # fixtures/six_layer_fab.json); the IPC-2581 door must give the same findings
+    xml = ROOT / "fixtures" / "ipc2581" / "six_layer.xml"
+    code, out, err = run(capsys, "check", xml, "--format", "json")
+    assert code == 1, err
+    gerber = json.loads(run(capsys, "check", SIX, "--format", "json")[1])
+    key = lambda f: (f["rule"], f["aggressor"], f["victim"], round(f["value"], 4))  # noqa: E731
+    assert sorted(map(key, json.loads(out)["findings"])) == sorted(map(key, gerber["findings"]))
+    # renamed, it is still found by its content
+    renamed = tmp_path / "board-export.dat"
+    renamed.write_bytes(xml.read_bytes())
+    assert run(capsys, "check", renamed, "--format", "json")[0] == 1
+    code, _, err = run(capsys, "check", renamed, "--stackup", ROOT / "fixtures" / "fab" / "wild-ten-layer-stackup.yaml")
+    assert code == 2 and "IPC-2581" in err and "--stackup" in err

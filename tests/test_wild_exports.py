@@ -200,3 +200,18 @@ def test_job_file_without_permittivities_reads_with_marked_defaults(capsys):
     report = json.loads(out)
     assert [s.get("assumed") for s in report["board"]["stackup"] if "dielectric" in s] == [["er"]] * 5
     assert any("dielectric εr not given" in n and "4.6 used" in n for n in report["notes"])
+
+
+def test_headerless_mounting_hole_file_is_read_non_plated_by_its_name(ten):
+    # hand-worked: ;FILE_FORMAT=4:4 metric, X00040000 = 0004.0000 mm; the
+    # fixture's four mounting holes of 3.2 mm (scripts/write_wild.py MOUNTING_HOLES)
+    from checker.readers.fab.excellon import load_excellon
+    drill = load_excellon(TEN / "ten-layer-wild-NPTH.drl")
+    assert sorted(zip(drill.x.tolist(), drill.y.tolist())) == sorted([(4.0, 4.0), (56.0, 4.0), (56.0, 36.0),
+                                                                       (4.0, 36.0)])
+    assert drill.diameter.tolist() == [3.2] * 4
+    assert any("no M48 header" in n for n in drill.notes)
+    # non-plated by the trade's name (-NPTH): no via, the 15 plated holes stay the only ones
+    assert len(ten.vias.x) == 15
+    assert any("non-plated by its name" in n for n in ten.notes)
+    assert not any("NPTH.drl" in n and "not read" in n for n in ten.notes)

@@ -47,7 +47,7 @@ from scipy.sparse.csgraph import connected_components
 from scipy.spatial import cKDTree
 from shapely.geometry.polygon import orient
 
-from ...errors import FabError
+from ...errors import FabError, UsageError
 from ...model import NO_NET, Board, Net, Pieces, Region, Stackup, Vias
 from .excellon import read_excellon
 from .gerber import read_gerber
@@ -84,11 +84,14 @@ def load_package(paths: list[str], stackup: str | None = None, netlist: str | No
     ``FILE=ignore`` identifications."""
     overrides = dict(parse_layer_override(text) for text in (layers or []))
     found = collect(paths, overrides)
+    if found.ipc2581:
+        return _from_ipc2581(found, stackup, netlist, layers)
     notes: list[str] = []
     job = _stackup_of(found, stackup, notes)
     copper = _copper_files(found, job, notes)
     # the small files first, so a bad drill file or netlist fails in seconds, naming itself
-    drills = [_read(m, read_excellon) for m in found.drills]
+    drills = [_plating_by_name(_read(m, read_excellon), notes) for m in found.drills]
+    notes += [f"{d.path}: {n}" for d in drills for n in d.notes]
     nets_file = _netlist_of(found, netlist, notes)
     outline = _outline(found.profile, notes)
     gerbers = {n: _read(member, read_gerber) for n, (member, _) in copper.items()}
@@ -98,6 +101,29 @@ def load_package(paths: list[str], stackup: str | None = None, netlist: str | No
     board = board_from_layers(found.name, found.path, job, gerbers, drills, nets_file, outline, notes,
                               given_roles=given, file_names=files)
     return dataclasses.replace(board, files=tuple(sorted(found.read_as)))
+
+
+def _from_ipc2581(found: Sorted, stackup: str | None, netlist: str | None, layers: list[str] | None) -> Board:
+    """The board of the package's IPC-2581 file: it carries stackup, layers,
+    nets and drills itself, so the Gerber-package options do not apply and
+    any other file is not read (a note names them)."""
+    first = found.ipc2581[0]
+    if len(found.ipc2581) > 1:
+        raise FabError(found.ipc2581[1].name, None, f"a second IPC-2581 file; the first is {first.name} "
+                                                    "(one board per check)")
+    for option, value in (("--stackup", stackup), ("--netlist", netlist), ("--layer", layers)):
+        if value:
+            raise UsageError(f"{option} is for Gerber packages; {first.name} is an IPC-2581 file, which carries "
+                             "its own stackup, layers and nets")
+    from ..ipc2581 import read_ipc2581  # late: that door imports this module
+    board = _read(first, read_ipc2581)
+    others = [name for name, _, _ in found.read_as if name != first.name] + \
+        [m.name for m, _ in found.guessed] + [s.split(" (")[0] for s in found.skipped]
+    notes = list(board.notes)
+    if others:
+        notes.append(f"the board is read from the IPC-2581 file {first.name}; not read: {', '.join(sorted(set(others)))}")
+    return dataclasses.replace(board, name=found.name if len(found.read_as) > 1 else board.name,
+                               notes=tuple(notes), files=((first.name, "IPC-2581 board", "content"),))
 
 
 def board_from_layers(name: str, path: str, job: JobStackup, gerbers: dict[int, GerberLayer],
@@ -224,6 +250,21 @@ def _with_roles(job: JobStackup, given_roles: dict[int, str | None], file_names:
         layers = [dataclasses.replace(layer, name=f"L{n}") for layer, n in zip(layers, job.copper_numbers)]
         notes.append("the stackup's copper layer names are missing or repeated: layers are named L1, L2, ...")
     return dataclasses.replace(job.stackup, layers=tuple(layers))
+
+
+_NONPLATED_NAME = re.compile(r"(?:^|[^a-z])(npth|non[-_]?plated|unplated)(?:[^a-z]|$)", re.IGNORECASE)
+
+
+def _plating_by_name(drill: DrillFile, notes: list[str]) -> DrillFile:
+    """A drill file whose content does not say its plating and whose name
+    says non-plated (``-NPTH``, ``non-plated``, ``unplated``: the trade's
+    common naming) is read as non-plated, with a note; any other is plated
+    (the assembly's default)."""
+    base = Path(drill.path.rsplit(":", 1)[-1]).name
+    if drill.plated is None and _NONPLATED_NAME.search(base):
+        notes.append(f"{drill.path}: no plating attribute; non-plated by its name ({base}): its holes join nothing")
+        return dataclasses.replace(drill, plated=False)
+    return drill
 
 
 def _netlist_of(found: Sorted, netlist: str | None, notes: list[str]) -> Netlist | None:

@@ -121,6 +121,8 @@ class DrillFile:
     slot_y2: np.ndarray
     slot_diameter: np.ndarray
     slot_line: np.ndarray
+    #: what the reader assumed or inferred (format, units, zeros, tool sizes), one sentence each
+    notes: list[str] = field(default_factory=list)
 
 
 @dataclass(frozen=True)

@@ -9,7 +9,10 @@ tie, so a renamed export still reads:
   ``GeneralSpecs`` or ``FilesAttributes`` (``.gbrjob``);
 * Gerber: an ``%FS`` / ``%MO`` / ``%TF`` extended command or ``G04`` comment
   among the first commands;
-* Excellon: an ``M48`` header;
+* Excellon: an ``M48`` header, or a body of drill commands without one
+  (:func:`~checker.readers.fab.excellon.looks_like_drill`);
+* IPC-2581: XML whose root element is ``IPC-2581`` (the whole board in one
+  file, read by :mod:`checker.readers.ipc2581`);
 * IPC-D-356: fixed-column records (``P``, ``C``, ``317``, ``327``, ``999``);
 * anything else (a PDF, a readme, a pick-and-place list) is skipped and
   named in a note.
@@ -35,6 +38,7 @@ from pathlib import Path
 from typing import BinaryIO, Callable
 
 from ...errors import FabError, UsageError
+from .excellon import looks_like_drill
 from .identify import Guess, from_content, from_name
 
 #: Largest file couplint reads from a package (bytes); a copper layer of a
@@ -75,6 +79,8 @@ class Sorted:
     jobs: list[Member]
     netlists: list[Member]
     skipped: list[str]
+    #: IPC-2581 files (one is the whole board)
+    ipc2581: list[Member] = field(default_factory=list)
     #: Gerber files without X2 identity whose name or content says copper:
     #: numbered by :func:`checker.readers.fab.identify.number_copper` once
     #: the stackup is known
@@ -105,6 +111,7 @@ def collect(paths: list[str], layer_overrides: dict[str, str] | None = None) -> 
     drills: list[Member] = []
     jobs: list[Member] = []
     netlists: list[Member] = []
+    ipc2581: list[Member] = []
     skipped: list[str] = []
     guessed: list[tuple[Member, Guess]] = []
     read_as: list[tuple[str, str, str]] = []
@@ -118,8 +125,8 @@ def collect(paths: list[str], layer_overrides: dict[str, str] | None = None) -> 
         kind = _kind(head, m.stem, m)
         if override is not None and kind not in ("gerber", None):
             raise UsageError(f"--layer {m.name}={override}: the file is {_KIND_WORDS[kind]}, not a Gerber layer")
-        if kind in ("job", "drill", "netlist"):
-            {"job": jobs, "drill": drills, "netlist": netlists}[kind].append(m)
+        if kind in ("job", "drill", "netlist", "ipc2581"):
+            {"job": jobs, "drill": drills, "netlist": netlists, "ipc2581": ipc2581}[kind].append(m)
             read_as.append((m.name, _KIND_WORDS[kind].split(" ", 1)[1], "content"))
         elif kind == "gerber" or override is not None:
             layer, role, is_profile, how = _gerber_identity(m, head, override)
@@ -146,7 +153,7 @@ def collect(paths: list[str], layer_overrides: dict[str, str] | None = None) -> 
                     skipped.append(f"{m.name} ({guess.why}; if it is copper, name it with --layer FILE=L<n>)")
                     read_as.append((m.name, "not read", guess.why))
         else:
-            skipped.append(f"{m.name} (not a Gerber, Excellon, IPC-D-356 or Gerber job file)")
+            skipped.append(f"{m.name} (not a Gerber, Excellon, IPC-D-356, IPC-2581 or Gerber job file)")
     profiles.sort(key=lambda t: (t[0], t[1].name))
     for k, (_, m, why) in enumerate(profiles):
         if profile is None and k == 0:
@@ -158,11 +165,11 @@ def collect(paths: list[str], layer_overrides: dict[str, str] | None = None) -> 
     unknown = sorted(set(overrides) - used)
     if unknown:
         raise UsageError(f"--layer {unknown[0]}=...: no file of that name in the package")
-    return Sorted(name, where, copper, profile, drills, jobs, netlists, skipped, guessed, read_as)
+    return Sorted(name, where, copper, profile, drills, jobs, netlists, skipped, ipc2581, guessed, read_as)
 
 
 _KIND_WORDS = {"job": "a Gerber job file", "drill": "an Excellon drill file", "netlist": "an IPC-D-356 netlist",
-               "gerber": "a Gerber file", None: "not a known format"}
+               "ipc2581": "an IPC-2581 file", "gerber": "a Gerber file", None: "not a known format"}
 
 
 def parse_layer_override(text: str) -> tuple[str, str]:
@@ -269,7 +276,7 @@ def _override_for(m: Member, overrides: dict[str, str], used: set[str]) -> str |
 
 
 def sniff_kind(path: str) -> str | None:
-    """``gerber``, ``job``, ``drill``, ``netlist`` or ``None`` for the file
+    """``gerber``, ``job``, ``drill``, ``netlist``, ``ipc2581`` or ``None`` for the file
     at ``path``, from its content (unreadable files: ``None``)."""
     try:
         member = _file_member(Path(path))
@@ -282,6 +289,9 @@ def sniff_kind(path: str) -> str | None:
 
 def _kind(head: bytes, stem: str, member: Member | None = None) -> str | None:
     text = head.lstrip(b"\xef\xbb\xbf \t\r\n")
+    if text.startswith(b"<") or head.startswith((b"\xff\xfe", b"\xfe\xff")):
+        from ..ipc2581 import is_ipc2581  # late: that door imports the assembly, which imports this module
+        return "ipc2581" if is_ipc2581(head) else None
     if text.startswith(b"{"):
         keys = (b'"MaterialStackup"', b'"GeneralSpecs"', b'"FilesAttributes"')
         return "job" if any(k in head for k in keys) else None
@@ -293,6 +303,8 @@ def _kind(head: bytes, stem: str, member: Member | None = None) -> str | None:
         return "gerber"
     if _looks_like_ipc356(text, member):
         return "netlist"
+    if looks_like_drill(head):  # a drill program without its M48 header
+        return "drill"
     return None
 
 
