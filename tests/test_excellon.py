@@ -638,3 +638,21 @@ def test_looks_like_drill(head: bytes, expected: bool) -> None:
     # Excellon body commands (tool selection, hits, M30, %, M71/M72, G90, G05);
     # Gerber lines end in '*', IPC-D-356 records start with C, P, 317, 999.
     assert excellon.looks_like_drill(head) is expected
+
+
+def test_type_comments_set_the_plating_of_the_tools_after_them():
+    # One file holding plated and non-plated tools, each group after its
+    # ;TYPE= comment (a common exporter layout for a merged drill file; the
+    # comment form from memory). Hand-worked: T1 holes plated, T3 not.
+    text = ("M48\nMETRIC\n;TYPE=PLATED\nT1C0.300\n;TYPE=NON_PLATED\nT3C3.200\n%\n"
+            "T1\nX10.0Y10.0\nX12.0Y10.0\nT3\nX5.0Y5.0\nM30\n")
+    drill = read(text)
+    assert drill.plated is None
+    assert drill.hole_plated.tolist() == [True, True, False]
+    only_plated = read("M48\nMETRIC\n;TYPE=PLATED\nT1C0.300\n%\nT1\nX10.0Y10.0\nM30\n")
+    assert only_plated.plated is True and only_plated.hole_plated is None
+    only_np = read("M48\nMETRIC\n;TYPE=NON_PLATED\nT1C3.2\n%\nT1\nX1.0Y1.0\nM30\n")
+    assert only_np.plated is False
+    # an X2 file function says more than the comment
+    x2 = read("M48\n; #@! TF.FileFunction,Plated,1,2,PTH\nMETRIC\n;TYPE=NON_PLATED\nT1C0.3\n%\nT1\nX1.0Y1.0\nM30\n")
+    assert x2.plated is True and x2.hole_plated is None

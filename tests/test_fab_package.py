@@ -113,3 +113,17 @@ def test_bad_layer_overrides_are_usage_errors(text):
 def test_is_package():
     assert not is_package(["board.json"])
     assert is_package(["fab.zip"]) and is_package(["a.gbr", "b.gbr"]) and is_package(["top.gbr"])
+
+
+def test_netlist_sniff_takes_long_headers_and_digit_net_names_but_not_csv(tmp_path):
+    # IPC-D-356A records are fixed-column lines (operation code in columns
+    # 1-3, net name from column 4, so "3173V3" is net 3V3); a comma-separated
+    # list of numbers is not one, and a net called LED_G04 must not make the
+    # file look like a Gerber file (G04 is a Gerber comment code)
+    header = b"".join(b"C  note %04d\n" % k for k in range(7000))  # 84 kB: past the 64 KiB sniff window
+    body = b"P  UNITS CUST 1\n3173V3     VIA   -     D0300PA00X 001000Y 001000\n" \
+           b"317LED_G04  VIA   -     D0300PA00X 002000Y 001000\n999\n"
+    folder = package(tmp_path, {"a.net": header + body, "pnp.csv": b"100,20.5,30.1\n317,1,2\n999,0,0\n"})
+    found = collect([str(folder)])
+    assert [m.name.rsplit("/", 1)[-1] for m in found.netlists] == ["a.net"]
+    assert any("pnp.csv" in s for s in found.skipped)

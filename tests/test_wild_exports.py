@@ -215,3 +215,44 @@ def test_headerless_mounting_hole_file_is_read_non_plated_by_its_name(ten):
     assert len(ten.vias.x) == 15
     assert any("non-plated by its name" in n for n in ten.notes)
     assert not any("NPTH.drl" in n and "not read" in n for n in ten.notes)
+
+
+def test_one_drill_file_with_plated_and_non_plated_tools(tmp_path):
+    # a merged drill file: ;TYPE=PLATED before the via tool, ;TYPE=NON_PLATED
+    # before the mounting-hole tool. Reference: the board's JSON file (15 vias
+    # and their nets); the four mounting holes must join nothing.
+    board = load_board(TEN_JSON)
+    folder = tmp_path / "merged"
+    shutil.copytree(TEN, folder)
+    (folder / "ten-layer-wild.drl").unlink()
+    (folder / "ten-layer-wild-NPTH.drl").unlink()
+    hits = "\n".join(f"X{x:.4f}Y{y:.4f}" for x, y in zip(board.vias.x, board.vias.y))
+    mounting = "\n".join(f"X{x:.4f}Y{y:.4f}" for x, y in ((4, 4), (56, 4), (56, 36), (4, 36)))
+    (folder / "merged.drl").write_text(f"M48\nMETRIC\n;TYPE=PLATED\nT1C0.300\n;TYPE=NON_PLATED\nT2C3.200\n%\n"
+                                       f"T1\n{hits}\nT2\n{mounting}\nM30\n")
+    merged = load_package([str(folder)], stackup=str(TEN_STACKUP))
+    assert len(merged.vias.x) == 15
+    assert sorted(merged.nets[n].name for n in merged.vias.net) == sorted(board.nets[n].name for n in board.vias.net)
+    assert any("15 plated and 4 non-plated hole(s)" in n for n in merged.notes)
+
+
+def test_outline_snap_joins_loose_ends_only_and_keeps_short_arc_steps():
+    # A 50 x 30 mm outline with 1 mm corner radii drawn in ~4 um steps (as an
+    # exporter may chord arcs), every segment's start 7 nm off the previous end.
+    # Hand calculation: area = 50 * 30 - (4 - pi) * 1^2 = 1499.1416 mm^2 for the
+    # true shape; the chords lose only ~1e-8 mm^2. Chaining the 4 um steps
+    # together would collapse the corners (the bug this guards against).
+    import math
+    from checker.readers.fab.assemble import OUTLINE_SNAP_MM, _snap_points
+    pts = []
+    for cx, cy, a0 in ((49, 1, -math.pi / 2), (49, 29, 0.0), (1, 29, math.pi / 2), (1, 1, math.pi)):
+        for t in np.linspace(a0, a0 + math.pi / 2, 393):  # steps of 4.0 um on r = 1 mm
+            pts.append((cx + math.cos(t), cy + math.sin(t)))
+    pts.append(pts[0])
+    p = np.array(pts)
+    n = len(p) - 1
+    xy = np.concatenate([p[:-1] + 7e-6, p[1:]])  # starts shifted: nothing meets exactly
+    snapped, moved = _snap_points(xy, OUTLINE_SNAP_MM)
+    faces = shapely.get_parts(shapely.polygonize(list(shapely.linestrings(np.stack([snapped[:n], snapped[n:]], 1)))))
+    assert moved == n
+    assert max(f.area for f in faces) == pytest.approx(50 * 30 - (4 - math.pi), abs=1e-3)

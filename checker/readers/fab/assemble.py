@@ -317,17 +317,34 @@ def _outline(profile: Member | None, notes: list[str]) -> shapely.Polygon | None
 
 
 def _snap_points(xy: np.ndarray, tolerance: float) -> tuple[np.ndarray, int]:
-    """Points within ``tolerance`` of each other (transitively) moved to
-    their group's first point; returns the points and how many moved."""
-    pairs = cKDTree(xy).query_pairs(tolerance, output_type="ndarray")
-    if not len(pairs):
+    """Join the outline's loose ends: ``xy`` holds the segments' start
+    points then their end points; an end no other end shares exactly is
+    loose, and two loose ends of different segments that are each other's
+    nearest, within ``tolerance``, are joined (the second moved onto the
+    first). Ends are never chained, so a run of very short segments (an
+    arc drawn in steps of a few um) keeps its shape. Returns the points and
+    how many moved."""
+    n = len(xy) // 2
+    _, inverse, counts = np.unique(xy, axis=0, return_inverse=True, return_counts=True)
+    loose = np.flatnonzero(counts[inverse.ravel()] == 1)
+    if len(loose) < 2:
         return xy, 0
-    graph = coo_matrix((np.ones(len(pairs), dtype=np.int8), (pairs[:, 0], pairs[:, 1])), shape=(len(xy), len(xy)))
-    _, label = connected_components(graph, directed=False)
-    first = np.full(label.max() + 1, len(xy))
-    np.minimum.at(first, label, np.arange(len(xy)))
-    out = xy[first[label]]
-    moved = int(np.count_nonzero(np.any(out != xy, axis=1)))
+    k = min(3, len(loose))
+    dist, near = cKDTree(xy[loose]).query(xy[loose], k=k, distance_upper_bound=tolerance)
+    partner = np.full(len(loose), -1)
+    for row in range(len(loose)):
+        for d, j in zip(dist[row, 1:].tolist(), near[row, 1:].tolist()):
+            if math.isinf(d):
+                break
+            if loose[j] % n != loose[row] % n:  # not the other end of the same segment
+                partner[row] = j
+                break
+    out = xy.copy()
+    moved = 0
+    for row, j in enumerate(partner.tolist()):
+        if j > row and partner[j] == row:  # each other's nearest: one join per pair
+            out[loose[j]] = xy[loose[row]]
+            moved += 1
     return out, moved
 
 
@@ -438,14 +455,15 @@ class _Builder:
                     raise FabError(f.path, None, f"TF.FileFunction spans layers {a} to {b}, but the stackup has "
                                                  f"copper layers {self.numbers[0]}..{self.numbers[-1]}")
                 first, last = pos[a], pos[b]
-            k = len(f.x)
-            cols["x"].append(f.x)
-            cols["y"].append(f.y)
-            cols["d"].append(f.diameter)
+            keep = np.ones(len(f.x), dtype=bool) if f.hole_plated is None else np.asarray(f.hole_plated, dtype=bool)
+            k = int(keep.sum())
+            cols["x"].append(f.x[keep])
+            cols["y"].append(f.y[keep])
+            cols["d"].append(f.diameter[keep])
             cols["first"].append(np.full(k, first))
             cols["last"].append(np.full(k, last))
-            cols["function"] += list(f.function)
-            cols["where"] += [f"{f.path}: line {int(line)}" for line in f.line]
+            cols["function"] += [fn for fn, kept in zip(f.function, keep.tolist()) if kept]
+            cols["where"] += [f"{f.path}: line {int(line)}" for line in f.line[keep]]
         if through:
             self.notes.append(f"drill file(s) without TF.FileFunction span ({', '.join(through)}): holes taken as "
                               "plated through the whole board")
@@ -714,8 +732,8 @@ class _Builder:
                 s = layer.shapes[k]
                 x0, y0, x1, y1 = s.polygon.bounds
                 pad_size[h] = max(pad_size[h], min(x1 - x0, y1 - y0))
-                if is_via[h] and s.function in (None, "ViaPad"):
-                    used.add((i, k))
+                if is_via[h] and s.function in (None, "ViaPad") and _is_round(s.polygon):
+                    used.add((i, k))  # the via's round pad stands for it; any other shape stays copper
         d = holes["d"][keep]
         vias = Vias(holes["x"][keep].astype(np.float64), holes["y"][keep].astype(np.float64), d.astype(np.float64),
                     np.maximum(pad_size[keep], d).astype(np.float64), holes["first"][keep].astype(np.int32),
@@ -755,6 +773,16 @@ class _Builder:
 
 #: Net label meaning "not known yet" in the builder's global-index arrays.
 _UNKNOWN = -2
+
+
+def _is_round(polygon) -> bool:
+    """Whether a pad is a disc (its area at least 97 % of the inscribed
+    circle's of its square bounding box): only then may a via's round pad
+    of the same diameter stand for it without losing copper."""
+    x0, y0, x1, y1 = polygon.bounds
+    w, h = x1 - x0, y1 - y0
+    return abs(w - h) <= 0.01 * max(w, h) and polygon.area >= 0.97 * math.pi / 4 * w * h and \
+        polygon.area <= 1.01 * math.pi / 4 * w * h
 
 
 def _keys(x: np.ndarray, y: np.ndarray) -> np.ndarray:

@@ -124,9 +124,12 @@ plausibility limits used to infer what a file does not say (a board within
     smaller (metric on a tie), as it errs toward holes being placed; if
     neither, the file is refused.
 
-* **Plating comment** ``;TYPE=PLATED`` / ``;TYPE=NON_PLATED`` (written by
-  some exporters) sets ``DrillFile.plated`` where no ``TF.FileFunction``
-  says it.
+* **Plating comments** ``;TYPE=PLATED`` / ``;TYPE=NON_PLATED`` (written by
+  some exporters, also both in one file, each before its tools) set the
+  plating of the tools defined after them where no ``TF.FileFunction``
+  says it: ``DrillFile.plated`` when all holes agree, else
+  ``DrillFile.hole_plated`` per hole (a tool before any such comment is
+  plated).
 
 * **Attributes** (comments ``; #@! ...``): ``TF.FileFunction,Plated,1,4,PTH``
   or ``NonPlated,...`` sets ``DrillFile.plated`` and ``span``;
@@ -638,6 +641,11 @@ class _Parser:
         self.last_hit: tuple[float, float] | None = None
         self.holes: list[tuple[float, float, float, str, int]] = []
         self.slots: list[tuple[float, float, float, float, float, int]] = []
+        # ;TYPE=PLATED / ;TYPE=NON_PLATED comments: in force for the tools defined after them
+        self.type_plated: bool | None = None
+        self.type_seen = False
+        self.tool_plated: dict[int, bool | None] = {}
+        self.hole_tool: list[int | None] = []
         # first pass: what could not be read yet
         self.stats: dict[str | None, _Stats] = {}
         self.unknown_diameters: list[float] = []
@@ -841,6 +849,7 @@ class _Parser:
                 self.fail(f"tool T{number} is defined twice with different diameters "
                           f"({known[0]:g} mm and {diameter:g} mm)")
             self.tools[number] = (diameter, self.function)
+            self.tool_plated[number] = self.type_plated
         elif not select:
             self.fail(f"tool definition {_show(text)} without a diameter (C)")
         if select:
@@ -859,8 +868,9 @@ class _Parser:
         m = _ATTRIBUTE.fullmatch(text)
         if not m:
             plating = _TYPE_COMMENT.fullmatch(text)
-            if plating and self.span is None:  # an X2 file function, if any, says more
-                self.plated = plating.group(1).upper().replace("-", "_") == "PLATED"
+            if plating:  # applies to the tools defined after it (a file may hold both kinds)
+                self.type_plated = plating.group(1).upper() == "PLATED"
+                self.type_seen = True
             return
         body = m.group(1).strip()
         name, _, rest = body.partition(",")
@@ -981,6 +991,7 @@ class _Parser:
         diameter, function = self._diameter("a hit")
         self.x, self.y = self._point(m.group(1), m.group(2), (self.x, self.y))
         self.holes.append((self.x, self.y, diameter, function, self.line))
+        self.hole_tool.append(self.tool)
         self.last_hit = (self.x, self.y)
 
     def _g85(self, text: str) -> None:
@@ -1015,6 +1026,7 @@ class _Parser:
             if max(abs(x), abs(y)) > MAX_COORDINATE_MM:
                 self.fail("the repeated hits reach more than 10 m from the origin")
             self.holes.append((x, y, diameter, function, self.line))
+            self.hole_tool.append(self.tool)
         self.x, self.y = x, y
         self.last_hit = (x, y)
 
@@ -1056,9 +1068,22 @@ class _Parser:
         def col(rows: list, k: int) -> np.ndarray:
             return np.array([r[k] for r in rows], dtype=np.float64)
 
+        plated, hole_plated = self.plated, None
+        if self.type_seen and self.span is None:  # an X2 file function, if any, says more
+            kinds = [self.tool_plated.get(t) for t in self.hole_tool]
+            kinds = [True if k is None else k for k in kinds]  # a tool before any ;TYPE: plated (the default)
+            if kinds and all(kinds):
+                plated = True
+            elif kinds and not any(kinds):
+                plated = False
+            elif kinds:
+                hole_plated = np.array(kinds, dtype=bool)
+                self.note(f"{int(hole_plated.sum())} plated and {int((~hole_plated).sum())} non-plated hole(s), by "
+                          "the ;TYPE= comments before their tools")
         return DrillFile(
             path=self.name,
-            plated=self.plated,
+            plated=plated,
+            hole_plated=hole_plated,
             span=self.span,
             x=col(h, 0),
             y=col(h, 1),

@@ -42,8 +42,10 @@ regions (``G36``), clear-polarity objects and the image polarity:
   copper plane;
 * draws and no flash or region: a drawing (legend, outline, fabrication
   notes) — not copper;
-* flashes (and regions) with almost no draws (under 5 % of the objects):
-  mask or paste openings — not copper;
+* pours (regions) with clear-polarity cut-outs (``%LPC*%``): copper;
+* flashes (and regions) with almost no draws (under 5 % of the objects;
+  the draws outlining a region do not count): mask or paste openings —
+  not copper;
 * anything else is copper, of unknown position: it can fill the one copper
   layer no name claims, never two.
 
@@ -60,13 +62,14 @@ from ...errors import FabError
 
 #: Words that mark each non-copper kind in a file name.
 _KIND_WORDS = {
-    "mask": ("mask", "soldermask", "stopmask", "stop", "solderresist", "resist"),
+    "mask": ("mask", "soldermask", "stopmask", "stop", "solderresist", "resist", "solder"),
     "silk": ("silk", "silks", "silkscreen", "legend", "overlay", "print", "assy", "assembly"),
     "paste": ("paste", "cream", "stencil", "solderpaste"),
     "profile": ("outline", "profile", "edge", "edgecuts", "edge_cuts", "boardoutline", "dimension", "contour",
                 "routing", "rout", "mill", "milling"),
     "drawing": ("drill", "drl", "drillmap", "map", "fab", "fabrication", "courtyard", "crtyd", "dwgs", "cmts",
-                "comments", "eco1", "eco2", "margin", "user", "notes", "keepout", "gerberjob"),
+                "comments", "eco1", "eco2", "margin", "user", "notes", "keepout", "gerberjob", "adhes", "adhesive",
+                "glue"),
 }
 
 #: Extensions of the trade's naming convention: extension -> (kind, side).
@@ -78,11 +81,12 @@ _EXTENSIONS = {
     "gto": ("silk", None), "gbo": ("silk", None), "plc": ("silk", None), "pls": ("silk", None),
     "gtp": ("paste", None), "gbp": ("paste", None), "crc": ("paste", None), "crs": ("paste", None),
     "gpt": ("drawing", None), "gpb": ("drawing", None),
+    "gta": ("drawing", None), "gba": ("drawing", None),  # adhesive
 }
 
 _INNER_EXT = re.compile(r"(gp|gl|ly|in|g)(\d{1,2})")
 _MECH_EXT = re.compile(r"(gm|gd|gg)(\d{1,2})")
-_INNER_WORD = re.compile(r"(?:in|inner|mid|int|inr)(\d{1,2})(?:cu)?")
+_INNER_WORD = re.compile(r"(?:in|inner|mid|int|inr|internal|midlayer|innerlayer)(\d{1,2})(?:cu)?")
 _LAYER_WORD = re.compile(r"(?:layer|lyr|copper|cu|sig|signal)(\d{1,2})")
 
 #: Profile names by preference when several files could be the outline.
@@ -110,13 +114,27 @@ class Guess:
     rank: int = 9
 
 
-def from_name(filename: str) -> Guess | None:
-    """The guess the file name supports, or ``None`` if it says nothing."""
+#: Generic Gerber extensions: the layer is said by an inner extension
+#: (``board.GTL.gbr``) or by the name's words.
+_GENERIC_EXT = ("gbr", "ger", "gerber", "pho", "art", "gb", "gbx", "274", "rs274x", "")
+
+
+def from_name(filename: str, common: str = "") -> Guess | None:
+    """The guess the file name supports, or ``None`` if it says nothing.
+    ``common``: the start all the package's Gerber file names share (the
+    board's own name), left out when the name's words are read, so a board
+    called ``mask-aligner`` does not make every file a mask."""
     base = filename.rsplit("/", 1)[-1].rsplit(":", 1)[-1]
     stem, dot, ext = base.rpartition(".")
     if not dot:
         stem, ext = base, ""
     ext = ext.lower()
+    if ext in _GENERIC_EXT and "." in stem:  # board.GTL.gbr: the inner extension speaks
+        inner = from_name(stem, common)
+        if inner is not None:
+            return inner
+    if common and stem.lower().startswith(common.lower()) and len(stem) > len(common):
+        stem = stem[len(common):]
     if ext in _EXTENSIONS:
         kind, side = _EXTENSIONS[ext]
         words = {"copper": "top copper" if side == "top" else "bottom copper"}
@@ -155,14 +173,22 @@ def _from_words(stem: str) -> Guess | None:
     if re.search(r"edge[_.]cuts$", text):
         return Guess("profile", "name ends Edge_Cuts: board outline", rank=_PROFILE_RANK["name"])
     words = [w for w in re.split(r"[^a-z0-9]+", text) if w]
-    if not words:
-        return None
-    tail = words[-3:]  # the board's own name comes first; the layer is said last
-    for kind, marks in _KIND_WORDS.items():
-        if any(w in marks or w.rstrip("s") in marks for w in tail):
-            return Guess(kind, f"name word {next(w for w in tail if w in marks or w.rstrip('s') in marks)!r}: "
-                               f"{_KIND_NAMES[kind]}", rank=_PROFILE_RANK["name"] if kind == "profile" else 9)
-    for w in reversed(tail):
+    # a number standing alone belongs to the word before it: "mid layer 1", "inner 2"
+    joined: list[str] = []
+    for w in words:
+        if w.isdigit() and joined and not joined[-1][-1].isdigit():
+            prev = joined.pop()
+            if prev in ("layer", "lyr") and joined and joined[-1] in ("mid", "inner", "int", "internal", "in"):
+                prev = joined.pop()
+            joined.append(prev + w)
+        else:
+            joined.append(w)
+    # the layer is said last; read from the end, the first word that speaks decides
+    for w in reversed(joined):
+        for kind, marks in _KIND_WORDS.items():
+            if w in marks or w.rstrip("s") in marks:
+                return Guess(kind, f"name word {w!r}: {_KIND_NAMES[kind]}",
+                             rank=_PROFILE_RANK["name"] if kind == "profile" else 9)
         m = _INNER_WORD.fullmatch(w)
         if m and int(m.group(1)) > 0:
             return Guess("copper", f"name word {w!r}: inner copper layer {int(m.group(1))}", side="inner",
@@ -171,10 +197,10 @@ def _from_words(stem: str) -> Guess | None:
         if m and int(m.group(1)) > 0:
             return Guess("copper", f"name word {w!r}: copper layer {int(m.group(1))} (1 = top)", side="layer",
                          index=int(m.group(1)))
-    if any(w in ("top", "toplayer", "topcopper", "front", "component", "comp") for w in tail):
-        return Guess("copper", "name word 'top': top copper", side="top")
-    if any(w in ("bottom", "bot", "bottomlayer", "bottomcopper", "back", "solder") for w in tail):
-        return Guess("copper", "name word 'bottom': bottom copper", side="bottom")
+        if w in ("top", "toplayer", "topcopper", "front", "component", "comp"):
+            return Guess("copper", f"name word {w!r}: top copper", side="top")
+        if w in ("bottom", "bot", "bottomlayer", "bottomcopper", "back"):
+            return Guess("copper", f"name word {w!r}: bottom copper", side="bottom")
     return None
 
 
@@ -183,18 +209,25 @@ _D03 = re.compile(rb"D0?3\*")
 _MODAL = re.compile(rb"^[XY][-+0-9][^D\r\n]*\*", re.MULTILINE)
 _G36 = re.compile(rb"G36\*")
 _NEGATIVE = re.compile(rb"%IPNEG\*%|TF\.FilePolarity,Negative")
+_REGION_BODY = re.compile(rb"G36\*.*?(?:G37\*|\Z)", re.DOTALL)
+_CLEAR = re.compile(rb"%LPC\*%")
 
 
 def from_content(head: bytes) -> Guess:
-    """The guess from counting the objects in ``head`` (a file's start)."""
+    """The guess from counting the objects in ``head`` (a file's start);
+    the draws that outline a region (between ``G36`` and ``G37``) are not
+    counted as draws."""
     if _NEGATIVE.search(head):
         return Guess("copper", "content: a negative image (copper plane)", role="plane")
-    draws = len(_D01.findall(head)) + len(_MODAL.findall(head))
-    flashes = len(_D03.findall(head))
-    regions = len(_G36.findall(head))
+    outside = _REGION_BODY.sub(b"G36*", head)
+    draws = len(_D01.findall(outside)) + len(_MODAL.findall(outside))
+    flashes = len(_D03.findall(outside))
+    regions = len(_G36.findall(outside))
     counts = f"{draws} draws, {flashes} flashes, {regions} regions in the first {len(head) >> 10} KiB"
     if draws == 0 and flashes == 0 and regions == 0:
         return Guess("unknown", f"content: no copper objects ({counts})")
+    if regions and _CLEAR.search(outside):
+        return Guess("copper", f"content: pours with clear-polarity cut-outs ({counts}): copper")
     if flashes == 0 and regions == 0:
         return Guess("drawing", f"content: draws only ({counts}): a legend or drawing, not copper")
     if draws < 0.05 * (draws + flashes + regions):
@@ -237,7 +270,8 @@ def number_copper(guesses: list[tuple[str, Guess]], taken: dict[int, str], count
             fail(f"{len(group)} files look like {side} copper")
         if group:
             if number not in free:
-                fail(f"{group[0][0]} looks like {side} copper, but layer L{number} is already {taken[number]}")
+                holder = taken.get(number) or out.get(number, ("another file",))[0]
+                fail(f"{group[0][0]} looks like {side} copper, but layer L{number} is already {holder}")
             out[number] = group[0]
             free.remove(number)
     inner_free = [n for n in free if 1 < n < count]

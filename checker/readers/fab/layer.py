@@ -123,6 +123,9 @@ class DrillFile:
     slot_line: np.ndarray
     #: what the reader assumed or inferred (format, units, zeros, tool sizes), one sentence each
     notes: list[str] = field(default_factory=list)
+    #: per hole, where the file's plating differs between its tools (``;TYPE=`` comments);
+    #: ``None`` when ``plated`` says it for the whole file
+    hole_plated: np.ndarray | None = None
 
 
 @dataclass(frozen=True)

@@ -115,6 +115,7 @@ def collect(paths: list[str], layer_overrides: dict[str, str] | None = None) -> 
     skipped: list[str] = []
     guessed: list[tuple[Member, Guess]] = []
     read_as: list[tuple[str, str, str]] = []
+    common = _common_stem([m.name for m in members])
     for m in members:
         override = _override_for(m, overrides, used)
         if override == "ignore":
@@ -144,7 +145,7 @@ def collect(paths: list[str], layer_overrides: dict[str, str] | None = None) -> 
                 skipped.append(f"{m.name} ({_gerber_function_words(head)})")
                 read_as.append((m.name, "not read", how))
             else:
-                guess = from_name(m.name) or from_content(head)
+                guess = from_name(m.name, common) or from_content(head)
                 if guess.kind == "copper":
                     guessed.append((m, guess))
                 elif guess.kind == "profile":
@@ -154,6 +155,7 @@ def collect(paths: list[str], layer_overrides: dict[str, str] | None = None) -> 
                     read_as.append((m.name, "not read", guess.why))
         else:
             skipped.append(f"{m.name} (not a Gerber, Excellon, IPC-D-356, IPC-2581 or Gerber job file)")
+            read_as.append((m.name, "not read", "content: no format couplint reads"))
     profiles.sort(key=lambda t: (t[0], t[1].name))
     for k, (_, m, why) in enumerate(profiles):
         if profile is None and k == 0:
@@ -166,6 +168,18 @@ def collect(paths: list[str], layer_overrides: dict[str, str] | None = None) -> 
     if unknown:
         raise UsageError(f"--layer {unknown[0]}=...: no file of that name in the package")
     return Sorted(name, where, copper, profile, drills, jobs, netlists, skipped, ipc2581, guessed, read_as)
+
+
+def _common_stem(names: list[str]) -> str:
+    """The start every file name shares, cut after its last separator
+    (``-``, ``_``, ``.``, blank): the board's name in ``ctl-board-top.gbr``,
+    ``ctl-board-bottom.gbr`` ...; ``""`` for fewer than two files."""
+    bases = [_stem(Path(n.rsplit(":", 1)[-1]).name) + "." for n in names]  # a whole stem ends at a separator
+    if len(bases) < 2:
+        return ""
+    prefix = os.path.commonprefix([re.sub(r"[-_. ]", "-", b.lower()) for b in bases])
+    cut = prefix.rfind("-")
+    return bases[0][:cut + 1] if cut >= 0 else ""
 
 
 _KIND_WORDS = {"job": "a Gerber job file", "drill": "an Excellon drill file", "netlist": "an IPC-D-356 netlist",
@@ -299,18 +313,19 @@ def _kind(head: bytes, stem: str, member: Member | None = None) -> str | None:
     body = [ln for ln in lines if ln and not ln.startswith(b";")]
     if body and body[0].startswith(b"M48"):
         return "drill"
+    if _looks_like_ipc356(text, member):  # first: a net named LED_G04 must not make it Gerber
+        return "netlist"
     if _GERBER_START.search(text[:4096]):
         return "gerber"
-    if _looks_like_ipc356(text, member):
-        return "netlist"
     if looks_like_drill(head):  # a drill program without its M48 header
         return "drill"
     return None
 
 
 #: An IPC-D-356 record: ``C`` comment, ``P`` parameter (column 1, then a
-#: blank or the line's end) or a three-digit operation code.
-_IPC356_LINE = re.compile(rb"(?:[CP](?:\s|$)|[0-9]{3})")
+#: blank or the line's end) or a three-digit operation code on a line
+#: without field separators (a CSV list's numbers are not records).
+_IPC356_LINE = re.compile(rb"(?:[CP](?:\s|$)|[0-9]{3}(?!.*[,;\t]))")  # fixed columns: no separators
 _IPC356_TEST = re.compile(rb"(?:^|\n)(?:317|327|999)")
 
 
