@@ -656,3 +656,13 @@ def test_type_comments_set_the_plating_of_the_tools_after_them():
     # an X2 file function says more than the comment
     x2 = read("M48\n; #@! TF.FileFunction,Plated,1,2,PTH\nMETRIC\n;TYPE=NON_PLATED\nT1C0.3\n%\nT1\nX1.0Y1.0\nM30\n")
     assert x2.plated is True and x2.hole_plated is None
+
+
+def test_a_comment_digit_format_meant_for_an_overridden_unit_is_not_used() -> None:
+    # ;FORMAT={2:4/ ... / inch ...} then METRIC,TZ: the 2.4 was meant for inch;
+    # the metric coordinates are read by the metric default 3.3 (module
+    # docstring; common practice), X1500 -> 1.500 mm (hand), not 0.15 mm (2.4).
+    d = read("; FORMAT={2:4/ absolute / inch / suppress trailing zeros}\nM48\nMETRIC,TZ\nT1C0.3\n%\nT1\nX1500Y2500\n"
+             "M30\n")
+    np.testing.assert_allclose([d.x[0], d.y[0]], [1.5, 2.5], rtol=1e-12)
+    assert any("is not used either" in n for n in d.notes)

@@ -679,13 +679,17 @@ class _Parser:
         if c is not None:
             self.notes.extend(c.notes)
             took = []
-            if c.digits is not None and not pre.command_digits:
+            overridden = c.unit is not None and stated is not None and stated[0] != c.unit
+            if c.digits is not None and not pre.command_digits and not overridden:
                 took.append(f"digit format {c.digits[0]}.{c.digits[1]}")
             if c.unit is not None:
-                if stated is not None and stated[0] != c.unit:
+                if overridden:
                     self.note(f"line {c.line}: the format comment's unit ({_unit_name(c.unit)}) is overridden by the "
-                              f"unit command on line {stated[1]} ({_unit_name(stated[0])}): commands win over comments")
+                              f"unit command on line {stated[1]} ({_unit_name(stated[0])}): commands win over comments"
+                              + (", and the comment's digit format, meant for its own unit, is not used either"
+                                 if c.digits is not None else ""))
                     self.comment_unit = None
+                    self.comment_digits = None
                 elif stated is None:
                     took.append(f"unit {_unit_name(c.unit)}")
             if c.zeros is not None and not pre.command_zeros:
