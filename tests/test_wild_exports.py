@@ -256,3 +256,23 @@ def test_outline_snap_joins_loose_ends_only_and_keeps_short_arc_steps():
     faces = shapely.get_parts(shapely.polygonize(list(shapely.linestrings(np.stack([snapped[:n], snapped[n:]], 1)))))
     assert moved == n
     assert max(f.area for f in faces) == pytest.approx(50 * 30 - (4 - math.pi), abs=1e-3)
+
+
+def test_an_inferred_drill_format_is_checked_against_the_pads(tmp_path):
+    # Eight-digit metric coordinates with no format stated anywhere: 3.5 and
+    # 4.4 both give a plausible board. The holes were written in 4.4
+    # (X00100013 = 10.0013 mm, hand); read as 3.5 they would land nowhere.
+    # Reference: the board's JSON file (via positions and nets).
+    board = load_board(TEN_JSON)
+    folder = tmp_path / "silent"
+    shutil.copytree(TEN, folder)
+    (folder / "ten-layer-wild.drl").unlink()
+    hits = "\n".join(f"X{round(x * 1e4):08d}Y{round(y * 1e4):08d}" for x, y in zip(board.vias.x, board.vias.y))
+    (folder / "ten-layer-wild.drl").write_text(f"M48\nMETRIC\nT1C0.300\n%\nT1\n{hits}\nM30\n")
+    read = load_package([str(folder)], stackup=str(TEN_STACKUP))
+    mine = sorted((round(x, 4), round(y, 4), read.nets[n].name) for x, y, n in zip(read.vias.x, read.vias.y, read.vias.net))
+    theirs = sorted((round(x, 4), round(y, 4), board.nets[n].name)
+                    for x, y, n in zip(board.vias.x, board.vias.y, board.vias.net))
+    assert mine == theirs
+    assert any("read as 4.4 instead of the inferred format: 15 of 15 holes then land on pads, 0 before" in n
+               for n in read.notes)

@@ -95,6 +95,7 @@ def load_package(paths: list[str], stackup: str | None = None, netlist: str | No
     nets_file = _netlist_of(found, netlist, notes)
     outline = _outline(found.profile, notes)
     gerbers = {n: _read(member, read_gerber) for n, (member, _) in copper.items()}
+    drills = [_fit_to_pads(d, gerbers, notes) for d in drills]
     given = {n: role for n, (_, role) in copper.items()}
     files = {n: member.name for n, (member, _) in copper.items()}
     notes += [f"not read: {s}" for s in found.skipped]
@@ -250,6 +251,37 @@ def _with_roles(job: JobStackup, given_roles: dict[int, str | None], file_names:
         layers = [dataclasses.replace(layer, name=f"L{n}") for layer, n in zip(layers, job.copper_numbers)]
         notes.append("the stackup's copper layer names are missing or repeated: layers are named L1, L2, ...")
     return dataclasses.replace(job.stackup, layers=tuple(layers))
+
+
+def _fit_to_pads(drill: DrillFile, gerbers: dict[int, GerberLayer], notes: list[str]) -> DrillFile:
+    """A drill file whose digit format was inferred, with other plausible
+    readings (``DrillFile.other_readings``), is read the way that puts the
+    most holes on a pad (a flash within :data:`PAD_AT_HOLE_MM`); the
+    inferred reading stays unless another lands more, with a note."""
+    if not drill.other_readings or not len(drill.x):
+        return drill
+    at = [s.at for g in gerbers.values() for s in g.shapes if s.kind == "pad" and s.at is not None]
+    if not at:
+        return drill
+    tree = cKDTree(np.asarray(at, dtype=np.float64))
+
+    def landed(factor: float) -> int:
+        dist, _ = tree.query(np.column_stack((drill.x, drill.y)) * factor, distance_upper_bound=PAD_AT_HOLE_MM)
+        return int(np.count_nonzero(np.isfinite(dist)))
+
+    best, best_n = (1.0, "the inferred format"), landed(1.0)
+    for factor, words in drill.other_readings:
+        n = landed(factor)
+        if n > best_n:
+            best, best_n = (factor, words), n
+    if best[0] == 1.0:
+        return drill
+    notes.append(f"{drill.path}: read as {best[1]} instead of the inferred format: {best_n} of {len(drill.x)} holes "
+                 f"then land on pads, {landed(1.0)} before")
+    f = best[0]
+    return dataclasses.replace(drill, x=drill.x * f, y=drill.y * f, slot_x1=drill.slot_x1 * f,
+                               slot_y1=drill.slot_y1 * f, slot_x2=drill.slot_x2 * f, slot_y2=drill.slot_y2 * f,
+                               other_readings=())
 
 
 _NONPLATED_NAME = re.compile(r"(?:^|[^a-z])(npth|non[-_]?plated|unplated)(?:[^a-z]|$)", re.IGNORECASE)

@@ -449,6 +449,8 @@ class _Decision:
     zeros: str | None = None
     digits: dict[str, tuple[int, int]] = field(default_factory=dict)
     notes: list[str] = field(default_factory=list)
+    #: per unit with inferred digits: the other plausible readings (factor, format)
+    others: dict[str, list[tuple[float, str]]] = field(default_factory=dict)
 
 
 def _unit_name(unit: str) -> str:
@@ -485,8 +487,22 @@ def _infer_digits(st: _Stats, unit: str, zeros: str | None) -> tuple[tuple[int, 
     if also:
         note += (f"; {also[0]}.{n - also[0]} would also give a plausible board (largest coordinate "
                  f"{mm(also[0]):.6g} mm): the smaller reading was taken, as it errs toward holes being placed "
-                 "on the board's copper rather than dropped beyond it")
+                 "on the board's copper rather than dropped beyond it (the assembly tries the other readings "
+                 "against the copper's pads)")
     return (whole, n - whole), note
+
+
+def _other_readings(st: _Stats, unit: str, zeros: str | None, whole: int) -> list[tuple[float, str]]:
+    """The other plausible digit formats of an inferred one, as (factor on
+    the coordinates, format in words): reading w integer digits instead of
+    ``whole`` multiplies every implied-decimal coordinate by 10**(w - whole)."""
+    n = st.longest
+    _, frac_d = DEFAULT_DIGITS[unit]
+    out = []
+    for w in range(1, n):
+        if w != whole and st.largest((w, n - w), zeros) * _factor(unit) <= PLAUSIBLE_BOARD_MM:
+            out.append((10.0 ** (w - whole), f"{w}.{n - w}"))
+    return out
 
 
 def _decide(p: _Parser) -> _Decision:
@@ -549,6 +565,7 @@ def _decide(p: _Parser) -> _Decision:
             if note is not None:
                 d.digits[unit] = digits
                 d.notes.append(note)
+                d.others[unit] = _other_readings(st, unit, zeros, digits[0])
     return d
 
 
@@ -1084,10 +1101,13 @@ class _Parser:
                 hole_plated = np.array(kinds, dtype=bool)
                 self.note(f"{int(hole_plated.sum())} plated and {int((~hole_plated).sum())} non-plated hole(s), by "
                           "the ;TYPE= comments before their tools")
+        others = [o for unit, found in self.decided.others.items() for o in found] \
+            if len(self.decided.digits) == 1 and not (self.digits or self.comment_digits) else []
         return DrillFile(
             path=self.name,
             plated=plated,
             hole_plated=hole_plated,
+            other_readings=tuple(others),
             span=self.span,
             x=col(h, 0),
             y=col(h, 1),

@@ -126,6 +126,9 @@ class DrillFile:
     #: per hole, where the file's plating differs between its tools (``;TYPE=`` comments);
     #: ``None`` when ``plated`` says it for the whole file
     hole_plated: np.ndarray | None = None
+    #: where the digit format was inferred and other readings give a plausible
+    #: board too: (factor on every implied-decimal coordinate, format in words)
+    other_readings: tuple[tuple[float, str], ...] = ()
 
 
 @dataclass(frozen=True)
