@@ -41,6 +41,16 @@ What is written (the elements the reader reads, plus the ``Content``,
   net (JSON ``null``) gets no ``net`` attribute, as write_fab writes no
   ``TO.N`` for it.
 
+Two options write what an exporter may write instead, so the reader can be
+tested on it (the committed fixtures use neither):
+
+* ``numbered_specs``: each ``Spec`` is named ``<layer>_1`` while its
+  ``StackupLayer/SpecRef@id`` says ``SPEC_<layer>`` (a reference that
+  names no Spec exactly; a widely used open-source exporter writes its
+  Specs and references so);
+* ``generic_copper``: every copper ``Layer`` has ``layerFunction``
+  ``CONDUCTOR`` (the generic copper function), not one by role.
+
 Coordinates are the Gerber writer's: rounded to 1 nm, then written in the
 file's ``units`` (``MILLIMETER`` exactly; ``MICRON`` exactly; ``INCH`` to
 12 decimals, 2.5e-11 mm), so both writers describe the same numbers.
@@ -48,10 +58,11 @@ file's ``units`` (``MILLIMETER`` exactly; ``MICRON`` exactly; ``INCH`` to
 Usage::
 
     python scripts/write_ipc2581.py BOARD.json OUT.xml [--units MILLIMETER|INCH|MICRON]
+        [--numbered-specs] [--generic-copper]
     python scripts/write_ipc2581.py --fixtures      # regenerate fixtures/ipc2581/*.xml
 
-or from Python: ``write_ipc2581(board_or_path, out, units=...) -> Path``,
-``ipc2581_text(board, units=...) -> str``.
+or from Python: ``write_ipc2581(board_or_path, out, units=..., ...) -> Path``,
+``ipc2581_text(board, units=..., numbered_specs=..., generic_copper=...) -> str``.
 
 The file is invented test data; nothing here imitates any layout program's
 output beyond what the open standard prescribes.
@@ -107,12 +118,15 @@ STEP = "board"
 class _Writer:
     """Builds the XML tree of one board in one unit."""
 
-    def __init__(self, board: Board, units: str = "MILLIMETER", date: str = CREATION_DATE) -> None:
+    def __init__(self, board: Board, units: str = "MILLIMETER", date: str = CREATION_DATE,
+                 numbered_specs: bool = False, generic_copper: bool = False) -> None:
         if units not in UNITS_NM:
             raise FabWriteError(f"units must be one of {', '.join(UNITS_NM)}, got {units!r}")
         self.board = board
         self.units = units
         self.date = date
+        self.numbered_specs = numbered_specs
+        self.generic_copper = generic_copper
         self.layers = board.stackup.layers
         self.n = len(self.layers)
         self.strokes = strokes_of(board)
@@ -224,7 +238,7 @@ class _Writer:
 
     def specs(self, header: ET.Element) -> None:
         for name, d in self.insulators():
-            spec = ET.SubElement(header, "Spec", {"name": f"SPEC_{name}"})
+            spec = ET.SubElement(header, "Spec", {"name": f"{name}_1" if self.numbered_specs else f"SPEC_{name}"})
             er = ET.SubElement(spec, "Dielectric", {"type": "DIELECTRIC_CONSTANT"})
             ET.SubElement(er, "Property", {"value": _plain(d.er, 9)})
             if d.loss_tangent is not None:
@@ -252,7 +266,8 @@ class _Writer:
             ET.SubElement(cad, "Layer", {"name": self.names["mask_top"], "layerFunction": "SOLDERMASK",
                                          "side": "TOP", "polarity": "POSITIVE"})
         for i, c in enumerate(self.layers):
-            ET.SubElement(cad, "Layer", {"name": c.name, "layerFunction": ROLE_FUNCTIONS[c.role],
+            function = "CONDUCTOR" if self.generic_copper else ROLE_FUNCTIONS[c.role]
+            ET.SubElement(cad, "Layer", {"name": c.name, "layerFunction": function,
                                          "side": self.side(i), "polarity": "POSITIVE"})
             if i < len(st.dielectrics):
                 name = self.names[f"diel{i}"]
@@ -371,9 +386,10 @@ def line_id(width: float) -> str:
     return f"ROUND_{fmt_mm(width)}"
 
 
-def ipc2581_text(board: Board, units: str = "MILLIMETER", date: str = CREATION_DATE) -> str:
+def ipc2581_text(board: Board, units: str = "MILLIMETER", date: str = CREATION_DATE, *,
+                 numbered_specs: bool = False, generic_copper: bool = False) -> str:
     """The IPC-2581 revision C document of ``board`` (see the module docstring)."""
-    root = _Writer(board, units, date).build()
+    root = _Writer(board, units, date, numbered_specs=numbered_specs, generic_copper=generic_copper).build()
     ET.indent(root, space=" ")
     return '<?xml version="1.0" encoding="UTF-8"?>\n' + ET.tostring(root, encoding="unicode") + "\n"
 
@@ -381,7 +397,8 @@ def ipc2581_text(board: Board, units: str = "MILLIMETER", date: str = CREATION_D
 def write_ipc2581(board_or_path: Board | str | os.PathLike[str], out: str | os.PathLike[str],
                   **options: Any) -> Path:
     """Write the IPC-2581 file of a board to ``out`` (its folder created if
-    missing); ``options``: ``units``, ``date``."""
+    missing); ``options``: ``units``, ``date``, ``numbered_specs``,
+    ``generic_copper``."""
     board = board_or_path if isinstance(board_or_path, Board) else load_board(board_or_path)
     path = Path(out)
     path.parent.mkdir(parents=True, exist_ok=True)
@@ -403,6 +420,9 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("board", nargs="?", help="board file (neutral JSON)")
     parser.add_argument("out", nargs="?", help="the IPC-2581 file to write")
     parser.add_argument("--units", choices=sorted(UNITS_NM), default="MILLIMETER", help="the file's units")
+    parser.add_argument("--numbered-specs", action="store_true",
+                        help="name each Spec <layer>_1 and refer to it as SPEC_<layer>")
+    parser.add_argument("--generic-copper", action="store_true", help="layerFunction CONDUCTOR for every copper layer")
     parser.add_argument("--fixtures", action="store_true", help="regenerate fixtures/ipc2581 instead")
     args = parser.parse_args(argv)
     if args.fixtures:
@@ -414,7 +434,8 @@ def main(argv: list[str] | None = None) -> int:
     if not args.board or not args.out:
         parser.error("give BOARD.json and OUT.xml (or --fixtures)")
     try:
-        print(write_ipc2581(args.board, args.out, units=args.units))
+        print(write_ipc2581(args.board, args.out, units=args.units, numbered_specs=args.numbered_specs,
+                            generic_copper=args.generic_copper))
     except FabWriteError as exc:
         print(f"{args.board}: {exc}", file=sys.stderr)
         return 2

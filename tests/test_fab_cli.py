@@ -153,3 +153,15 @@ def test_ipc2581_file_checks_like_the_gerber_package(capsys, tmp_path):
     assert run(capsys, "check", renamed, "--format", "json")[0] == 1
     code, _, err = run(capsys, "check", renamed, "--stackup", ROOT / "fixtures" / "fab" / "wild-ten-layer-stackup.yaml")
     assert code == 2 and "IPC-2581" in err and "--stackup" in err
+
+
+@pytest.mark.parametrize(("content", "words"), [
+    (b"", "the file is empty"), (b"  \n", "only white space"), (b"<svg/>", "the root element is <svg>"),
+    (b"hello", "not XML"),
+])
+def test_a_lone_xml_file_that_is_no_ipc2581_says_so_naming_itself(capsys, tmp_path, content, words):
+    path = tmp_path / "board.xml"
+    path.write_bytes(content)
+    code, _, err = run(capsys, "check", path)
+    assert code == 2 and str(path) in err and words in err and "Traceback" not in err
+    assert "Gerber job file" not in err

@@ -5,7 +5,10 @@ binary stream; both return the same :class:`checker.model.Board` the
 fabrication-package door builds, or raise one
 :class:`~checker.errors.FabError` naming the file and the place (the XML
 element path, with the line where the parser gives it). ``is_ipc2581(head)``
-recognises the format from a file's first bytes.
+recognises the format from a file's first bytes; ``looks_like_xml(head)``
+any XML document. A file that is XML but not IPC-2581 can be handed to
+this door, which names its root; so can a ``.xml`` file that is empty,
+white space, binary or other text, which this door names as such.
 
 Format: IPC-2581 revision B/C, "Generic Requirements for Printed Board
 Assembly Products Manufacturing Description Data and Transfer
@@ -39,9 +42,11 @@ What is read
   ``Property@value`` (from memory).
 * ``CadData/Layer``: ``name``, ``layerFunction``, ``polarity`` and, for a
   drill layer, a ``Span`` child (``fromLayer``, ``toLayer``).
-  Functions: ``SIGNAL`` and ``CONDUCTOR`` are copper of role *signal*,
-  ``PLANE`` *plane*, ``MIXED`` *mixed*; ``CONDFOIL`` / ``CONDFILM`` copper
-  of no stated role (taken as mixed, with a note); ``DIEL*`` (``DIELCORE``,
+  Functions: ``SIGNAL`` is copper of role *signal*, ``PLANE`` *plane*,
+  ``MIXED`` *mixed*; ``CONDUCTOR`` (the generic copper function, which an
+  exporter writes for every copper layer, planes included), ``CONDFOIL`` and
+  ``CONDFILM`` copper of no stated role (taken as mixed, with a note; the
+  analysis finds planes from the copper itself); ``DIEL*`` (``DIELCORE``,
   ``DIELPREG``, ...) dielectrics; ``SOLDERMASK`` a mask; ``DRILL`` a drill
   layer. A layer of ``polarity="NEGATIVE"`` is a negative image (a plane:
   the outline minus what it draws), as a negative Gerber file.
@@ -49,7 +54,12 @@ What is read
   or in ``StackupGroup``), in ``sequence`` order where every one has it,
   else in file order, top to bottom: ``layerOrGroupRef`` (a Layer),
   ``thickness``, and a ``SpecRef@id`` naming the Spec with εr and loss
-  tangent. The model stackup is built as from a Gerber job file
+  tangent. A ``SpecRef`` that names no Spec is not refused: an id
+  ``SPEC_X`` is read as the one Spec named ``X`` or ``X_<digits>`` (how a
+  widely used open-source exporter names its Specs and refers to them),
+  with a note; failing that the layer gets the defaults below, with a note.
+  A StackupLayer thinner than :data:`MIN_THICKNESS_MM` (1 um) is refused,
+  naming it: no board is built of such a layer. The model stackup is built as from a Gerber job file
   (:mod:`checker.readers.fab.jobfile`): copper layers in order; the
   dielectrics between two copper layers joined by the series rule
   (T = Σtᵢ, εeff = T / Σ(tᵢ/εᵢ), the loss tangent likewise from the complex
@@ -68,16 +78,22 @@ What is read
   ``LayerFeature@layerRef`` holds ``Set`` elements whose ``net`` attribute
   names the net of everything in them (a Set without ``net`` is copper of
   unknown net, found by connectivity, as copper without ``TO.N``; ``net=""``
-  is on no net). In a Set:
+  is on no net). A ``Set`` nested in a ``Set`` is read the same way, with
+  its own ``net`` and ``padUsage`` where it gives them, else its parent's.
+  Only copper and drill layers are read: a LayerFeature of a layer no
+  ``Layer`` defines (an exporter writes tenting, plugging and filling
+  layers so) or of another function is skipped with a note. In a Set:
 
   - ``Features`` (an optional ``Xform`` and ``Location`` placing its
     content, then features): ``Line`` (``startX`` ...), ``Arc`` (start, end,
     ``centerX``/``centerY``, ``clockwise``; start = end is a full circle),
     ``Polyline`` (``PolyBegin``, ``PolyStepSegment``, ``PolyStepCurve``),
     each with a ``LineDesc`` or ``LineDescRef`` (``lineWidth``, ``lineEnd``
-    ``ROUND`` / ``SQUARE`` / ``NONE``; ``ROUND`` where not given);
-    ``Contour`` (``Polygon`` and ``Cutout`` holes), ``Outline`` (a filled
-    ``Polygon`` grown by half its ``LineDesc`` width; from memory),
+    ``ROUND`` / ``SQUARE`` / ``NONE``; ``ROUND`` where not given; a
+    ``lineProperty`` of dashed or dotted lines is read as solid, with a
+    note: more copper, so more coupling, never less);
+    ``Contour`` (``Polygon`` and ``Cutout`` holes), ``Outline`` (a
+    ``Polygon`` drawn with its ``LineDesc``; from memory),
     ``UserSpecial`` (its children, read the same way), a standard primitive
     inline or by ``StandardPrimitiveRef`` and a user primitive by
     ``UserPrimitiveRef``. Round-ended lines, arcs and polylines of a width
@@ -85,6 +101,25 @@ What is read
     :func:`checker.readers.arcs.arc_polyline` exactly as the Gerber door
     chords G02/G03 (start radius, the last point put on the end point), so
     both doors give the same pieces; every other feature is a region.
+    Lines of width :data:`MIN_FEATURE_MM` (1 nm) or less are skipped with
+    a note; a trace narrower than :data:`MIN_TRACE_MM` (1 um) is read that
+    wide, with a note (the analysis' width resolution; more copper).
+  - Fill and outline of closed shapes (a Contour, an Outline, a standard
+    primitive): a ``FillDesc`` or ``FillDescRef``
+    (``DictionaryFillDesc/EntryFillDesc``) child of the shape or of its
+    ``Polygon``, and a ``LineDesc``/``LineDescRef`` there. ``fillProperty``
+    ``FILL`` or no FillDesc: the area, grown by half the line width where
+    a LineDesc is given (its outline is drawn with that line). ``HOLLOW``
+    (and ``VOID``, read as HOLLOW with a note): the outline only, stroked
+    with the line width — a ring, not an area. ``HATCH`` / ``MESH``: read
+    filled, with a note (more copper than the hatch lines). A hollow shape
+    without a line width is stroked :data:`HOLLOW_LINE_MM` (0.05 mm, the
+    thinnest plausible copper line) wide, with a note. It is not filled,
+    though a filled reading would be more copper (more C12): filling an
+    outline can cover copper of other nets inside it (a keep-out or
+    courtyard drawn on copper around a part), which would short those nets
+    and merge nets found by connectivity — a wrong board, worse than a
+    thin ring. The fill reading is from memory of the standard.
   - ``Pad``: ``Location`` (required), an optional ``Xform``, and its shape
     by ``StandardPrimitiveRef``, ``UserPrimitiveRef`` or inline. A pad of
     ``padUsage="VIA"`` is a via pad (it joins its hole's via, as a
@@ -108,17 +143,31 @@ What is read
   and ``Contour``. User primitives (``DictionaryUser/EntryUser``): a
   ``UserSpecial`` of the features above, or one such feature; lines in a
   primitive are pad copper (regions), not traces.
-* ``Xform`` (from memory): ``scale``, then ``mirror`` (x -> -x), then
-  ``rotation`` (degrees, counter-clockwise), then ``xOffset`` /
-  ``yOffset``, then the ``Location``.
+* ``Xform`` (from memory, not quoted from the standard): ``scale``, then
+  ``mirror`` (x -> -x, about the y axis), then ``rotation`` (degrees,
+  counter-clockwise), then ``xOffset`` / ``yOffset``, then the
+  ``Location``. Another reading exists — rotate first, then mirror — which
+  differs for a mirrored shape rotated by other than 0 or 180 degrees (the
+  turn goes the other way); this module mirrors first, its reading of the
+  standard from memory, to be checked against the standard's text.
+  Revision B also lets a standard primitive carry an ``Xform`` of its own
+  (e.g. a RectCenter turned 90 degrees): it is applied first, then the
+  Pad's (or Features') ``Xform``, then the ``Location``: a point p of the
+  primitive lands at Location + Xform_pad(Xform_own(p)) (the order from
+  memory). A primitive's own offsets are in its dictionary's units.
 
 Refused, each with the element path: a file over :data:`MAX_FILE_BYTES`;
-bytes that are not well-formed XML (with the line); any ``DOCTYPE`` (an
-IPC-2581 file has none; a DTD is how entity-expansion bombs and external
-entities get in, and ``defusedxml`` refuses them); a root other than
-``IPC-2581``; no ``Ecad``, ``CadHeader`` units, ``CadData``, ``Stackup`` or
-``Step``; an unknown unit; a reference to a Layer, Spec or dictionary entry
-that is not defined, or an id defined twice; a Layer name used twice;
+an empty file, one of white space only, binary content or text that does
+not start with ``<`` (each said so: "not an IPC-2581 file"); bytes that are
+not well-formed XML (with the line); any ``DOCTYPE`` (an IPC-2581 file has
+none; a DTD is how entity-expansion bombs and external entities get in; the
+expat parser is set up to refuse a DOCTYPE where it starts, and entity
+declarations and external references, as ``defusedxml`` does, with less
+work per element); a root other than ``IPC-2581`` (any other XML is named
+by its root); no ``Ecad``, ``CadHeader`` units, ``CadData``, ``Stackup`` or
+``Step``; an unknown unit; a reference to a Layer of the Stackup or a Span,
+or to a dictionary entry, that is not defined, or an id defined twice; a
+Layer name used twice; a StackupLayer thinner than 1 um;
 anything but dielectrics between two copper layers; a number that is not
 finite; a coordinate or size over 10 m (a units mistake); a size that is not
 > 0; ``Set polarity="NEGATIVE"`` (clear copper; export positive copper with
@@ -133,6 +182,9 @@ step (holes and pads are read from the layers' ``LayerFeature``), layers of
 other functions (legend, paste, mask images), unknown elements (the first
 five named). Zero-width lines are skipped with a note. The input is never
 modified.
+
+Two-point round-ended lines, the bulk of a board, are read in plain Python
+(no numpy per line: for one segment its overhead is most of the cost).
 """
 
 from __future__ import annotations
@@ -144,12 +196,11 @@ import re
 from dataclasses import dataclass, field
 from typing import BinaryIO, NoReturn
 from xml.etree.ElementTree import Element, TreeBuilder
+from xml.parsers import expat
 
 import numpy as np
 import shapely
 import shapely.affinity
-from defusedxml import DefusedXmlException
-from defusedxml.ElementTree import DefusedXMLParser, ParseError
 from shapely.geometry.polygon import orient
 
 from ..errors import FabError
@@ -200,11 +251,37 @@ ARC_DEVIATION_MM = 0.001
 #: CadHeader / dictionary ``units`` -> mm per unit.
 UNITS_MM = {"MILLIMETER": 1.0, "INCH": 25.4, "MICRON": 0.001}
 
+#: A feature (line, arc, outline stroke) this thin or thinner (mm; 1 nm)
+#: is skipped with a note: below the resolution of every export format.
+MIN_FEATURE_MM = 1e-6
+
+#: A round-ended trace narrower than this (mm; 1 um), but wider than
+#: MIN_FEATURE_MM, is widened to it with a note: the analysis tables
+#: widths to 1 um, where a narrower trace would have no width at all
+#: (more copper, not less, per the project rule).
+MIN_TRACE_MM = 1e-3
+
+#: A StackupLayer (dielectric, mask or copper) thinner than this (mm;
+#: 1 um) is refused: no board is built of it (a units mistake).
+MIN_THICKNESS_MM = 1e-3
+
+#: The line width (mm) a hollow shape without a LineDesc is stroked with:
+#: 0.05 mm (2 mil), narrower than the finest trace common fabrication
+#: processes make, so the thinnest plausible copper line (a note says so).
+HOLLOW_LINE_MM = 0.05
+
 #: ``layerFunction`` of copper layers -> the role it states (None: none).
+#: ``CONDUCTOR`` is the generic copper function (an exporter writes it for
+#: every copper layer, planes too): it states no role, as ``CONDFOIL``.
 COPPER_FUNCTIONS: dict[str, str | None] = {
-    "SIGNAL": "signal", "CONDUCTOR": "signal", "PLANE": "plane", "MIXED": "mixed",
-    "CONDFOIL": None, "CONDFILM": None,
+    "SIGNAL": "signal", "PLANE": "plane", "MIXED": "mixed",
+    "CONDUCTOR": None, "CONDFOIL": None, "CONDFILM": None,
 }
+
+#: ``fillProperty`` of a ``FillDesc`` -> read as filled (True) or as its
+#: outline only (False); from memory. ``HATCH`` and ``MESH`` (a grid of
+#: lines inside the outline) are read filled, with a note: more copper.
+FILL_PROPERTIES = {"FILL": True, "HATCH": True, "MESH": True, "HOLLOW": False, "VOID": False}
 
 #: Standard primitives this reader can draw.
 PRIMITIVES = ("Circle", "RectCenter", "RectCorner", "RectRound", "RectCham", "Oval", "Ellipse", "Diamond",
@@ -213,6 +290,9 @@ PRIMITIVES = ("Circle", "RectCenter", "RectCorner", "RectRound", "RectCham", "Ov
 #: Standard primitives of the standard this reader refuses (from memory).
 UNSUPPORTED_PRIMITIVES = ("Butterfly", "Hexagon", "Moire", "Octagon", "Thermal", "Triangle")
 
+#: Children that describe their parent (read by it, not shapes of their own).
+_DESCRIPTIONS = {"Xform", "Location", "LineDesc", "LineDescRef", "FillDesc", "FillDescRef"}
+
 #: Set children that carry nothing for copper (silently passed over).
 _QUIET = {"NonstandardAttribute", "ColorRef", "Color", "PinRef", "Fiducial", "GlobalFiducial",
           "LocalFiducial", "BadBoardMark", "GoodPanelMark", "FillDesc", "FillDescRef"}
@@ -220,22 +300,71 @@ _QUIET = {"NonstandardAttribute", "ColorRef", "Color", "PinRef", "Fiducial", "Gl
 _NUMBER = re.compile(r"\s*[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)?\s*", re.ASCII)
 _NON_FINITE = re.compile(r"\s*[+-]?(?:inf|infinity|nan)\s*", re.IGNORECASE)
 
-_SNIFF = re.compile(
-    rb"\A\s*(?:<\?xml[^>]*\?>\s*)?"
-    rb"(?:(?:<!--.*?-->|<\?.*?\?>|<!DOCTYPE[^\[>]*(?:\[.*?\])?\s*>)\s*)*"
-    rb"<(?:[A-Za-z_][\w.\-]*:)?IPC-2581[\s/>]", re.DOTALL)
+#: After the prolog, the root's start tag (any namespace prefix).
+_ROOT_TAG = re.compile(rb"<(?:[A-Za-z_][\w.\-]*:)?IPC-2581[\s/>]")
+_SPACE = re.compile(rb"[ \t\r\n]*")
+_UTF8_BOM = b"\xef\xbb\xbf"
+_UTF16_BOMS = (b"\xff\xfe", b"\xfe\xff")
+#: C0 controls but tab, line feed, form feed, carriage return; and DEL.
+_CONTROL_BYTES = bytes([*range(9), 11, *range(14, 32), 127])
 
 _IDENTITY = (1.0, 0.0, 0.0, 1.0, 0.0, 0.0)
+
+_LINE_ENDS = ("startX", "startY", "endX", "endY")
+
+#: ``{uri}Name`` -> ``Name`` (a few dozen distinct tags per file).
+_LOCAL_NAMES: dict[str, str] = {}
+
+
+def _utf8_head(head: bytes) -> bytes:
+    """``head`` without a byte-order mark, UTF-16 turned into UTF-8."""
+    if head.startswith(_UTF16_BOMS):
+        return head.decode("utf-16", errors="ignore").encode("utf-8")
+    return head.removeprefix(_UTF8_BOM)
 
 
 def is_ipc2581(head: bytes) -> bool:
     """Whether ``head`` (a file's first bytes, a few kB) starts an IPC-2581
     file: after an optional byte-order mark, XML declaration, comments,
     processing instructions and DOCTYPE, the root element is ``IPC-2581``
-    (with or without a namespace prefix)."""
-    if head.startswith((b"\xff\xfe", b"\xfe\xff")):
-        head = head.decode("utf-16", errors="ignore").encode("utf-8")
-    return _SNIFF.match(head.removeprefix(b"\xef\xbb\xbf")) is not None
+    (with or without a namespace prefix).
+
+    A plain scan, not one regular expression: each step skips one
+    ``<?...?>``, ``<!--...-->`` or ``<!DOCTYPE ...>`` by ``bytes.find`` and
+    moves forward, so the time is linear in the head's length whatever it
+    holds (a pattern with a repeated group of lazy alternatives backtracks
+    exponentially over many comments before a root that does not match)."""
+    text = _utf8_head(head)
+    i, n = 0, len(text)
+    while i < n:
+        i = _SPACE.match(text, i).end()
+        if text.startswith(b"<?", i):
+            end = text.find(b"?>", i + 2)
+            step = 2
+        elif text.startswith(b"<!--", i):
+            end = text.find(b"-->", i + 4)
+            step = 3
+        elif text.startswith(b"<!DOCTYPE", i):
+            close = text.find(b">", i)
+            subset = text.find(b"[", i, close if close >= 0 else n)
+            if subset >= 0:  # an internal subset [...] may hold '>' of its own
+                close = text.find(b"]", subset)
+                close = text.find(b">", close) if close >= 0 else -1
+            end, step = close, 1
+        else:
+            break
+        if end < 0:
+            return False
+        i = end + step
+    return _ROOT_TAG.match(text, i) is not None
+
+
+def looks_like_xml(head: bytes) -> bool:
+    """Whether ``head`` (a file's first bytes) starts, after a byte-order
+    mark and white space, with ``<``: any XML document, IPC-2581 or not.
+    A ``.xml`` file that does not can still be handed to
+    :func:`read_ipc2581`, which names what is wrong with it."""
+    return _utf8_head(head).lstrip(b" \t\r\n").startswith(b"<")
 
 
 def load_ipc2581(path: str | os.PathLike[str]) -> Board:
@@ -253,65 +382,112 @@ def read_ipc2581(stream: BinaryIO, name: str) -> Board:
 # --------------------------------------------------------------------------- XML
 
 
-class _LineTreeBuilder(TreeBuilder):
-    """A TreeBuilder that records the line of each element's start tag."""
+class _Refused(Exception):
+    """A construct refused for safety (raised from an expat handler)."""
 
-    def __init__(self) -> None:
-        super().__init__()
-        self.lines: dict[int, int] = {}
-        self.parser: DefusedXMLParser | None = None
 
-    def start(self, tag, attrs):
-        elem = super().start(tag, attrs)
-        self.lines[id(elem)] = self.parser.parser.CurrentLineNumber
-        return elem
+def _refuse(words: str):
+    def handler(*_args):
+        raise _Refused(words)
+    return handler
+
+
+_DTD_WORDS = ("a DOCTYPE declaration (an IPC-2581 file has none; a DTD can define entities, the way "
+              "entity-expansion bombs and external entities get in)")
 
 
 def _parse(stream: BinaryIO, name: str) -> tuple[Element, dict[int, int]]:
+    """The element tree of the file and the line of each element's start
+    tag (by ``id``).
+
+    Parsed by expat (Python's ``pyexpat``) into the C ``TreeBuilder``, with
+    the refusals ``defusedxml`` makes and no more work per element than
+    recording its line: a DOCTYPE is refused where it starts (before any
+    internal subset is read, so no entity is ever declared), and so are
+    entity declarations and external references should one get through;
+    parameter entities are never parsed."""
     try:
         data = stream.read(MAX_FILE_BYTES + 1)
     except OSError as exc:
         raise FabError(name, None, f"cannot read the file: {exc}") from None
     if len(data) > MAX_FILE_BYTES:
         raise FabError(name, None, f"over the size limit of {MAX_FILE_BYTES:,} bytes: not read")
-    if not bytes(data).strip():
-        raise FabError(name, None, "the file is empty")
-    builder = _LineTreeBuilder()
-    parser = DefusedXMLParser(target=builder, forbid_dtd=True, forbid_entities=True, forbid_external=True)
-    builder.parser = parser
+    _not_xml(bytes(data[:4096]) if len(data) > 4096 else bytes(data), data, name)
+    parser = expat.ParserCreate(None, "}")
+    parser.buffer_text = True
+    parser.SetParamEntityParsing(expat.XML_PARAM_ENTITY_PARSING_NEVER)
+    parser.StartDoctypeDeclHandler = _refuse(_DTD_WORDS)
+    parser.EntityDeclHandler = _refuse("an entity declaration (entity expansion is refused: it is how XML "
+                                       "bombs work)")
+    parser.UnparsedEntityDeclHandler = _refuse("an entity declaration (entity expansion is refused: it is how "
+                                               "XML bombs work)")
+    parser.ExternalEntityRefHandler = _refuse("a reference to an external resource (never fetched)")
+    builder = TreeBuilder()
+    lines: dict[int, int] = {}
+    tags: dict[str, str] = {}
+    build_start = builder.start
+
+    def start(tag: str, attrs: dict[str, str]) -> None:
+        fixed = tags.get(tag)
+        if fixed is None:  # expat gives "uri}Name"; ElementTree's form is "{uri}Name"
+            fixed = tags[tag] = "{" + tag if "}" in tag else tag
+        lines[id(build_start(fixed, attrs))] = parser.CurrentLineNumber
+
+    parser.StartElementHandler = start
+    parser.EndElementHandler = builder.end
+    parser.CharacterDataHandler = builder.data
     try:
-        parser.feed(data)
-        root = parser.close()
-    except ParseError as exc:
-        line, column = exc.position
-        raise FabError(name, line, f"not well-formed XML: {_parse_message(exc)} (column {column + 1})") from None
-    except DefusedXmlException as exc:
-        line = parser.parser.CurrentLineNumber
-        raise FabError(name, line, f"refused for safety: {_defused_words(exc)}") from None
+        parser.Parse(data, True)
+        root = builder.close()
+    except expat.ExpatError as exc:
+        raise FabError(name, exc.lineno, f"not well-formed XML: {expat.ErrorString(exc.code)} "
+                                         f"(column {exc.offset + 1})") from None
+    except _Refused as exc:
+        raise FabError(name, parser.CurrentLineNumber, f"refused for safety: {exc}") from None
     except (ValueError, LookupError) as exc:  # an encoding Python cannot decode
         raise FabError(name, None, f"not readable XML: {exc}") from None
-    return root, builder.lines
+    return root, lines
 
 
-def _parse_message(exc: ParseError) -> str:
-    return re.sub(r": line \d+, column \d+$", "", str(exc))
-
-
-def _defused_words(exc: DefusedXmlException) -> str:
-    kind = type(exc).__name__
-    if kind == "DTDForbidden":
-        return ("a DOCTYPE declaration (an IPC-2581 file has none; a DTD can define entities, the way "
-                "entity-expansion bombs and external entities get in)")
-    if kind == "EntitiesForbidden":
-        return "an entity declaration (entity expansion is refused: it is how XML bombs work)"
-    if kind == "ExternalReferenceForbidden":
-        return "a reference to an external resource (never fetched)"
-    return f"{kind}: {exc}"
+def _not_xml(head: bytes, data, name: str) -> None:
+    """Refuse, naming the file, content that cannot be an IPC-2581 file:
+    nothing, white space only, or a first character other than ``<``
+    (binary content or other text)."""
+    if not data:
+        raise FabError(name, None, "the file is empty: not an IPC-2581 file")
+    if head.startswith(_UTF16_BOMS):
+        text = _utf8_head(head[:len(head) // 2 * 2])
+        start = 0
+    else:
+        text = bytes(data)
+        start = len(_UTF8_BOM) if text.startswith(_UTF8_BOM) else 0
+    first = _SPACE.match(text, start).end()
+    if first == len(text):
+        if len(head) == len(data) or not head.startswith(_UTF16_BOMS):
+            raise FabError(name, None, "the file holds only white space: not an IPC-2581 file")
+        return  # a long UTF-16 run of white space: the parser reads on
+    if text[first:first + 1] == b"<":
+        return
+    sample = text[first:first + 1024]
+    controls = len(sample) - len(sample.translate(None, _CONTROL_BYTES))
+    if controls * 100 > len(sample) or b"\x00" in sample:
+        raise FabError(name, None, "binary content, not XML: not an IPC-2581 file")
+    shown = sample[:20].decode("utf-8", errors="replace")
+    line = text.count(b"\n", 0, first) + 1
+    raise FabError(name, line, f"not XML (the text starts {shown!r}, not with '<'): not an IPC-2581 file")
 
 
 def _local(tag) -> str:
     """An element's name without its namespace (``{uri}Layer`` -> ``Layer``)."""
-    return tag.rsplit("}", 1)[-1] if isinstance(tag, str) else ""
+    try:
+        return _LOCAL_NAMES[tag]
+    except (KeyError, TypeError):
+        if not isinstance(tag, str):
+            return ""
+        name = tag.rsplit("}", 1)[-1]
+        if len(_LOCAL_NAMES) < 4096:  # a file of many odd tags does not grow it without end
+            _LOCAL_NAMES[tag] = name
+        return name
 
 
 def _children(elem: Element, name: str) -> list[Element]:
@@ -361,6 +537,19 @@ class _Copper:
             self.net_index[name] = len(self.net_names)
             self.net_names.append(name)
         return self.net_index[name]
+
+    def add_segment(self, x1: float, y1: float, x2: float, y2: float, width: float, net: int, line: int) -> None:
+        """One stroke of one piece between two distinct points (the common
+        case, kept out of numpy: per call, numpy costs more than the work)."""
+        self.ordinal.append(0)
+        self.stroke.append(len(self.stroke_line))
+        self.stroke_line.append(line)
+        self.x1.append(x1)
+        self.y1.append(y1)
+        self.x2.append(x2)
+        self.y2.append(y2)
+        self.width.append(width)
+        self.net.append(net)
 
     def add_stroke(self, points: np.ndarray, width: float, net: int, line: int) -> int:
         """One stroke of the pieces between consecutive distinct points;
@@ -446,6 +635,9 @@ class _Reader:
         self.line_cache: dict[str, tuple[float, str]] = {}
         self.points = 0
         self.shape_count = 0
+        self.widened = 0   # traces widened to MIN_TRACE_MM
+        self.readings: dict[str, int] = {}  # assumption -> count
+        self.fill_descs: dict[str, tuple[Element, str, float]] = {}
 
     # ---- errors and numbers
 
@@ -464,9 +656,9 @@ class _Reader:
             if required:
                 self.fail(elem, path, f"missing attribute {attr!r}")
             return default
-        if _NON_FINITE.fullmatch(text):
-            self.fail(elem, path, f"{attr}={text!r}: not a finite number")
         if not _NUMBER.fullmatch(text):
+            if _NON_FINITE.fullmatch(text):
+                self.fail(elem, path, f"{attr}={text!r}: not a finite number")
             self.fail(elem, path, f"{attr}={text!r}: not a number")
         try:
             value = float(text)
@@ -482,6 +674,19 @@ class _Reader:
             self.fail(elem, path, f"{attr}={elem.get(attr)!r} is {mm:g} mm from the origin, more than 10 m "
                       "(a units mistake?)")
         return mm
+
+    def coords(self, elem: Element, path: str, attrs: tuple[str, ...], scale: float) -> list[float]:
+        """:meth:`coord` of each of ``attrs``, the plain case inline."""
+        out = []
+        for attr in attrs:
+            text = elem.get(attr)
+            if text is not None and _NUMBER.fullmatch(text):
+                mm = float(text) * scale
+                if abs(mm) <= MAX_LENGTH_MM:  # inf (an overflow) is not
+                    out.append(mm)
+                    continue
+            out.append(self.coord(elem, path, attr, scale))  # the checks and their messages
+        return out
 
     def size(self, elem: Element, path: str, attr: str, scale: float, *, zero_ok: bool = False) -> float:
         """A length attribute in mm: > 0 (>= 0 with ``zero_ok``), at most 10 m."""
@@ -565,6 +770,10 @@ class _Reader:
         if pad_stacks:
             notes.append(f"{self.name}: {pad_stacks} PadStack element(s) not read: pads and holes are read from "
                          "each layer's LayerFeature")
+        notes += [f"{self.name}: {what} ({count})" for what, count in self.readings.items()]
+        if self.widened:
+            notes.append(f"{self.name}: {self.widened} round-ended line(s) narrower than {MIN_TRACE_MM * 1000:g} um "
+                         f"read {MIN_TRACE_MM * 1000:g} um wide (the analysis' width resolution; more copper, not less)")
         job_notes = tuple(f"{self.name}: {what} not given for {', '.join(where)}: {value} used ({ASSUMED_WORDS})"
                           for (what, value), where in self.assumed.items())
         job = JobStackup(path=self.name, stackup=stackup, copper_numbers=tuple(range(1, n + 1)),
@@ -617,7 +826,8 @@ class _Reader:
     def dictionaries(self, content: Element) -> None:
         kinds = {"DictionaryStandard": ("EntryStandard", self.standard),
                  "DictionaryUser": ("EntryUser", self.user),
-                 "DictionaryLineDesc": ("EntryLineDesc", self.line_descs)}
+                 "DictionaryLineDesc": ("EntryLineDesc", self.line_descs),
+                 "DictionaryFillDesc": ("EntryFillDesc", self.fill_descs)}
         count: dict[str, int] = {}
         for d in content:
             kind = _local(d.tag)
@@ -634,7 +844,8 @@ class _Reader:
                     self.fail(entry, here, "missing attribute 'id'")
                 if key in table:
                     self.fail(entry, here, f"{entry_name} id {key!r} is defined twice")
-                body = [c for c in entry if _local(c.tag) not in _QUIET]
+                body = [c for c in entry if _local(c.tag) not in _QUIET
+                        or (kind == "DictionaryFillDesc" and _local(c.tag) == "FillDesc")]
                 if not body:
                     self.fail(entry, here, f"{entry_name} {key!r} is empty")
                 table[key] = (body[0], f"{here}/{_local(body[0].tag)}", scale)
@@ -728,14 +939,22 @@ class _Reader:
         if elem.get("thickness") is None:
             self.assume("copper thickness", f"{DEFAULT_COPPER_MM:g} mm", layer)
             return CopperLayer(layer.name, "mixed", DEFAULT_COPPER_MM, assumed=("thickness",))
-        return CopperLayer(layer.name, "mixed", self.size(elem, path, "thickness", self.cad_scale))
+        return CopperLayer(layer.name, "mixed", self.thickness(elem, path, layer))
+
+    def thickness(self, elem: Element, path: str, layer: _LayerDef) -> float:
+        """A StackupLayer's thickness in mm, refused below MIN_THICKNESS_MM."""
+        mm = self.size(elem, path, "thickness", self.cad_scale)
+        if mm < MIN_THICKNESS_MM:
+            self.fail(elem, path, f"thickness={elem.get('thickness')!r} of layer {layer.name!r} is {mm:.3g} mm, "
+                      f"thinner than {MIN_THICKNESS_MM * 1000:g} um: not a physical board layer (a units mistake?)")
+        return mm
 
     def insulator(self, elem: Element, path: str, layer: _LayerDef, specs: dict,
                   mask: bool) -> tuple[float, float, float | None, tuple[str, ...]]:
         """(thickness, εr, loss tangent, assumed) of a dielectric or mask."""
         assumed = []
         if elem.get("thickness") is not None:
-            thickness = self.size(elem, path, "thickness", self.cad_scale)
+            thickness = self.thickness(elem, path, layer)
         elif mask:
             thickness = DEFAULT_MASK_MM
             assumed.append("thickness")
@@ -747,9 +966,10 @@ class _Reader:
         refs = _children(elem, "SpecRef") or _children(layer.elem, "SpecRef")
         for ref in refs:
             key = ref.get("id")
-            if key not in specs:
-                self.fail(ref, f"{path}/SpecRef", f"SpecRef id {key!r} names no Spec of the CadHeader")
-            e, t, _, _ = specs[key]
+            found = self.spec_of(key, specs, layer)
+            if found is None:
+                continue
+            e, t, _, _ = specs[found]
             er = e if er is None else er
             tan_d = t if tan_d is None else tan_d
         if er is None:
@@ -757,6 +977,29 @@ class _Reader:
             assumed.append("er")
             self.assume("solder mask εr" if mask else "dielectric εr", f"{er:g}", layer)
         return thickness, er, tan_d, tuple(assumed)
+
+    def spec_of(self, key: str | None, specs: dict, layer: _LayerDef) -> str | None:
+        """The Spec a ``SpecRef@id`` names: the Spec of that name; else, for
+        an id ``SPEC_X``, the one Spec named ``X`` or ``X_<digits>`` (an
+        open-source exporter names its Specs that way and refers to them by
+        ``SPEC_<layer>``; a note says so); else None, with a note (the
+        layer's values then are the documented defaults)."""
+        if key in specs:
+            return key
+        if key is not None and key.startswith("SPEC_"):
+            stem = key[len("SPEC_"):]
+            near = [name for name in specs if name == stem or re.fullmatch(re.escape(stem) + r"_[0-9]+", name)]
+            if len(near) == 1:
+                self.notes.append(f"{self.name}: layer {layer.name!r}: SpecRef {key!r} names no Spec; the Spec "
+                                  f"{near[0]!r} is read for it (its name is the reference without 'SPEC_')")
+                return near[0]
+            if near:
+                self.notes.append(f"{self.name}: layer {layer.name!r}: SpecRef {key!r} names no Spec and could be "
+                                  f"any of {', '.join(map(repr, sorted(near)))}: none is used")
+                return None
+        self.notes.append(f"{self.name}: layer {layer.name!r}: SpecRef {key!r} names no Spec of the CadHeader: "
+                          "its material values are not known")
+        return None
 
     def combine(self, rows: list[tuple[Element, str, _LayerDef]], specs: dict) -> Dielectric:
         """One model dielectric from consecutive layers, by the series rule
@@ -828,13 +1071,15 @@ class _Reader:
     def step_features(self, step: Element, step_path: str, layers: dict[str, _LayerDef],
                       builders: dict[str, _Copper], drills: dict[str, _Drill]) -> None:
         other: dict[str, str] = {}
+        undefined: dict[str, int] = {}
         for k, lf in enumerate(_children(step, "LayerFeature")):
             ref = lf.get("layerRef")
             path = f"{step_path}/LayerFeature[{ref if ref is not None else k + 1}]"
             if ref is None:
                 self.fail(lf, path, "missing attribute 'layerRef'")
-            if ref not in layers:
-                self.fail(lf, path, f"layerRef {ref!r} names no Layer of CadData")
+            if ref not in layers:  # an exporter writes tenting, plugging, filling layers so
+                undefined[ref] = undefined.get(ref, 0) + 1
+                continue
             layer = layers[ref]
             if ref in builders:
                 self.copper_features(lf, path, builders[ref])
@@ -847,62 +1092,86 @@ class _Reader:
         if other:
             self.notes.append(f"{self.name}: not read: the features of layer(s) "
                               + ", ".join(f"{k} ({v})" for k, v in other.items()))
+        if undefined:
+            self.notes.append(f"{self.name}: not read: LayerFeature(s) of layer(s) no Layer of CadData defines: "
+                              + ", ".join(repr(k) for k in undefined) + " (only copper and drill layers matter)")
 
-    def sets(self, lf: Element, path: str):
-        """(Set element, its path, net or None, padUsage) of a LayerFeature."""
-        for k, s in enumerate(_children(lf, "Set")):
-            here = f"{path}/Set[{k + 1}]"
-            polarity = (s.get("polarity") or "POSITIVE").strip().upper()
-            if polarity != "POSITIVE":
-                self.fail(s, here, f"polarity={s.get('polarity')!r}: clear (negative) copper in a Set is not "
-                          "supported; export positive copper with cutouts")
-            yield s, here, s.get("net"), (s.get("padUsage") or "").strip().upper()
+    def set_attributes(self, s: Element, here: str, net: str | None, usage: str) -> tuple[str | None, str]:
+        """(net or None, padUsage) of a Set: its own where it gives them,
+        else its parent Set's (``net`` None and ``usage`` "" at the top)."""
+        polarity = s.get("polarity")
+        if polarity is not None and polarity.strip().upper() != "POSITIVE":
+            self.fail(s, here, f"polarity={polarity!r}: clear (negative) copper in a Set is not supported; export "
+                      "positive copper with cutouts")
+        own = s.get("padUsage")
+        return s.get("net", net), usage if own is None else own.strip().upper()
 
     def copper_features(self, lf: Element, path: str, layer: _Copper) -> None:
-        for s, here, net_name, usage in self.sets(lf, path):
-            net = layer.net_of(net_name)
-            count: dict[str, int] = {}
-            for child in s:
-                name = _local(child.tag)
-                count[name] = count.get(name, 0) + 1
-                at = f"{here}/{name}[{count[name]}]"
-                if name == "Features":
-                    xf = self.placement(child, at)
-                    seen: dict[str, int] = {}
-                    for feature in child:
-                        fname = _local(feature.tag)
-                        seen[fname] = seen.get(fname, 0) + 1
-                        if fname not in ("Xform", "Location"):
-                            self.feature(feature, f"{at}/{fname}[{seen[fname]}]", xf, net, layer, traces=True)
-                elif name == "Pad":
-                    self.pad(child, at, net, usage, layer)
-                elif name == "Hole":
-                    self.skip("Hole elements on copper layers (holes are read from drill layers)")
-                elif name == "SlotCavity":
-                    self.skip("SlotCavity (slots)")
-                elif name not in _QUIET:
-                    self.unknown_element(name, at)
+        for k, s in enumerate(_children(lf, "Set")):
+            self.copper_set(s, f"{path}/Set[{k + 1}]", None, "", layer, 0)
+
+    def copper_set(self, s: Element, here: str, net_name: str | None, usage: str, layer: _Copper,
+                   depth: int) -> None:
+        """One Set of a copper layer, and the Sets nested in it."""
+        net_name, usage = self.set_attributes(s, here, net_name, usage)
+        net = layer.net_of(net_name)
+        count: dict[str, int] = {}
+        for child in s:
+            name = _local(child.tag)
+            count[name] = count.get(name, 0) + 1
+            if name == "Features":
+                at = f"{here}/Features[{count[name]}]"
+                xf = self.placement(child, at)
+                seen: dict[str, int] = {}
+                for feature in child:
+                    fname = _local(feature.tag)
+                    seen[fname] = k = seen.get(fname, 0) + 1
+                    if fname not in ("Xform", "Location"):
+                        self.feature(feature, f"{at}/{fname}[{k}]", xf, net, layer, traces=True)
+            elif name == "Pad":
+                self.pad(child, f"{here}/Pad[{count[name]}]", net, usage, layer)
+            elif name == "Set":
+                self.nested(child, f"{here}/Set[{count[name]}]", depth)
+                self.copper_set(child, f"{here}/Set[{count[name]}]", net_name, usage, layer, depth + 1)
+            elif name == "Hole":
+                self.skip("Hole elements on copper layers (holes are read from drill layers)")
+            elif name == "SlotCavity":
+                self.skip("SlotCavity (slots)")
+            elif name not in _QUIET:
+                self.unknown_element(name, f"{here}/{name}[{count[name]}]")
+
+    def nested(self, s: Element, here: str, depth: int) -> None:
+        if depth >= MAX_NESTING:
+            self.fail(s, here, f"Sets nested more than {MAX_NESTING} deep")
 
     def drill_features(self, lf: Element, path: str, drill: _Drill) -> None:
-        for s, here, _net, usage in self.sets(lf, path):
-            for k, hole in enumerate(_children(s, "Hole")):
-                at = f"{here}/Hole[{k + 1}]"
-                x = self.coord(hole, at, "x", self.cad_scale)
-                y = self.coord(hole, at, "y", self.cad_scale)
-                d = self.size(hole, at, "diameter", self.cad_scale)
-                status = (hole.get("platingStatus") or "").strip().upper()
-                if status.startswith("VIA"):
-                    function, plated = "ViaDrill", True
-                elif status.startswith("NONPLATED"):
-                    function, plated = "", False
-                elif status.startswith("PLATED"):
-                    function, plated = ("ComponentDrill" if usage == "TERMINATION" else ""), True
-                else:
-                    self.fail(hole, at, f"platingStatus={hole.get('platingStatus')!r} (accepted: VIA, PLATED, "
-                              "NONPLATED)")
-                drill.holes.append((x, y, d, function, plated, self.line(hole) or 0))
-            if _children(s, "SlotCavity"):
-                self.skip("SlotCavity (slots)")
+        for k, s in enumerate(_children(lf, "Set")):
+            self.drill_set(s, f"{path}/Set[{k + 1}]", "", drill, 0)
+
+    def drill_set(self, s: Element, here: str, usage: str, drill: _Drill, depth: int) -> None:
+        """The holes of one Set of a drill layer, and of the Sets nested in it."""
+        _, usage = self.set_attributes(s, here, None, usage)
+        for k, hole in enumerate(_children(s, "Hole")):
+            at = f"{here}/Hole[{k + 1}]"
+            x = self.coord(hole, at, "x", self.cad_scale)
+            y = self.coord(hole, at, "y", self.cad_scale)
+            d = self.size(hole, at, "diameter", self.cad_scale)
+            status = (hole.get("platingStatus") or "").strip().upper()
+            if status.startswith("VIA"):
+                function, plated = "ViaDrill", True
+            elif status.startswith("NONPLATED"):
+                function, plated = "", False
+            elif status.startswith("PLATED"):
+                function, plated = ("ComponentDrill" if usage == "TERMINATION" else ""), True
+            else:
+                self.fail(hole, at, f"platingStatus={hole.get('platingStatus')!r} (accepted: VIA, PLATED, "
+                          "NONPLATED)")
+            drill.holes.append((x, y, d, function, plated, self.line(hole) or 0))
+        if _children(s, "SlotCavity"):
+            self.skip("SlotCavity (slots)")
+        for k, inner in enumerate(_children(s, "Set")):
+            self.nested(inner, f"{here}/Set[{k + 1}]", depth)
+            self.drill_set(inner, f"{here}/Set[{k + 1}]", usage, drill, depth + 1)
 
     def profile(self, step: Element, step_path: str):
         prof = _child(step, "Profile")
@@ -921,25 +1190,36 @@ class _Reader:
     def placement(self, elem: Element, path: str) -> tuple[float, ...]:
         """The affine map (a, b, d, e, xoff, yoff) of an element's ``Xform``
         and ``Location`` children: x' = a x + b y + xoff, y' = d x + e y + yoff."""
-        loc = _child(elem, "Location")
-        xform = _child(elem, "Xform")
+        loc = xform = None
+        for c in elem:
+            name = _local(c.tag)
+            if name == "Location" and loc is None:
+                loc = c
+            elif name == "Xform" and xform is None:
+                xform = c
         lx = ly = 0.0
         if loc is not None:
             lx = self.coord(loc, f"{path}/Location", "x", self.cad_scale)
             ly = self.coord(loc, f"{path}/Location", "y", self.cad_scale)
         if xform is None:
             return (1.0, 0.0, 0.0, 1.0, lx, ly)
-        here = f"{path}/Xform"
+        a, b, d, e, ox, oy = self.xform_map(xform, f"{path}/Xform", self.cad_scale)
+        return (a, b, d, e, lx + ox, ly + oy)
+
+    def xform_map(self, xform: Element, here: str, unit: float) -> tuple[float, ...]:
+        """The affine map of one ``Xform`` (offsets in ``unit`` mm): scale,
+        then mirror (x -> -x), then rotation (counter-clockwise), then the
+        offsets (the order is this module's reading, from memory)."""
         scale = self.number(xform, here, "scale", default=1.0, required=False)
         if not 0 < scale <= 1e6:
             self.fail(xform, here, f"scale={xform.get('scale')!r} must be > 0")
         rot = math.radians(self.number(xform, here, "rotation", default=0.0, required=False))
         mirror = bool(_flag(xform.get("mirror")))
-        ox = self.coord(xform, here, "xOffset", self.cad_scale) if xform.get("xOffset") is not None else 0.0
-        oy = self.coord(xform, here, "yOffset", self.cad_scale) if xform.get("yOffset") is not None else 0.0
+        ox = self.coord(xform, here, "xOffset", unit) if xform.get("xOffset") is not None else 0.0
+        oy = self.coord(xform, here, "yOffset", unit) if xform.get("yOffset") is not None else 0.0
         c, s = math.cos(rot), math.sin(rot)
         m = -1.0 if mirror else 1.0
-        return (c * m * scale, -s * scale, s * m * scale, c * scale, lx + ox, ly + oy)
+        return (c * m * scale, -s * scale, s * m * scale, c * scale, ox, oy)
 
     @staticmethod
     def apply(xf: tuple[float, ...], pts: np.ndarray) -> np.ndarray:
@@ -963,18 +1243,36 @@ class _Reader:
         name = _local(elem.tag)
         line = self.line(elem) or 0
         if name in ("Line", "Arc", "Polyline"):
-            pts = self.path_points(elem, path, xf, self.cad_scale)
             width, end = self.line_desc(elem, path, self.cad_scale)
-            width *= math.sqrt(abs(xf[0] * xf[3] - xf[1] * xf[2]))
-            if width == 0:
-                self.skip("zero-width lines on copper")
-                return
-            if traces and end == "ROUND":
-                self.points += len(pts)
-                if self.points > MAX_TRACE_POINTS:
-                    self.fail(elem, path, f"more than {MAX_TRACE_POINTS} trace points: over this reader's limit")
-                if layer.add_stroke(pts, width, net, line):
+            if xf is not _IDENTITY and xf != _IDENTITY:
+                width *= math.sqrt(abs(xf[0] * xf[3] - xf[1] * xf[2]))
+            if width < MIN_TRACE_MM:
+                width = self.thin(width, end == "ROUND" and traces)
+                if width == 0:
                     return
+            if traces and end == "ROUND":
+                if name == "Line":  # the common case in plain Python: numpy costs more than it saves here
+                    x1, y1, x2, y2 = self.coords(elem, path, _LINE_ENDS, self.cad_scale)
+                    if xf is not _IDENTITY and xf != _IDENTITY:
+                        a, b, d, e, xo, yo = xf
+                        x1, y1, x2, y2 = a * x1 + b * y1 + xo, d * x1 + e * y1 + yo, a * x2 + b * y2 + xo, \
+                            d * x2 + e * y2 + yo
+                    self.points += 2
+                    if self.points > MAX_TRACE_POINTS:
+                        self.fail(elem, path, f"more than {MAX_TRACE_POINTS} trace points: over this reader's limit")
+                    if x1 != x2 or y1 != y2:
+                        layer.add_segment(x1, y1, x2, y2, width, net, line)
+                        return
+                    pts = np.array([[x1, y1], [x2, y2]])
+                else:
+                    pts = self.path_points(elem, path, xf, self.cad_scale)
+                    self.points += len(pts)
+                    if self.points > MAX_TRACE_POINTS:
+                        self.fail(elem, path, f"more than {MAX_TRACE_POINTS} trace points: over this reader's limit")
+                    if layer.add_stroke(pts, width, net, line):
+                        return
+            else:
+                pts = self.path_points(elem, path, xf, self.cad_scale)
             self.add_shape(layer, "draw", _stroke_shape(pts, width, end), net, line, elem, path)
         elif name in ("Contour", "Outline"):
             self.add_shape(layer, "region", self.filled(elem, path, xf, self.cad_scale), net, line, elem, path)
@@ -991,6 +1289,24 @@ class _Reader:
             self.skip("Text on copper layers")
         elif name not in _QUIET:
             self.unknown_element(name, path)
+
+    def read_as(self, what: str) -> None:
+        """Count a reading that is an assumption, for a note."""
+        self.readings[what] = self.readings.get(what, 0) + 1
+
+    def thin(self, width: float, trace: bool) -> float:
+        """The width (mm) to read a line narrower than MIN_TRACE_MM with: 0
+        (skipped, counted for a note) at MIN_FEATURE_MM or less; a trace's
+        widened to MIN_TRACE_MM (counted for a note: more copper, not less);
+        any other line's as it is."""
+        if width <= MIN_FEATURE_MM:
+            self.skip("zero-width lines on copper" if width == 0 else
+                      f"lines {MIN_FEATURE_MM * 1e6:g} nm wide or less on copper")
+            return 0.0
+        if trace:
+            self.widened += 1
+            return MIN_TRACE_MM
+        return width
 
     def add_shape(self, layer: _Copper, kind: str, geom: shapely.Geometry, net: int, line: int, elem: Element,
                   path: str, function: str | None = None, at: tuple[float, float] | None = None) -> None:
@@ -1038,20 +1354,31 @@ class _Reader:
             return self.geometry_cache[cache]
         if depth > MAX_NESTING:
             self.fail(elem, path, f"primitives nested more than {MAX_NESTING} deep")
+        geom = self.own_shape(elem, path, scale, name, depth)
+        xform = _child(elem, "Xform")
+        if xform is None or geom.is_empty:
+            return geom
+        # the primitive's own Xform (revision B) places it in its parent's frame
+        return self.place(self.xform_map(xform, f"{path}/Xform", scale), geom)
+
+    def own_shape(self, elem: Element, path: str, scale: float, name: str, depth: int) -> shapely.Geometry:
+        """A primitive's copper in its own frame (before its own Xform)."""
         if name in PRIMITIVES:
-            return self.standard_shape(elem, path, scale, name)
+            shape = self.standard_shape(elem, path, scale, name)
+            return shape if name == "Contour" else self.dress(shape, [(elem, path)], scale)
         if name in UNSUPPORTED_PRIMITIVES:
             self.fail(elem, path, f"the standard primitive {name} is not supported by this reader "
                       f"(supported: {', '.join(PRIMITIVES)})")
         if name == "UserSpecial":
             parts = [self.primitive(c, f"{path}/{_local(c.tag)}", scale, depth + 1) for c in elem
-                     if _local(c.tag) not in _QUIET]
+                     if _local(c.tag) not in _QUIET and _local(c.tag) not in _DESCRIPTIONS]
             parts = [p for p in parts if not p.is_empty]
             return shapely.union_all(parts) if parts else shapely.Polygon()
         if name in ("Line", "Arc", "Polyline"):
             pts = self.path_points(elem, path, _IDENTITY, scale)
             width, end = self.line_desc(elem, path, scale)
-            return _stroke_shape(pts, width, end)
+            width = self.thin(width, trace=False)
+            return _stroke_shape(pts, width, end) if width > 0 else shapely.Polygon()
         if name == "Outline":
             return self.filled(elem, path, _IDENTITY, scale)
         if name == "Text":
@@ -1198,13 +1525,67 @@ class _Reader:
         holes = [contour_polygon(self.apply(xf, self.poly_points(c, f"{path}/Cutout[{k + 1}]", scale, closed=True)))
                  for k, c in enumerate(_children(elem, "Cutout"))]
         shape = shell.difference(shapely.union_all(holes)) if holes else shell
-        if name == "Outline":
-            has_desc = _child(elem, "LineDesc") is not None or _child(elem, "LineDescRef") is not None
-            width = self.line_desc(elem, path, scale)[0] if has_desc else 0.0
-            width *= math.sqrt(abs(xf[0] * xf[3] - xf[1] * xf[2]))
-            if width > 0:
-                shape = shapely.buffer(shape, width / 2, quad_segs=max(4, disc_vertex_count(width / 2) // 4))
+        if name != "Profile":
+            shape = self.dress(shape, [(elem, path), (polys[0], f"{path}/Polygon")], scale,
+                               math.sqrt(abs(xf[0] * xf[3] - xf[1] * xf[2])))
         return polygonal_part(shape)
+
+    def dress(self, shape: shapely.Geometry, owners: list[tuple[Element, str]], scale: float,
+              factor: float = 1.0) -> shapely.Geometry:
+        """The copper of a closed shape given its fill and line: the first
+        ``FillDesc``/``FillDescRef`` and ``LineDesc``/``LineDescRef`` among
+        the ``owners`` (the shape's element, then its Polygon). Filled (no
+        FillDesc, FILL, HATCH, MESH): the area, grown by half the line
+        width where one is given (the outline is drawn with it). Hollow
+        (HOLLOW, VOID): the outline stroked with the line width, a ring;
+        without a width, HOLLOW_LINE_MM with a note. ``factor`` scales the
+        width as a placement already applied to ``shape`` does."""
+        fill = width = None
+        for elem, path in owners:
+            if fill is None:
+                fill = self.fill_desc(elem, path)
+            if width is None and (_child(elem, "LineDesc") is not None or _child(elem, "LineDescRef") is not None):
+                width = self.line_desc(elem, path, scale)[0] * factor
+        if width is not None and width <= MIN_FEATURE_MM:
+            width = None
+        if fill is None or FILL_PROPERTIES[fill]:
+            if width is None:
+                return shape
+            return shapely.union_all([shape, _outline_stroke(shape, width)])
+        if width is None:
+            width = HOLLOW_LINE_MM
+            self.read_as(f"hollow shapes without a line width stroked {HOLLOW_LINE_MM:g} mm wide (the thinnest "
+                         "plausible copper line; filling them could join copper of other nets)")
+        return _outline_stroke(shape, width)
+
+    def fill_desc(self, elem: Element, path: str) -> str | None:
+        """The ``fillProperty`` of an element's ``FillDesc`` or
+        ``FillDescRef`` (``FILL`` where it gives none); None without either."""
+        for c in elem:
+            kind = _local(c.tag)
+            if kind == "FillDesc":
+                return self.read_fill(c, f"{path}/FillDesc")
+            if kind == "FillDescRef":
+                key = c.get("id")
+                if key not in self.fill_descs:
+                    self.fail(c, f"{path}/FillDescRef", f"FillDescRef id {key!r} names no entry of the "
+                              "DictionaryFillDesc")
+                body, body_path, _ = self.fill_descs[key]
+                if _local(body.tag) != "FillDesc":
+                    self.fail(body, body_path, f"EntryFillDesc {key!r} holds <{_local(body.tag)}>, not a FillDesc")
+                return self.read_fill(body, body_path)
+        return None
+
+    def read_fill(self, desc: Element, path: str) -> str:
+        text = desc.get("fillProperty")
+        prop = "FILL" if text is None else text.strip().upper()
+        if prop not in FILL_PROPERTIES:
+            self.fail(desc, path, f"fillProperty={text!r} (accepted: {', '.join(FILL_PROPERTIES)})")
+        if prop in ("HATCH", "MESH"):
+            self.read_as("HATCH and MESH fills read as solid copper (more copper than the lines of the hatch)")
+        elif prop == "VOID":
+            self.read_as("VOID fills read as HOLLOW (the outline only)")
+        return prop
 
     def line_desc(self, elem: Element, path: str, scale: float) -> tuple[float, str]:
         """(width mm, end) of a feature's ``LineDesc`` or ``LineDescRef``."""
@@ -1229,6 +1610,10 @@ class _Reader:
         end = (desc.get("lineEnd") or "ROUND").strip().upper()
         if end not in ("ROUND", "SQUARE", "NONE"):
             self.fail(desc, path, f"lineEnd={desc.get('lineEnd')!r} (accepted: ROUND, SQUARE, NONE)")
+        style = (desc.get("lineProperty") or "SOLID").strip().upper()
+        if style != "SOLID":
+            self.read_as("line descriptions of a lineProperty other than SOLID (dashed, dotted) read as solid "
+                         "lines (more copper, not less)")
         return width, end
 
 
@@ -1253,6 +1638,16 @@ def _stroke_shape(pts: np.ndarray, width: float, end: str) -> shapely.Geometry:
         return shapely.Polygon()
     return shapely.buffer(line, width / 2, cap_style="square" if end == "SQUARE" else "flat", join_style="round",
                           quad_segs=max(4, disc_vertex_count(width / 2) // 4))
+
+
+def _outline_stroke(shape: shapely.Geometry, width: float) -> shapely.Geometry:
+    """Every ring (outer and holes) of a polygonal shape drawn with a round
+    line of ``width``: the Gerber door's exact-area stroke outline, as a
+    region drawn with a round aperture."""
+    rings = [np.asarray(ring.coords) for part in shapely.get_parts(polygonal_part(shape)) if not part.is_empty
+             for ring in (part.exterior, *part.interiors)]
+    parts = [stroke_outline(ring, width) for ring in rings if len(ring) > 1]
+    return shapely.union_all(parts) if parts else shapely.Polygon()
 
 
 def _corner_rect(w: float, h: float, r: float, corners: list[bool], rounded: bool) -> shapely.Polygon:

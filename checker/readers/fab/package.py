@@ -124,6 +124,8 @@ def collect(paths: list[str], layer_overrides: dict[str, str] | None = None) -> 
             continue
         head = _head(m)
         kind = _kind(head, m.stem, m)
+        if kind is None and len(members) == 1 and (m.name.lower().endswith(".xml") or head.lstrip().startswith(b"<")):
+            kind = "ipc2581"  # one XML file given alone: its reader says what is wrong with it
         if override is not None and kind not in ("gerber", None):
             raise UsageError(f"--layer {m.name}={override}: the file is {_KIND_WORDS[kind]}, not a Gerber layer")
         if kind in ("job", "drill", "netlist", "ipc2581"):
