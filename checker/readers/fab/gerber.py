@@ -87,11 +87,12 @@ from ...errors import FabError
 from ..board_json import MAX_COORDINATE_MM
 from .gerber_apertures import (EMPTY, ApertureError, apply_matrix, is_identity, standard_aperture,
                                swept_outline, transform_matrix)
-from .gerber_arcs import ArcError, arc_points
+from .gerber_arcs import ArcError, arc_circle, arc_points
 from .gerber_attributes import AttributeSyntaxError, attribute_in_comment, parse_attribute
 from .gerber_commands import CommandSplitter, SplitError, show_command
 from .gerber_macros import ApertureMacro, MacroError, contour_polygon, instantiate, parse_macro
 from .gerber_output import build
+from .gerber_runs import PointChunks, run_matcher
 from .gerber_sink import ObjectSink, ReplayError, ShapeRecord, stroke_outline
 from .layer import NET_UNKNOWN, GerberLayer
 
@@ -104,8 +105,15 @@ MAX_SHAPES = 1_000_000
 MAX_REGION_POINTS = 5_000_000
 #: Deepest nesting of AB / SR statements.
 MAX_BLOCK_DEPTH = 32
-#: Bytes read per call at most (a file without line breaks is read in pieces).
+#: Longest line read as one (a file without line breaks is read in pieces of this size).
 READ_CHUNK = 1 << 16
+#: Bytes asked of the stream per read.
+READ_BLOCK = 1 << 20
+#: Fewest lines of a run of straight draws kept as text and parsed in bulk; in a region contour of
+#: fewer than MIN_REGION_RUN points, runs of fewer lines are read line by line (a contour's points are
+#: parsed when it closes: bulk parsing pays only on longer ones).
+MIN_RUN = 4
+MIN_REGION_RUN = 16
 #: Lines between checks of the object limits in the fast path.
 CHECK_EVERY = 1 << 16
 
@@ -131,17 +139,49 @@ _COMMENT = re.compile(rb"G0*4(?![0-9])").match
 #: A line that is one word command or one single-word extended command.
 _ONE_WORD = re.compile(rb"[ \t]*(?:([^%*\r\n]+)\*|%([^%*\r\n]+)\*%)[ \t\r\n]*").fullmatch
 _MAX_DIGITS = 18
+#: A line that is one attribute command (TO, TA, TD): its text.
+_ATTRIBUTE_LINE = re.compile(rb"%(T[OAD][^%*\r\n]*)\*%\r?\n?").fullmatch
+#: A line that is an aperture selection (1) or a G01/G02/G03 alone (2).
+_SELECT_LINE = re.compile(rb"(?:G0*54)?D0*([1-9][0-9]{1,8})\*\r?\n?|G0*([123])\*\r?\n?").fullmatch
+_NUMBER = re.compile(rb"[+-]?[0-9]+").match
+
+
+def _digits(div: float) -> int:
+    """Most digits of a coordinate that cannot be more than 10 m from the origin."""
+    return max(1, int(math.floor(math.log10(MAX_COORDINATE_MM * div + 1))))
 
 
 @functools.lru_cache(maxsize=None)
 def _fast_regex(div_x: float, div_y: float):
-    """``X..Y..D01*`` / ``D02*`` / ``D03*`` lines whose coordinates cannot be more than
-    10 m from the origin (longer numbers go the general way, which checks
-    them). ``div``: coordinate units per mm."""
-    nx = max(1, int(math.floor(math.log10(MAX_COORDINATE_MM * div_x + 1))))
-    ny = max(1, int(math.floor(math.log10(MAX_COORDINATE_MM * div_y + 1))))
-    return re.compile(rb"(G0*1)?(?:X([+-]?[0-9]{1,%d}))?(?:Y([+-]?[0-9]{1,%d}))?D0*([123])\*\r?\n?"
-                      % (nx, ny)).fullmatch
+    """``[Gnn]X..Y..[I..J..]Dnn*`` lines (G01, G02, G03; D01, D02, D03)
+    whose coordinates cannot be more than 10 m from the origin (longer
+    numbers go the general way, which checks them). ``div``: coordinate
+    units per mm."""
+    nx, ny = _digits(div_x), _digits(div_y)
+    return re.compile(rb"(?:G0*([123]))?(?:X([+-]?[0-9]{1,%d}))?(?:Y([+-]?[0-9]{1,%d}))?"
+                      rb"(?:I([+-]?[0-9]{1,%d}))?(?:J([+-]?[0-9]{1,%d}))?D0*([123])\*\r?\n?"
+                      % (nx, ny, nx, ny)).fullmatch
+
+
+def _signed(digits: bytes, div: float, general: bool) -> float:
+    """A coordinate in mm from its digits: ``int(digits) / div``; with
+    ``general``, as the general path reads it (the quotient of the
+    magnitude, negated: ``-0`` is ``-0.0``)."""
+    value = int(digits) / div
+    if general and value == 0 and digits[:1] == b"-":
+        return -0.0
+    return value
+
+
+def _parse_attribute_line(text: bytes) -> tuple | None:
+    """An attribute command's (code, name, fields), or ``None`` if the
+    general path must read it (to report an error, or odd spacing)."""
+    if text != text.strip():
+        return None
+    try:
+        return parse_attribute(text.decode("utf-8"))
+    except (UnicodeDecodeError, AttributeSyntaxError):
+        return None
 
 
 @dataclass
@@ -176,13 +216,14 @@ class _Statement:
 
 
 class _Region:
-    """An open region statement: its contours as lists of point arrays."""
+    """An open region statement: its contours, each the line it starts on
+    and its points."""
 
     def __init__(self, line: int) -> None:
         self.line = line
         self.contour_line = line  # where the next contour starts: the G36 or the last D02
-        self.contours: list[tuple[int, list[np.ndarray]]] = []
-        self.current: list[np.ndarray] | None = None
+        self.contours: list[tuple[int, PointChunks]] = []
+        self.current: PointChunks | None = None
         self.points = 0
 
 
@@ -239,7 +280,6 @@ class _GerberReader:
         self.unit: str | None = None
         self.div_x = self.div_y = 1.0
         self.resolution_mm = 0.0
-        self.fast_re = None
         # graphics state
         self.cx = self.cy = 0.0
         self.interpolation: int | None = None
@@ -275,10 +315,13 @@ class _GerberReader:
         self.statements: list[_Statement] = []
         self.done = False
         # fast path
-        self.fast_d01 = False
-        self.fast_d02 = False
+        self.fast_re = None
+        self.run_re = self.simple_run_re = None
+        self.fast_stroke = False
         self.trace_width = 0.0
         self.trace_function = -1
+        self.flash_outline: shapely.Geometry | None = None
+        self.flash_function: str | None = None
         self.fast_state: tuple = ()
         self.version = 0
 
@@ -291,76 +334,309 @@ class _GerberReader:
 
     def read(self, stream) -> GerberLayer:
         splitter = CommandSplitter()
-        readline = stream.readline
+        read_block = stream.read
         size_limit = self.size_limit
+        buf = b""
+        pos = 0
+        eof = finished = False
         lineno = last_line = 1
         nbytes = 0
         next_check = CHECK_EVERY
-        line = b"x"
+        no_run_before = 0  # a run was tried up to here: no new try before it
+        attributes: dict[bytes, tuple | None] = {}  # attribute command text -> parsed (None: general path)
+        net_fields: dict[bytes, tuple[str]] = {}  # TO.N value in a run -> the attribute's fields
         self._refresh()
-        while line and not self.done:
-            # ---- the fast path: state in locals, one regex per line
+        while not finished and not self.done:
+            # ---- the fast path: state in locals, one regex per line (or per run of draws)
             version = self.version
-            fast_d01, fast_d02 = self.fast_d01, self.fast_d02
-            div_x, div_y = self.div_x, self.div_y
-            linear = self.interpolation in (None, 1)
-            sink = self.sink
-            px, px_append, py_append = sink.px, sink.px.append, sink.py.append
-            s_start_append, s_width_append = sink.s_start.append, sink.s_width.append
-            s_net_append, s_func_append, s_line_append = sink.s_net.append, sink.s_func.append, sink.s_line.append
-            width, function = self.trace_width, self.trace_function
             fast = self.fast_re if splitter.idle() else None
-            cx, cy, net = self.cx, self.cy, self.net
-            stroke_open, last_op = self.stroke_open, self.last_operation
+            run, simple_run = self.run_re, self.simple_run_re
+            object_attributes, net_index = self.object_attributes, self.net_index
+            stroke, region = self.fast_stroke, self.region
+            div_x, div_y = self.div_x, self.div_y
+            sink = self.sink
+            pending = sink.pending
+            add_x, add_y = pending.xs.append, pending.ys.append
+            s_start, s_width, s_net, s_func, s_line = sink.s_start, sink.s_width, sink.s_net, sink.s_func, sink.s_line
+            width, function = self.trace_width, self.trace_function
+            flash, flash_function, dark, shapes = self.flash_outline, self.flash_function, self.dark, sink.shapes
+            cx, cy, net, pin, component = self.cx, self.cy, self.net, self.pin, self.component
+            stroke_open, last_op, mode = self.stroke_open, self.last_operation, self.interpolation or 1
+            runs = fast is not None and (stroke or region is not None)
             while True:
-                line = readline(READ_CHUNK)
-                if not line:
-                    break
-                last_line = lineno
-                nbytes += len(line)
-                if nbytes > size_limit:
-                    raise self.error(lineno, f"the file is larger than {size_limit} bytes; refusing to read on")
-                if lineno >= next_check:
-                    next_check = lineno + CHECK_EVERY
-                    self._check_limits(lineno)
-                if fast is not None:
-                    m = fast(line)
-                    if m is not None:
-                        g, xs, ys, d = m.groups()
-                        if d == b"1":
-                            if fast_d01 and (g is None or linear):
-                                x = int(xs) / div_x if xs is not None else cx
-                                y = int(ys) / div_y if ys is not None else cy
-                                if not stroke_open:
-                                    s_start_append(len(px))
-                                    px_append(cx)
-                                    py_append(cy)
-                                    s_width_append(width)
-                                    s_net_append(net)
-                                    s_func_append(function)
-                                    s_line_append(lineno)
-                                    stroke_open = True
-                                px_append(x)
-                                py_append(y)
-                                cx = x
-                                cy = y
-                                last_op = 1
-                                lineno += 1
-                                continue
-                        elif fast_d02 and (g is None or linear):
-                            if xs is not None:
-                                cx = int(xs) / div_x
-                            if ys is not None:
-                                cy = int(ys) / div_y
-                            stroke_open = False
-                            if d == b"3":
-                                self.line = lineno
-                                self._flash(cx, cy, lineno)
-                            last_op = 2 if d == b"2" else 3
-                            lineno += 1
+                if runs and mode == 1 and pos >= no_run_before:
+                    # ---- a run of straight draws or region vertices, after at most one net change (TO.N)
+                    # and one D02: kept as text, its points parsed in bulk later
+                    rm = simple_run(buf, pos)  # the common spelling first: the faster expression
+                    n = buf.count(b"\n", pos, rm.end()) if rm is not None else 0
+                    simple = n >= MIN_RUN
+                    if not simple:
+                        rm = run(buf, pos)
+                        n = buf.count(b"\n", pos, rm.end()) if rm is not None else 0
+                    if rm is None:
+                        no_run_before = pos + 1
+                    else:
+                        rend = rm.end()
+                        if lineno + n > next_check:  # the object limits are checked at next_check
+                            n = next_check - lineno
+                            if n > 0:
+                                rend = pos + int(np.flatnonzero(np.frombuffer(buf, np.uint8, rend - pos, pos)
+                                                                == 10)[n - 1]) + 1
+                            else:
+                                n, rend = 0, pos
+                        net_change = rm.start(1) >= 0
+                        lead = rm.start(3) >= 0  # a D02 line: the points start anew at its point
+                        if n < MIN_RUN or nbytes + (rend - pos) > size_limit or (region is not None and (
+                                net_change or (n < MIN_REGION_RUN and (lead or region.current is None or len(
+                                    region.current) < MIN_REGION_RUN)))):  # (a short run in a small contour)
+                            no_run_before = pos + 1 if net_change else rend
+                        else:
+                            ix = buf.rfind(b"X", pos, rend)
+                            iy = buf.rfind(b"Y", pos, rend)
+                            last_x = _NUMBER(buf, ix + 1)[0] if ix >= 0 else None
+                            last_y = _NUMBER(buf, iy + 1)[0] if iy >= 0 else None
+                            if region is None:
+                                if net_change:
+                                    fields = net_fields.get(rm[2])
+                                    if fields is None:
+                                        fields = net_fields[rm[2]] = (rm[2].decode("ascii"),)
+                                    if object_attributes.get(".N") != fields:  # as _apply_attribute does
+                                        stroke_open = False
+                                        object_attributes[".N"] = fields
+                                        net = net_index.get(fields[0])  # as _object_attributes_changed does
+                                        if net is None:
+                                            net = net_index[fields[0]] = len(self.net_names)
+                                            self.net_names.append(fields[0])
+                                        self.net = net
+                                    text = buf[rm.end(1):rend]
+                                else:
+                                    text = buf[pos:rend]
+                                if lead or not stroke_open:
+                                    s_start.append(len(sink.px) + len(pending))
+                                    s_width.append(width)
+                                    s_net.append(net)
+                                    s_func.append(function)
+                                    s_line.append(lineno + net_change + lead)  # the line of its first D01
+                                pending.add_run(text, n - net_change, cx, cy, div_x, div_y,
+                                                not lead and not stroke_open, simple)
+                                stroke_open = True
+                            else:
+                                if lead:
+                                    region.current = None
+                                    region.contour_line = lineno
+                                    contour = self._start_contour(None, None)
+                                else:
+                                    contour = region.current
+                                    if contour is None:
+                                        contour = self._start_contour(cx, cy)
+                                contour.add_run(buf[pos:rend], n, cx, cy, div_x, div_y, False)
+                                region.points += n - lead
+                                if region.points > MAX_REGION_POINTS:
+                                    raise self._too_many_region_points()
+                            if last_x is not None:
+                                cx = _signed(last_x, div_x, region is not None)
+                            if last_y is not None:
+                                cy = _signed(last_y, div_y, region is not None)
+                            last_op = 1
+                            lineno += n
+                            last_line = lineno - 1
+                            nbytes += rend - pos
+                            pos = rend
                             continue
+                # ---- the next line is buf[pos:end] (at most READ_CHUNK bytes, as readline(READ_CHUNK))
+                end = buf.find(b"\n", pos, pos + READ_CHUNK) + 1
+                if not end:
+                    if not eof and len(buf) - pos < READ_CHUNK:
+                        block = read_block(READ_BLOCK)
+                        if block:
+                            buf = buf[pos:] + block
+                            no_run_before -= pos
+                            pos = 0
+                        else:
+                            eof = True
+                        continue
+                    end = min(len(buf), pos + READ_CHUNK)
+                    if end == pos:
+                        finished = True
+                        break
+                if fast is not None:
+                    m = fast(buf, pos, end)
+                    if m is not None:
+                        g, xs, ys, is_, js, d = m.groups()
+                        new_mode = mode if g is None else g[0] - 48
+                        # the old line-at-a-time fast path's lines: their coordinates are int / div
+                        plain = region is None and is_ is None and js is None and (
+                            g is None or (new_mode == 1 and mode == 1))
+                        last_line = lineno
+                        nbytes += end - pos
+                        if nbytes > size_limit:
+                            raise self.error(lineno, f"the file is larger than {size_limit} bytes; refusing to read on")
+                        if lineno >= next_check:
+                            next_check = lineno + CHECK_EVERY
+                            self._check_limits(lineno)
+                        if d == b"1":
+                            if region is not None or stroke:
+                                if plain:
+                                    x = int(xs) / div_x if xs is not None else cx
+                                    cy_ = int(ys) / div_y if ys is not None else cy
+                                else:
+                                    x = _signed(xs, div_x, True) if xs is not None else cx
+                                    cy_ = _signed(ys, div_y, True) if ys is not None else cy
+                                circle = None  # a straight piece; else the arc's circle
+                                if new_mode != 1:
+                                    if self.quadrant is None:
+                                        circle = False  # an arc before G74/G75: the general path says so
+                                    else:
+                                        i = _signed(is_, div_x, True) if is_ is not None else 0.0
+                                        j = _signed(js, div_y, True) if js is not None else 0.0
+                                        self.line = lineno
+                                        try:
+                                            circle = arc_circle(cx, cy, x, cy_, i, j, new_mode == 2,
+                                                                self.quadrant == "single", self.resolution_mm,
+                                                                MAX_COORDINATE_MM)
+                                        except ArcError as exc:
+                                            raise self.error(lineno, str(exc)) from None
+                                if circle is not False:
+                                    if region is not None:
+                                        contour = region.current
+                                        if contour is None:
+                                            contour = self._start_contour(cx, cy)
+                                        if circle is None:
+                                            contour.add(x, cy_)
+                                            region.points += 1
+                                        else:
+                                            region.points += contour.add_arc(cx, cy, x, cy_, circle, False)
+                                        if region.points > MAX_REGION_POINTS:
+                                            raise self._too_many_region_points()
+                                    else:
+                                        if not stroke_open:
+                                            s_start.append(len(sink.px) + len(pending))
+                                            add_x(cx)
+                                            add_y(cy)
+                                            s_width.append(width)
+                                            s_net.append(net)
+                                            s_func.append(function)
+                                            s_line.append(lineno)
+                                            stroke_open = True
+                                        if circle is None:
+                                            add_x(x)
+                                            add_y(cy_)
+                                        else:
+                                            pending.add_arc(cx, cy, x, cy_, circle, False)
+                                        if not plain and len(sink.px) + len(pending) > MAX_TRACE_POINTS:
+                                            self._check_limits(lineno)  # as the general path checks
+                                    cx = x
+                                    cy = cy_
+                                    mode = new_mode
+                                    last_op = 1
+                                    lineno += buf[end - 1] == 10
+                                    pos = end
+                                    continue
+                        elif d == b"2" or (region is None and flash is not None):
+                            if plain:
+                                if xs is not None:
+                                    cx = int(xs) / div_x
+                                if ys is not None:
+                                    cy = int(ys) / div_y
+                            else:
+                                if xs is not None:
+                                    cx = _signed(xs, div_x, True)
+                                if ys is not None:
+                                    cy = _signed(ys, div_y, True)
+                            stroke_open = False
+                            mode = new_mode
+                            if d == b"2":
+                                if region is not None:
+                                    region.current = None
+                                    region.contour_line = lineno
+                                last_op = 2
+                            else:
+                                record = ShapeRecord("pad", flash, cx, cy, net, lineno, flash_function, (cx, cy), pin,
+                                                     component)
+                                if dark:
+                                    shapes.append(record)
+                                else:
+                                    sink.add_clear(record)
+                                if len(shapes) + len(sink.clears) > MAX_SHAPES:
+                                    raise self.error(lineno, f"more than {MAX_SHAPES} pads, regions and other "
+                                                     "shapes: over this reader's limit")
+                                last_op = 3
+                            lineno += buf[end - 1] == 10
+                            pos = end
+                            continue
+                        # anything else: the general path below (its accounting is done)
+                        accounted = True
+                    else:
+                        accounted = False
+                        c = buf[pos]
+                        if c == 37:  # '%': an attribute command on its own line?
+                            am = _ATTRIBUTE_LINE(buf, pos, end)
+                            if am is not None:
+                                key = am[1]
+                                parsed = attributes.get(key, 0)
+                                if parsed == 0:
+                                    parsed = attributes[key] = _parse_attribute_line(key)
+                                if parsed is not None:
+                                    last_line = lineno
+                                    nbytes += end - pos
+                                    if nbytes > size_limit:
+                                        raise self.error(lineno, f"the file is larger than {size_limit} bytes; "
+                                                         "refusing to read on")
+                                    if lineno >= next_check:
+                                        next_check = lineno + CHECK_EVERY
+                                        self._check_limits(lineno)
+                                    self.stroke_open = stroke_open
+                                    self.line = lineno
+                                    self._apply_attribute(*parsed)
+                                    stroke_open, net, pin, component = (self.stroke_open, self.net, self.pin,
+                                                                        self.component)
+                                    lineno += buf[end - 1] == 10
+                                    pos = end
+                                    continue
+                        elif c == 68 or c == 71:  # 'D' or 'G': an aperture selection or G01/G02/G03 alone?
+                            sm = _SELECT_LINE(buf, pos, end)
+                            if sm is not None:
+                                ap = self.apertures.get(int(sm[1])) if sm[1] is not None else None
+                                if ap is not None or sm[2] is not None:
+                                    last_line = lineno
+                                    nbytes += end - pos
+                                    if nbytes > size_limit:
+                                        raise self.error(lineno, f"the file is larger than {size_limit} bytes; "
+                                                         "refusing to read on")
+                                    if lineno >= next_check:
+                                        next_check = lineno + CHECK_EVERY
+                                        self._check_limits(lineno)
+                                    lineno += buf[end - 1] == 10
+                                    pos = end
+                                    if ap is None:
+                                        mode = sm[2][0] - 48
+                                        continue
+                                    if ap is self.aperture:
+                                        continue
+                                    stroke_open = False
+                                    self.aperture = ap
+                                    self._refresh()
+                                    if self.version == version:
+                                        continue
+                                    self.cx, self.cy, self.stroke_open, self.last_operation = cx, cy, stroke_open, last_op
+                                    self.interpolation = mode
+                                    break  # the fast-path state changed: reload it all
+                else:
+                    accounted = False
                 # ---- the general path (a line holding just one command skips the splitter)
+                line = buf[pos:end]
+                pos = end
+                if not accounted:
+                    last_line = lineno
+                    nbytes += len(line)
+                    if nbytes > size_limit:
+                        raise self.error(lineno, f"the file is larger than {size_limit} bytes; refusing to read on")
+                    if lineno >= next_check:
+                        next_check = lineno + CHECK_EVERY
+                        self.cx, self.cy, self.stroke_open = cx, cy, stroke_open
+                        self._check_limits(lineno)
                 self.cx, self.cy, self.stroke_open, self.last_operation = cx, cy, stroke_open, last_op
+                self.interpolation = mode
                 self.line = lineno
                 single = _ONE_WORD(line) if fast is not None or splitter.idle() else None
                 if single is not None:
@@ -384,8 +660,9 @@ class _GerberReader:
                 if self.version != version:
                     break  # what the fast path relies on changed: reload it all
                 fast = self.fast_re if splitter.idle() else None
-                cx, cy, net = self.cx, self.cy, self.net
-                stroke_open, last_op = self.stroke_open, self.last_operation
+                runs = fast is not None and (stroke or region is not None)
+                cx, cy, net, pin, component = self.cx, self.cy, self.net, self.pin, self.component
+                stroke_open, last_op, mode = self.stroke_open, self.last_operation, self.interpolation or 1
         if not self.done:
             try:
                 splitter.finish(last_line)
@@ -411,6 +688,8 @@ class _GerberReader:
 
     def _check_limits(self, line: int) -> None:
         sinks = [self.image] + [s.sink for s in self.statements]
+        for s in sinks:
+            s.flush()
         points = sum(len(s.px) for s in sinks)
         shapes = sum(len(s.shapes) + len(s.clears) for s in sinks)
         if points > MAX_TRACE_POINTS:
@@ -432,19 +711,33 @@ class _GerberReader:
 
     def _refresh(self) -> None:
         """Recompute what the fast path may do in the current state; count a
-        new ``version`` when any of it changed."""
-        ready = self.zeros == "L" and self.unit is not None and self.region is None
+        new ``version`` when any of it changed. The fast path reads D01,
+        D02 and D03 lines once FS and MO are set: draws and arcs
+        (``fast_stroke``: dark, with a solid round aperture of copper),
+        region contours, and flashes of an aperture whose outline under
+        the current LM/LR/LS is already built (``flash_outline``); what it
+        cannot do goes the general way, which reports the errors."""
+        ready = self.zeros == "L" and self.unit is not None
         ap = self.aperture
-        self.fast_d02 = ready
-        self.fast_d01 = (ready and self.dark and self.interpolation in (None, 1) and ap is not None
-                         and ap.round_width is not None and 0 < ap.round_width * self.scale <= MAX_COORDINATE_MM
-                         and not self._dropped(ap.function))
-        if self.fast_d01:
+        in_region = self.region is not None
+        self.fast_stroke = (ready and not in_region and self.dark and ap is not None and ap.round_width is not None
+                            and 0 < ap.round_width * self.scale <= MAX_COORDINATE_MM
+                            and not self._dropped(ap.function))
+        if self.fast_stroke:
             self.trace_width = ap.round_width * self.scale
             self.trace_function = ap.function_index
+        flash = None
+        if ready and not in_region and ap is not None and ap.kind != "block" and not self._dropped(ap.function):
+            flash = ap.outline if is_identity(self.matrix) else self.templates.get((ap.number, self.matrix))
+            if flash is not None and flash.is_empty:
+                flash = None
+        self.flash_outline = flash
+        self.flash_function = ap.function if ap is not None else None
         self.fast_re = _fast_regex(self.div_x, self.div_y) if ready else None
-        state = (self.fast_re, self.fast_d01, self.fast_d02, self.div_x, self.div_y, self.interpolation, self.sink,
-                 self.trace_width, self.trace_function)
+        self.run_re = run_matcher(_digits(self.div_x), _digits(self.div_y), False) if ready else None
+        self.simple_run_re = run_matcher(_digits(self.div_x), _digits(self.div_y), True) if ready else None
+        state = (self.fast_re, self.fast_stroke, in_region, self.div_x, self.div_y, self.sink, self.trace_width,
+                 self.trace_function, ap.number if ap is not None else None, self.dark, id(flash))
         if state != self.fast_state:
             self.fast_state = state
             self.version += 1
@@ -617,14 +910,13 @@ class _GerberReader:
         path = self._path(x, y, i, j, line)
         if self.region is not None:
             region = self.region
-            if region.current is None:
-                region.current = [np.array([[self.cx, self.cy]])]
-                region.contours.append((region.contour_line, region.current))
-            region.current.append(path[1:])
+            contour = region.current
+            if contour is None:
+                contour = self._start_contour(self.cx, self.cy)
+            contour.add_array(path[1:, 0], path[1:, 1])
             region.points += len(path) - 1
             if region.points > MAX_REGION_POINTS:
-                raise self.error(region.line, f"the region statement has more than {MAX_REGION_POINTS} "
-                                 "contour points: over this reader's limit")
+                raise self._too_many_region_points()
             return
         ap = self.aperture
         if ap is None:
@@ -644,17 +936,15 @@ class _GerberReader:
             if self.dark:
                 sink = self.sink
                 if not self.stroke_open:
-                    sink.s_start.append(len(sink.px))
-                    sink.px.append(path[0, 0])
-                    sink.py.append(path[0, 1])
+                    sink.s_start.append(sink.point_count())
+                    sink.pending.add(path[0, 0], path[0, 1])
                     sink.s_width.append(width)
                     sink.s_net.append(self.net)
                     sink.s_func.append(ap.function_index)
                     sink.s_line.append(line)
                     self.stroke_open = True
-                sink.px.extend(path[1:, 0].tolist())
-                sink.py.extend(path[1:, 1].tolist())
-                if len(sink.px) > MAX_TRACE_POINTS:
+                sink.pending.add_array(path[1:, 0], path[1:, 1])
+                if sink.point_count() > MAX_TRACE_POINTS:
                     self._check_limits(line)
             else:
                 self._add(ShapeRecord("draw", stroke_outline(path, width), 0.0, 0.0, self.net, line,
@@ -732,13 +1022,27 @@ class _GerberReader:
         if self.region is not None:
             self.region.current = None
 
+    def _start_contour(self, x: float | None, y: float | None) -> PointChunks:
+        """A new contour of the open region, starting at (x, y) (``None``:
+        its first point is still to come)."""
+        region = self.region
+        contour = region.current = PointChunks(negate_after=True)
+        if x is not None:
+            contour.add(x, y)
+        region.contours.append((region.contour_line, contour))
+        return contour
+
+    def _too_many_region_points(self) -> FabError:
+        return self.error(self.region.line, f"the region statement has more than {MAX_REGION_POINTS} "
+                          "contour points: over this reader's limit")
+
     def _close_region(self, line: int) -> None:
         region = self.region
         self.region = None
         self._break_stroke()
         function = self._aperture_function()
-        for start_line, parts in region.contours:
-            points = np.vstack(parts)
+        for start_line, contour in region.contours:
+            points = np.column_stack(contour.take())
             try:
                 polygon = contour_polygon(points)
             except GEOSException as exc:
@@ -1057,7 +1361,7 @@ class _GerberReader:
         nx, ny, step_x, step_y = st.repeat
         copies = nx * ny
         body = st.sink
-        if (len(st.parent.px) + copies * len(body.px) > MAX_TRACE_POINTS
+        if (st.parent.point_count() + copies * body.point_count() > MAX_TRACE_POINTS
                 or len(st.parent.shapes) + copies * (len(body.shapes) + len(body.clears)) > MAX_SHAPES):
             raise self.error(st.line, f"the step and repeat opened here makes {copies} copies: more objects "
                              "than this reader's limits")
@@ -1077,6 +1381,9 @@ class _GerberReader:
             code, name, fields = parse_attribute(text)
         except AttributeSyntaxError as exc:
             raise self.error(line, str(exc)) from None
+        self._apply_attribute(code, name, fields)
+
+    def _apply_attribute(self, code: str, name: str | None, fields: tuple[str, ...]) -> None:
         if code == "TF":
             if name == ".FileFunction":
                 self.file_function = fields

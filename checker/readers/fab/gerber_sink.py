@@ -24,6 +24,7 @@ import numpy as np
 import shapely
 
 from .gerber_apertures import EMPTY, apply_matrix, disc, stadium
+from .gerber_runs import PointChunks
 
 
 @dataclass(slots=True)
@@ -80,6 +81,13 @@ class ObjectSink:
     carries net ``s_net[s]`` and aperture-function index ``s_func[s]``
     (-1: none), and starts on file line ``s_line[s]``. A stroke of one point
     repeated (a zero-length draw) is a dot.
+
+    New points go to ``pending`` (:class:`~.gerber_runs.PointChunks`: some
+    kept as the text of a run of draws, parsed later in bulk) and reach
+    ``px``, ``py`` at :meth:`flush`; every point in ``px`` precedes every
+    pending one. Stroke records (``s_start`` ...) are written at once, with
+    ``s_start`` counting pending points too (:meth:`point_count`). Whoever
+    reads ``px``/``py`` flushes first.
     """
 
     def __init__(self) -> None:
@@ -92,9 +100,20 @@ class ObjectSink:
         self.s_line = array("q")
         self.shapes: list[ShapeRecord] = []
         self.clears: list[ShapeRecord] = []
+        self.pending = PointChunks()
 
     def stroke_count(self) -> int:
         return len(self.s_start)
+
+    def point_count(self) -> int:
+        return len(self.px) + len(self.pending)
+
+    def flush(self) -> None:
+        """Move the pending points into ``px``, ``py``."""
+        if len(self.pending):
+            x, y = self.pending.take()
+            self.px.frombytes(x.tobytes())
+            self.py.frombytes(y.tobytes())
 
     def stroke_points(self, s: int) -> np.ndarray:
         start = self.s_start[s]
@@ -114,6 +133,8 @@ class ObjectSink:
         """Append this sink's objects to ``dst`` under ``x' = a x + b y + dx,
         y' = d x + e y + dy`` (``m`` = (a, b, d, e); stroke widths scale by
         ``sqrt(|ad - be|)``), with every polarity toggled if ``toggle``."""
+        self.flush()
+        dst.flush()
         a, b, d, e = m
         scale = math.sqrt(abs(a * e - b * d))
         n = len(self.px)
