@@ -22,6 +22,7 @@ straight-sided shapes are exact anyway.
 
 from __future__ import annotations
 
+import functools
 import math
 
 import numpy as np
@@ -71,13 +72,23 @@ def half_disc_points(cx: float, cy: float, radius: float, start: float) -> np.nd
     ``pi r^2 / 2``: with ``D = pi / k``,
     ``(k - 2) rho^2 + 2 r rho = pi r^2 / sin D``, so
     ``rho = r (sqrt(1 + (k - 2) pi / sin D) - 1) / (k - 2)``."""
+    dx, dy = _half_disc_offsets(radius, start)
+    return np.column_stack((cx + dx, cy + dy))
+
+
+@functools.lru_cache(maxsize=4096)
+def _half_disc_offsets(radius: float, start: float) -> tuple[np.ndarray, np.ndarray]:
+    """The points of :func:`half_disc_points` relative to the centre
+    (cached: every draw of one width has the same ends; read-only arrays)."""
     k = disc_vertex_count(radius) // 2
     step = math.pi / k
     rho = radius * (math.sqrt(1 + (k - 2) * math.pi / math.sin(step)) - 1) / (k - 2)
     t = start + step * np.arange(k + 1)
     rad = np.full(k + 1, rho)
     rad[0] = rad[-1] = radius
-    return np.column_stack((cx + rad * np.cos(t), cy + rad * np.sin(t)))
+    dx, dy = rad * np.cos(t), rad * np.sin(t)
+    dx.flags.writeable = dy.flags.writeable = False
+    return dx, dy
 
 
 def obround(width: float, height: float) -> shapely.Polygon:
@@ -106,7 +117,17 @@ def stadium(x1: float, y1: float, x2: float, y2: float, width: float) -> shapely
     if length == 0:
         return disc(x1, y1, width / 2)
     c, s = (x2 - x1) / length, (y2 - y1) / length
-    return apply_matrix(obround(length + width, width), (c, -s, s, c), (x1 + x2) / 2, (y1 + y2) / 2)
+    long, short = length + width, width
+    if long == short:  # too short to show at this width: a disc
+        return apply_matrix(obround(long, short), (c, -s, s, c), (x1 + x2) / 2, (y1 + y2) / 2)
+    # obround(long, short) moved by apply_matrix, with the same arithmetic, without building it twice
+    r, a = short / 2, (long - short) / 2
+    rx, ry = _half_disc_offsets(r, -math.pi / 2)
+    lx, ly = _half_disc_offsets(r, math.pi / 2)
+    x = np.concatenate((a + rx, -a + lx))
+    y = np.concatenate((0.0 + ry, 0.0 + ly))
+    mx, my = (x1 + x2) / 2, (y1 + y2) / 2
+    return shapely.polygons(np.column_stack((c * x + -s * y + mx, s * x + c * y + my)))
 
 
 def regular_polygon(cx: float, cy: float, diameter: float, vertices: int, rotation_deg: float) -> shapely.Polygon:

@@ -55,10 +55,26 @@ def arc_points(x0: float, y0: float, x1: float, y1: float, i: float, j: float,
     """Chord points (n + 1, 2) of the arc from (x0, y0) to (x1, y1), mm;
     the first and last points are exactly the start and end points.
     Raises :class:`ArcError` for an arc with no valid interpretation."""
+    circle = arc_circle(x0, y0, x1, y1, i, j, clockwise, single_quadrant, resolution_mm, max_coordinate_mm)
+    if circle is None:
+        return np.array([[x0, y0], [x1, y1]])
+    pts = arc_polyline(*circle)
+    pts[0] = (x0, y0)
+    pts[-1] = (x1, y1)
+    return pts
+
+
+def arc_circle(x0: float, y0: float, x1: float, y1: float, i: float, j: float,
+               clockwise: bool, single_quadrant: bool, resolution_mm: float,
+               max_coordinate_mm: float) -> tuple[float, float, float, float, float] | None:
+    """The arc of :func:`arc_points` as (centre x, centre y, radius, start
+    angle, signed sweep) for :func:`~checker.readers.arcs.arc_polyline`, or
+    ``None`` when it is the straight piece from start to end (a zero-degree
+    arc). Raises :class:`ArcError` as :func:`arc_points` does."""
     same = x0 == x1 and y0 == y1
     if single_quadrant:
         if same:
-            return np.array([[x0, y0], [x1, y1]])
+            return None
         best = None
         for sx in ((1.0,) if i == 0 else (1.0, -1.0)):
             for sy in ((1.0,) if j == 0 else (1.0, -1.0)):
@@ -93,8 +109,5 @@ def arc_points(x0: float, y0: float, x1: float, y1: float, i: float, j: float,
         raise ArcError(f"the arc around centre ({cx:g}, {cy:g}) with radius {r0:g} mm reaches more "
                        "than 10 m from the origin")
     if sweep == 0:
-        return np.array([[x0, y0], [x1, y1]])
-    pts = arc_polyline(cx, cy, r0, a0, sweep)
-    pts[0] = (x0, y0)
-    pts[-1] = (x1, y1)
-    return pts
+        return None
+    return cx, cy, r0, a0, sweep
