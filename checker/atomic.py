@@ -42,6 +42,19 @@ def refuse_overwriting_inputs(out: str | os.PathLike, inputs: list[str | os.Path
             raise UsageError(f"{out}: an output path names a file of the input folder {p}; refusing to overwrite it")
 
 
+def refuse_shared_outputs(named: list[tuple[str, str | os.PathLike | None]]) -> None:
+    """Raise :class:`UsageError` if two options (``("--out", path)``, ...)
+    name the same output file: the second write would replace the first."""
+    seen: dict[str, str] = {}
+    for option, path in named:
+        if not path:
+            continue
+        real = os.path.realpath(path)
+        if real in seen:
+            raise UsageError(f"{path}: {seen[real]} and {option} name the same file; give each output its own path")
+        seen[real] = option
+
+
 def _mode_for(target: Path) -> int:
     """Keep an existing file's permissions; a new file gets the usual
     0o666 less the umask (mkstemp's private 0o600 is not wanted for reports)."""

@@ -17,7 +17,7 @@ from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
 from . import __version__, batch
-from .atomic import refuse_overwriting_inputs, write_atomically
+from .atomic import refuse_overwriting_inputs, refuse_shared_outputs, write_atomically
 from .errors import CouplintError, UsageError
 from .review import DEFAULT_WAIVER_FILE, FAIL_ON, TODAY_ENV
 
@@ -161,6 +161,7 @@ def _check(board_paths: list[str], args: argparse.Namespace) -> int:
     from .ruleset import default_ruleset, load_ruleset
     from .runner import check_board
 
+    refuse_shared_outputs([("--out", args.out), ("--svg", args.svg), ("--html", args.html), ("--junit", args.junit)])
     outputs = [p for p in (args.out, args.svg, args.html, args.junit) if p]
     inputs = list(board_paths) + [p for p in (args.rules, args.waivers, args.baseline, getattr(args, "stackup", None),
                                                 getattr(args, "netlist", None)) if p]

@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 import subprocess
 import sys
+from pathlib import Path
 
 import pytest
 
@@ -262,3 +263,13 @@ def test_batch_subcommand_is_wired(tmp_path, capsys):
     report = json.loads((tmp_path / "reports" / "demo.json").read_text())
     assert summary["boards"][0]["findings"] == len(report["findings"]) > 0
     assert (tmp_path / "reports" / "demo.json").exists()
+
+
+def test_two_outputs_on_one_path_are_refused_before_any_work(capsys, tmp_path):
+    # --out x.json --svg x.json: the second write would silently replace the first
+    target = tmp_path / "x.json"
+    board = Path(__file__).resolve().parents[1] / "fixtures" / "two_layer_parallel.json"
+    code = main(["check", str(board), "--format", "json", "--out", str(target),
+                 "--svg", str(target)])
+    err = capsys.readouterr().err
+    assert code == 2 and "--out and --svg name the same file" in err and not target.exists()
