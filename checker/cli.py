@@ -19,6 +19,7 @@ from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, T
 from . import __version__, batch
 from .atomic import refuse_overwriting_inputs, refuse_shared_outputs, write_atomically
 from .errors import CouplintError, UsageError
+from .report.visible import visible
 from .review import DEFAULT_WAIVER_FILE, FAIL_ON, TODAY_ENV
 
 EXIT_CLEAN, EXIT_FINDINGS, EXIT_BAD_INPUT, EXIT_INTERNAL = 0, 1, 2, 3
@@ -119,7 +120,7 @@ def main(argv: list[str] | None = None) -> int:
         board_paths = [str(demo_board_path())] if args.command == "demo" else args.board
         return _check(board_paths, args)
     except CouplintError as exc:
-        print(f"couplint: error: {exc}", file=sys.stderr)
+        print(f"couplint: error: {visible(str(exc), keep_lines=True)}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except BrokenPipeError:  # e.g. piped into `head`: stop quietly
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())

@@ -273,3 +273,26 @@ def test_two_outputs_on_one_path_are_refused_before_any_work(capsys, tmp_path):
                  "--svg", str(target)])
     err = capsys.readouterr().err
     assert code == 2 and "--out and --svg name the same file" in err and not target.exists()
+
+
+def test_control_characters_in_names_never_reach_the_terminal_or_the_page_raw(capsys, tmp_path):
+    # A net name carrying ESC sequences (set the window title, clear the
+    # screen) and BEL: ECMA-48 makes ESC (0x1b) start a control sequence and
+    # BEL (0x07) end an OSC string; shown as \x1b / \x07 text instead.
+    board = json.loads((Path(__file__).resolve().parents[1] / "fixtures" / "two_layer_parallel.json").read_text())
+    hostile = "CLK_A\x1b]0;pwned\x07\x1b[2J"
+    board["nets"] = [dict(n, name=hostile) if n["name"] == "CLK_A" else n for n in board["nets"]]
+    for key in ("tracks", "arcs", "regions", "vias"):
+        for item in board.get(key, []):
+            if item.get("net") == "CLK_A":
+                item["net"] = hostile
+    path = tmp_path / "hostile.json"
+    path.write_text(json.dumps(board))
+    html_path = tmp_path / "r.html"
+    code = main(["check", str(path), "--html", str(html_path)])
+    out, err = capsys.readouterr()
+    assert code == 1
+    assert "\x1b" not in out + err and "\x07" not in out + err
+    assert "CLK_A\\x1b]0;pwned\\x07\\x1b[2J" in out
+    page = html_path.read_text()
+    assert "\x1b" not in page and "\x07" not in page and "CLK_A\\x1b]0;pwned" in page

@@ -30,6 +30,7 @@ from ..runner import Result
 from . import CAUTION
 from .json_report import summary
 from .svg import finding_number, render_svg
+from .visible import visible
 
 #: How many coupled net pairs the ranking shows.
 TOP_PAIRS = 20
@@ -55,8 +56,9 @@ VERDICT_TITLE = {"pass": "PASS", "pass with waivers": "PASS WITH WAIVERS", "fail
 
 
 def _e(value: object) -> str:
-    """Text (or an attribute value) made safe for HTML."""
-    return html.escape(str(value), quote=True)
+    """Text (or an attribute value) made safe for HTML: control characters
+    shown as backslash-x escapes (a page must not carry ESC, BEL or NUL), then escaped."""
+    return html.escape(visible(str(value)), quote=True)
 
 
 def render_html(result: Result, *, inputs: list[str], generated: str | None = None) -> str:

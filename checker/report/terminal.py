@@ -9,6 +9,7 @@ from rich.table import Table
 
 from ..runner import Result
 from . import CAUTION
+from .visible import visible
 from .json_report import summary
 
 SEVERITY_STYLE = {"error": "bold red", "warning": "yellow"}
@@ -44,7 +45,7 @@ def _render_files(board, console: Console) -> None:
     for column in ("file", "read as", "how"):
         table.add_column(column, overflow="fold")
     for name, read_as, how in board.files:
-        table.add_row(escape(name.rsplit("/", 1)[-1]), escape(read_as), escape(how))
+        table.add_row(*(escape(visible(v)) for v in (name.rsplit("/", 1)[-1], read_as, how)))
     console.print(table)
 
 
@@ -52,7 +53,7 @@ def render(result: Result, console: Console) -> None:
     a = result.analysis
     review = result.review
     with_baseline = review.baseline is not None
-    title = f"{a.board.name} ({a.board.path})"
+    title = escape(visible(f"{a.board.name} ({a.board.path})"))
     if result.findings:
         table = Table(title=title, title_justify="left", expand=False)
         table.add_column("#", justify="right")
@@ -68,26 +69,26 @@ def render(result: Result, console: Console) -> None:
             limit = _value(f.limit, f.unit) if f.unit in ("mm", "pF", "mV") else f"{f.limit:g} ({f.unit})"
             status = review.status.get(f.id, "new")
             cells = [str(i)] + ([f"[{STATUS_STYLE[status]}]{status}[/]"] if with_baseline else []) + [
-                _severity(f, f.id in review.waived), f.rule, f"{f.aggressor} -> {f.victim}", "/".join(f.layers),
+                _severity(f, f.id in review.waived), f.rule, escape(visible(f"{f.aggressor} -> {f.victim}")), escape(visible("/".join(f.layers))),
                 f"{_value(f.value, f.unit)} / {limit}", f"{f.at[0]:.2f}, {f.at[1]:.2f}",
             ]
             table.add_row(*cells, style="dim" if f.id in review.waived else None)
         console.print(table)
         for i, f in enumerate(result.findings, 1):
-            console.print(f"{i:>3}. [{f.id}] {f.message}", highlight=False, markup=False)
+            console.print(visible(f"{i:>3}. [{f.id}] {f.message}"), highlight=False, markup=False)
             if f.coupling_path:
-                console.print(f"     path: {f.coupling_path}", highlight=False, markup=False)
+                console.print(visible(f"     path: {f.coupling_path}"), highlight=False, markup=False)
             if f.suggestion:
-                console.print(f"     what if: {f.suggestion}", highlight=False, markup=False)
+                console.print(visible(f"     what if: {f.suggestion}"), highlight=False, markup=False)
             w = review.waived.get(f.id)
             if w is not None:
-                console.print(f"     waived: {_waiver_line(w)}", style="dim", highlight=False, markup=False)
+                console.print(visible(f"     waived: {_waiver_line(w)}"), style="dim", highlight=False, markup=False)
     else:
         console.print(f"{title}: no findings", highlight=False)
     _render_victims(result, console)
     _render_files(a.board, console)
     for note in sorted(set(a.notes)):
-        console.print(f"[dim]note: {escape(note)}[/]", highlight=False)
+        console.print(f"[dim]note: {escape(visible(note))}[/]", highlight=False)
     _render_review(result, console)
     s = summary(result)
     per_rule = ", ".join(f"{k} {v}" for k, v in s["findings_by_rule"].items())
@@ -121,7 +122,7 @@ def _render_victims(result: Result, console: Console) -> None:
             mark = "ok  " if v.passes else "FAIL"
             more = f" and {v.aggressors - 1} more" if v.aggressors > 1 else ""
             raw = f"; {v.unfiltered_mv:.3g} mV unfiltered" if v.unfiltered_mv >= 0 else ""
-            console.print(f"  {mark} {v.victim}: {v.noise_mv:.3g} mV ({v.model}; from {v.worst_aggressor}{more}{raw})",
+            console.print(visible(f"  {mark} {v.victim}: {v.noise_mv:.3g} mV ({v.model}; from {v.worst_aggressor}{more}{raw})"),
                           highlight=False, markup=False)
         if len(mine) > VICTIM_ROWS:
             console.print(f"  ... {len(mine) - VICTIM_ROWS} more victims in the JSON report (victim_noise)",
@@ -137,20 +138,20 @@ def _render_review(result: Result, console: Console) -> None:
     """Expired and unused waivers, and findings of the baseline that are gone."""
     review = result.review
     if review.waiver_file is not None and (review.expired or review.unused):
-        console.print(f"waivers in {review.waiver_file}:", highlight=False, markup=False)
+        console.print(visible(f"waivers in {review.waiver_file}:"), highlight=False, markup=False)
         for w in review.expired:
             n = len(review.covers.get(w, []))
             would = f"would cover {n} finding{'s' if n != 1 else ''}" if n else "matches no finding either"
-            console.print(f"  [yellow]expired[/] {escape(w.source)}: {escape(w.describe())}, expired {w.expires} "
+            console.print(f"  [yellow]expired[/] {escape(visible(w.source))}: {escape(visible(w.describe()))}, expired {w.expires} "
                           f"({would}; not applied)", highlight=False)
         for w in review.unused:
-            console.print(f"  [yellow]unused[/]  {escape(w.source)}: {escape(w.describe())} matches no finding "
+            console.print(f"  [yellow]unused[/]  {escape(visible(w.source))}: {escape(visible(w.describe()))} matches no finding "
                           f"(fixed, or a wrong id or pattern?)", highlight=False)
     if review.baseline is not None and review.fixed:
-        console.print(f"fixed since the baseline {review.baseline}:", highlight=False, markup=False)
+        console.print(visible(f"fixed since the baseline {review.baseline}:"), highlight=False, markup=False)
         for f in review.fixed:
             text = f"[{f['id']}] {f['rule']}: {f['aggressor']} -> {f['victim']} on {'/'.join(f['layers'])}"
-            console.print(f"  [green]fixed[/] {escape(text)}", highlight=False)
+            console.print(f"  [green]fixed[/] {escape(visible(text))}", highlight=False)
 
 
 def _verdict_line(result: Result, s: dict) -> str:
