@@ -165,3 +165,20 @@ def test_a_lone_xml_file_that_is_no_ipc2581_says_so_naming_itself(capsys, tmp_pa
     code, _, err = run(capsys, "check", path)
     assert code == 2 and str(path) in err and words in err and "Traceback" not in err
     assert "Gerber job file" not in err
+
+
+@pytest.mark.parametrize(("name", "content", "words"), [
+    ("six-layer-fab-L1.gbr", b"x", "six-layer-fab-L1.gbr: line 1: the file ends inside the command"),
+    ("six-layer-fab-L1.gbr", b"", "six-layer-fab-L1.gbr: line 1: the file ends without M02"),
+    ("six-layer-fab-L2.gbr", "G04 a*\n%FSLAX46Y46*%\n".encode("utf-16"), "six-layer-fab-L2.gbr: line 1: byte 0xFF"),
+    ("six-layer-fab.gbrjob", b'{"Header": {"GenerationSoftware": {"Vendor": "x"', "six-layer-fab.gbrjob: "),
+])
+def test_a_damaged_file_is_named_not_reported_missing(capsys, tmp_path, name, content, words):
+    # a cut-short, empty or UTF-16 file whose name says what it is: its own
+    # reader refuses it, naming it, instead of "no Gerber file for L1" / "no job file"
+    folder = tmp_path / "damaged"
+    shutil.copytree(SIX, folder)
+    (folder / name).write_bytes(content)
+    code, _, err = run(capsys, "check", folder)
+    assert code == 2 and words in err and "Traceback" not in err
+    assert "no Gerber file for copper layer" not in err and "no Gerber job file" not in err

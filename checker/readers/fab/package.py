@@ -126,6 +126,8 @@ def collect(paths: list[str], layer_overrides: dict[str, str] | None = None) -> 
         kind = _kind(head, m.stem, m)
         if kind is None and len(members) == 1 and (m.name.lower().endswith(".xml") or head.lstrip().startswith(b"<")):
             kind = "ipc2581"  # one XML file given alone: its reader says what is wrong with it
+        elif kind is None:
+            kind = _kind_by_name(m, common)  # a damaged file its name vouches for: its reader names the fault
         if override is not None and kind not in ("gerber", None):
             raise UsageError(f"--layer {m.name}={override}: the file is {_KIND_WORDS[kind]}, not a Gerber layer")
         if kind in ("job", "drill", "netlist", "ipc2581"):
@@ -170,6 +172,21 @@ def collect(paths: list[str], layer_overrides: dict[str, str] | None = None) -> 
     if unknown:
         raise UsageError(f"--layer {unknown[0]}=...: no file of that name in the package")
     return Sorted(name, where, copper, profile, drills, jobs, netlists, skipped, ipc2581, guessed, read_as)
+
+
+def _kind_by_name(m: Member, common: str) -> str | None:
+    """The format a file's name vouches for when its content matches none
+    (cut short, empty, another encoding): ``.gbrjob`` is a job file, a name
+    that says copper (couplint's ``-L<n>`` rule or the trade's conventions)
+    a Gerber file. Its reader then refuses it naming the file, instead of
+    the package seeming to lack it."""
+    base = Path(m.name.rsplit(":", 1)[-1]).name
+    if base.lower().endswith(".gbrjob"):
+        return "job"
+    guess = from_name(m.name, common)
+    if _NAMED_COPPER.search(m.stem) or (guess is not None and guess.kind == "copper"):
+        return "gerber"
+    return None
 
 
 def _common_stem(names: list[str]) -> str:
