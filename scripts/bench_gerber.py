@@ -7,7 +7,7 @@ peak memory (max RSS, from ``resource.getrusage``) is its own. The cases:
 * ``draws``: one copper layer of N linear draws (default 1 000 000), each a
   ``X..Y..D01*`` line, with a ``TO.N`` net attribute changing every 20
   draws, coordinates in format 4.6 mm;
-* ``export``: an export-like copper layer (about 1.5 MB) with the traits of
+* ``export``: an export-like copper layer (about 2 MB) with the traits of
   real exports: one X2 attribute, no net attributes, about 300 apertures
   (circles, rectangles, obrounds, rounded-rectangle macros built from an
   outline, circles and vector lines, rotated outline and obround macros),
@@ -18,6 +18,9 @@ peak memory (max RSS, from ``resource.getrusage``) is its own. The cases:
   clearing the board edge, and LPC clearances (flashes and draws)
   cutting the pours, some alternating LPC/LPD object by object;
 * ``export-inch``: the same board written in %FSLAX36Y36*% %MOIN*%;
+  ``--scale`` multiplies the board area and every object count of these
+  (the density stays the same), so equal rates at scales 1, 2 and 4 show
+  that the read time grows linearly;
 * ``pour``: four big regions, about 100 000 contour vertices in all (with
   arcs and cut-in holes), cut by 5 000 LPC anti-pads, four LPC regions of
   3 000 vertices (plane splits) and 1 500 LPC clearance draws;
@@ -36,7 +39,7 @@ printed, since timing on a shared machine varies by tens of percent.
 
     python scripts/bench_gerber.py                     # all cases, 5 runs each
     python scripts/bench_gerber.py --draws 200000 --seed 3 --repeat 3
-    python scripts/bench_gerber.py --cases export,pour
+    python scripts/bench_gerber.py --cases export,pour --scale 1,2,4 --repeat 3
     python scripts/bench_gerber.py --profile export    # cProfile of one read, top 30
 
 Floors (the reader's issue): at least 1 000 000 draws per second per core
@@ -66,7 +69,7 @@ HEADER = "%TF.FileFunction,Copper,L{n},{side}*%\n%TF.FilePolarity,{polarity}*%\n
 
 
 def _um(v: float) -> int:
-    return int(round(v * 1e6))
+    return round(v * 1e6)
 
 
 def write_draws(path: Path, draws: int, seed: int) -> int:
@@ -161,7 +164,7 @@ class _Writer:
 
     def c(self, v: float) -> int:
         """A coordinate (mm) in file units."""
-        return int(round((v / 25.4 if self.inch else v) * 1e6))
+        return round((v / 25.4 if self.inch else v) * 1e6)
 
     def size(self, v: float) -> str:
         """An aperture or macro size (mm) in the file unit, 6 decimals."""
@@ -287,7 +290,10 @@ def write_export_like(path: Path, seed: int, inch: bool = False, scale: float = 
     stays the same; 1.0: about 1.8 MB). Returns the number of operations."""
     rng = random.Random(seed)
     w = _Writer(inch)
-    n = lambda k: max(1, int(k * scale))  # noqa: E731
+
+    def n(k: int) -> int:
+        return max(1, int(k * scale))
+
     w("G04 Invented export-like layer for bench_gerber.py*\n")
     w("G04 Layer_Physical_Order=1*\n")
     w("%TF.FileFunction,Copper,L1,Top*%\n")
@@ -506,6 +512,24 @@ def _spread(values: list[float], fmt: str) -> str:
 
 
 CASES = ("draws", "export", "export-inch", "pour", "six-layer")
+SCALED = ("export", "export-inch", "pour")
+
+
+def _write_case(case: str, scale: float, tmp: Path, args) -> tuple[list[Path], int, str]:
+    """Write one case's files: (paths, operations, description)."""
+    tag = f" x{scale:g}" if scale != 1 else ""
+    if case == "draws":
+        p = tmp / "draws.gbr"
+        return [p], write_draws(p, args.draws, args.seed), f"{args.draws} draws, format 4.6 mm, net change every 20"
+    if case in ("export", "export-inch"):
+        p = tmp / f"{case}-{scale:g}.gbr"
+        ops = write_export_like(p, args.seed, inch=case == "export-inch", scale=scale)
+        return [p], ops, f"export-like layer{tag}, " + ("3.6 inch" if case == "export-inch" else "4.6 mm")
+    if case == "pour":
+        p = tmp / f"pour-{scale:g}.gbr"
+        return [p], write_big_pour(p, args.seed, scale=scale), f"pour regions{tag} cut by LPC objects"
+    paths, ops = write_layer_set(tmp, args.seed)
+    return paths, ops, "six-layer set, all six files"
 
 
 def main(argv=None) -> int:
@@ -514,8 +538,10 @@ def main(argv=None) -> int:
     parser.add_argument("--seed", type=int, default=1)
     parser.add_argument("--repeat", type=int, default=5, help="runs of each case, alternating (default 5)")
     parser.add_argument("--cases", default=",".join(CASES), help=f"comma-separated subset of {','.join(CASES)}")
-    parser.add_argument("--scale", type=float, default=1.0,
-                        help="object-count factor of the export and pour cases (default 1)")
+    parser.add_argument("--scale", default="1",
+                        help="comma-separated factors of the board area and object counts of the export and pour "
+                             "cases, each run as its own case (default 1; e.g. 1,2,4 to see that time grows "
+                             "linearly)")
     parser.add_argument("--profile", choices=CASES, help="print a cProfile of one read of this case instead")
     parser.add_argument("--keep", type=Path, help="write the files into this directory and keep them")
     parser.add_argument("--measure", nargs="*", help=argparse.SUPPRESS)
@@ -527,53 +553,48 @@ def main(argv=None) -> int:
     unknown = sorted(set(cases) - set(CASES))
     if unknown:
         parser.error(f"unknown case(s) {', '.join(unknown)}; the cases are {', '.join(CASES)}")
+    try:
+        scales = [float(v) for v in args.scale.split(",") if v]
+    except ValueError:
+        parser.error(f"--scale takes numbers separated by commas, not {args.scale!r}")
+    if not scales or min(scales) <= 0:
+        parser.error("--scale factors must be greater than 0")
     if args.profile:
-        cases = [args.profile]
+        cases, scales = [args.profile], scales[:1]
     with tempfile.TemporaryDirectory() as tmp:
         tmp = args.keep or Path(tmp)
         tmp.mkdir(parents=True, exist_ok=True)
-        files: dict[str, tuple[list[Path], int, str]] = {}
+        files: dict[tuple[str, float], tuple[list[Path], int, str]] = {}
         for case in cases:
-            if case == "draws":
-                p = tmp / "draws.gbr"
-                ops = write_draws(p, args.draws, args.seed)
-                files[case] = ([p], ops, f"{args.draws} draws, format 4.6 mm, net change every 20 draws")
-            elif case in ("export", "export-inch"):
-                p = tmp / f"{case}.gbr"
-                ops = write_export_like(p, args.seed, inch=case == "export-inch", scale=args.scale)
-                files[case] = ([p], ops, "export-like layer, " + ("3.6 inch" if case == "export-inch" else "4.6 mm"))
-            elif case == "pour":
-                p = tmp / "pour.gbr"
-                ops = write_big_pour(p, args.seed, scale=args.scale)
-                files[case] = ([p], ops, "big pour regions cut by LPC anti-pads, regions and draws")
-            else:
-                paths, ops = write_layer_set(tmp, args.seed)
-                files[case] = (paths, ops, "six-layer set, all six files")
+            for scale in (scales if case in SCALED else [1.0]):
+                files[case, scale] = _write_case(case, scale, tmp, args)
         if args.profile:
-            _profile(files[args.profile][0], 30)
+            _profile(next(iter(files.values()))[0], 30)
             return 0
-        runs: dict[str, list[dict]] = {c: [] for c in cases}
+        runs: dict[tuple[str, float], list[dict]] = {key: [] for key in files}
         for _ in range(args.repeat):
-            for case in cases:  # alternate the cases, so a slow spell hits them all
-                runs[case].append(_child(files[case][0]))
-        baseline = [_child([]) for _ in range(min(3, args.repeat))]
-        print(f"{args.repeat} run(s) per case, each in a fresh process; median (min-max). Read time excludes "
-              f"interpreter start and import (import alone: median {_spread([b['import_s'] for b in baseline], '.2f')} s, "
-              f"whole process {_spread([b['process_s'] for b in baseline], '.2f')} s).")
-        for case in cases:
-            paths, ops, what = files[case]
+            for key in files:  # alternate the cases, so a slow spell hits them all
+                runs[key].append(_child(files[key][0]))
+        baseline = [_child([]) for _ in range(min(3, max(args.repeat, 1)))]
+        print(f"{args.repeat} run(s) per case, each in a fresh process, cases alternating; median (min-max). The read "
+              f"time excludes interpreter start and import (import alone: "
+              f"{_spread([b['import_s'] for b in baseline], '.2f')} s; a process that only starts and imports: "
+              f"{_spread([b['process_s'] for b in baseline], '.2f')} s).")
+        for key, rs in runs.items():
+            if not rs:
+                continue
+            paths, ops, what = files[key]
             size_mb = sum(p.stat().st_size for p in paths) / 1e6
-            rs = runs[case]
             read = [r["read_s"] for r in rs]
-            rates = [ops / s for s in read]
             last = rs[-1]
-            unit = "draws/s" if case == "draws" else "ops/s"
-            count = ops if case != "draws" else args.draws
-            rate_values = [count / s for s in read] if case == "draws" else rates
-            print(f"{case:11s} {what} ({size_mb:.1f} MB, {ops} D01/D02/D03): read {_spread(read, '.3f')} s, "
-                  f"{_spread([v / 1e6 for v in rate_values], '.2f')} M {unit}; whole process "
-                  f"{_spread([r['process_s'] for r in rs], '.2f')} s; peak RSS {last['peak_rss_mb']:.0f} MB; "
-                  f"{last['pieces']} pieces, {last['shapes']} shapes, {last['nets']} nets")
+            if key[0] == "draws":
+                rate = f"{_spread([args.draws / s / 1e6 for s in read], '.2f')} M draws/s"
+            else:
+                rate = f"{_spread([ops / s / 1e6 for s in read], '.3f')} M ops/s"
+            print(f"{what} ({size_mb:.1f} MB, {ops} D01/D02/D03 ops): read {_spread(read, '.3f')} s = {rate}; "
+                  f"whole process {_spread([r['process_s'] for r in rs], '.2f')} s; peak RSS "
+                  f"{last['peak_rss_mb']:.0f} MB; out: {last['pieces']} trace pieces, {last['shapes']} shapes, "
+                  f"{last['nets']} nets")
         print(f"(a process that only imports the reader peaks at {baseline[0]['peak_rss_mb']:.0f} MB)")
     return 0
 

@@ -2,12 +2,22 @@
 :class:`~checker.readers.fab.layer.GerberLayer` out.
 
 Follows the Gerber Layer Format Specification, revision 2021.02 (Ucamco);
-section numbers below refer to it. The file is read once, line by line, in
-time linear in its size: a precompiled regular expression takes the common
-``X..Y..D01*`` / ``D02*`` / ``D03*`` lines and appends draw coordinates to
-flat arrays (:mod:`.gerber_sink`; no Python object per draw); every other
-line goes through the general command splitter (:mod:`.gerber_commands`)
-and the command handlers below.
+section numbers below refer to it. The file is read once, front to back, in
+blocks of :data:`READ_BLOCK` bytes, in time linear in its size (also the
+clear-polarity step, :mod:`.gerber_output`):
+
+* a run of straight draws or region vertices (``X..Y..D01*`` lines, after
+  at most one ``%TO.N,..*%`` and one ``D02`` line) is matched by one regular
+  expression and kept as text; its coordinates are parsed later, with all
+  other runs, in one vectorised pass (:mod:`.gerber_runs`), and land in
+  flat arrays (:mod:`.gerber_sink`; no Python object per draw);
+* other ``D01``/``D02``/``D03`` lines (arcs, flashes, clear draws),
+  attribute lines and aperture selections are read by one precompiled
+  regular expression each, with the reader's state in local variables;
+* every other line goes through the general command splitter
+  (:mod:`.gerber_commands`) and the command handlers below, which also
+  report every error. The fast paths give the same values as the general
+  one (see :func:`_signed` for the sign of ``-0``).
 
 What becomes what
 -----------------
@@ -85,14 +95,14 @@ from shapely.errors import GEOSException
 
 from ...errors import FabError
 from ..board_json import MAX_COORDINATE_MM
-from .gerber_apertures import (EMPTY, ApertureError, apply_matrix, is_identity, standard_aperture,
+from .gerber_apertures import (EMPTY, ApertureError, apply_matrix, disc, is_identity, stadium, standard_aperture,
                                swept_outline, transform_matrix)
 from .gerber_arcs import ArcError, arc_circle, arc_points
 from .gerber_attributes import AttributeSyntaxError, attribute_in_comment, parse_attribute
 from .gerber_commands import CommandSplitter, SplitError, show_command
 from .gerber_macros import ApertureMacro, MacroError, contour_polygon, instantiate, parse_macro
 from .gerber_output import build
-from .gerber_runs import PointChunks, run_matcher
+from .gerber_runs import PointChunks, group_matchers, run_matcher, stroke_heads
 from .gerber_sink import ObjectSink, ReplayError, ShapeRecord, stroke_outline
 from .layer import NET_UNKNOWN, GerberLayer
 
@@ -114,6 +124,8 @@ READ_BLOCK = 1 << 20
 #: parsed when it closes: bulk parsing pays only on longer ones).
 MIN_RUN = 4
 MIN_REGION_RUN = 16
+#: Fewest lines of a run of whole strokes (net change, D02, D01 lines) taken at once.
+MIN_GROUPS_LINES = 8
 #: Lines between checks of the object limits in the fast path.
 CHECK_EVERY = 1 << 16
 
@@ -131,7 +143,7 @@ _WORD = re.compile(r"(?:G0*(\d{1,3}))?(?:X([+-]?\d+))?(?:Y([+-]?\d+))?(?:I([+-]?
                    r"(?:D0*(\d{1,10}))?(?:M0*(\d{1,3}))?")
 _DECIMAL = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)")
 _FS = re.compile(r"FS([LTD]?)([AI])(?:N\d+)?(?:G\d+)?X(\d)(\d)Y(\d)(\d)(?:D\d+)?(?:M\d+)?")
-_AD = re.compile(r"ADD(\d+)([^,]*)(?:,(.*))?", re.S)
+_AD = re.compile(r"ADD(\d+)([^,]*)(?:,(.*))?", re.DOTALL)
 _NAME = re.compile(r"[._a-zA-Z$][._a-zA-Z0-9$]*")
 _SR = re.compile(r"SR(?:X(\d+))?(?:Y(\d+))?(?:I([+-]?(?:\d+\.?\d*|\.\d+)))?(?:J([+-]?(?:\d+\.?\d*|\.\d+)))?")
 _SPACES = re.compile(r"\s+")
@@ -146,12 +158,13 @@ _SELECT_LINE = re.compile(rb"(?:G0*54)?D0*([1-9][0-9]{1,8})\*\r?\n?|G0*([123])\*
 _NUMBER = re.compile(rb"[+-]?[0-9]+").match
 
 
+@functools.cache
 def _digits(div: float) -> int:
     """Most digits of a coordinate that cannot be more than 10 m from the origin."""
-    return max(1, int(math.floor(math.log10(MAX_COORDINATE_MM * div + 1))))
+    return max(1, math.floor(math.log10(MAX_COORDINATE_MM * div + 1)))
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def _fast_regex(div_x: float, div_y: float):
     """``[Gnn]X..Y..[I..J..]Dnn*`` lines (G01, G02, G03; D01, D02, D03)
     whose coordinates cannot be more than 10 m from the origin (longer
@@ -171,6 +184,12 @@ def _signed(digits: bytes, div: float, general: bool) -> float:
     if general and value == 0 and digits[:1] == b"-":
         return -0.0
     return value
+
+
+def _line_end(buf: bytes, pos: int, end: int, lines: int) -> int:
+    """Where the ``lines``-th line of ``buf[pos:end]`` ends (after its line
+    feed; the span holds at least that many lines)."""
+    return pos + int(np.flatnonzero(np.frombuffer(buf, np.uint8, end - pos, pos) == 10)[lines - 1]) + 1
 
 
 def _parse_attribute_line(text: bytes) -> tuple | None:
@@ -317,7 +336,9 @@ class _GerberReader:
         # fast path
         self.fast_re = None
         self.run_re = self.simple_run_re = None
-        self.fast_stroke = False
+        self.group_res = (None, None)
+        self.fast_stroke = self.fast_clear_stroke = False
+        self.clear_width = 0.0
         self.trace_width = 0.0
         self.trace_function = -1
         self.flash_outline: shapely.Geometry | None = None
@@ -333,6 +354,19 @@ class _GerberReader:
     # ------------------------------------------------------------------ main loop
 
     def read(self, stream) -> GerberLayer:
+        """Read the stream to M02 and build the layer.
+
+        One loop over lines, in three tiers, the graphics state held in
+        local variables (reloaded whenever :meth:`_refresh` counts a new
+        ``version``): (1) a run of straight draws or region vertices, tried
+        first while the interpolation is linear, taken whole
+        (:mod:`.gerber_runs`); (2) one D01/D02/D03 line (arcs, moves,
+        flashes, single draws, clear draws), an attribute line or an
+        aperture selection, each by one regular expression; (3) anything
+        else, and every line that would raise an error, through the general
+        path. Lines are counted, the size limit and the object limits
+        (every CHECK_EVERY lines) are checked exactly as if every line went
+        through the general path."""
         splitter = CommandSplitter()
         read_block = stream.read
         size_limit = self.size_limit
@@ -342,7 +376,7 @@ class _GerberReader:
         lineno = last_line = 1
         nbytes = 0
         next_check = CHECK_EVERY
-        no_run_before = 0  # a run was tried up to here: no new try before it
+        no_run_before = no_groups_before = 0  # a run was tried up to here: no new try before it
         attributes: dict[bytes, tuple | None] = {}  # attribute command text -> parsed (None: general path)
         net_fields: dict[bytes, tuple[str]] = {}  # TO.N value in a run -> the attribute's fields
         self._refresh()
@@ -351,8 +385,10 @@ class _GerberReader:
             version = self.version
             fast = self.fast_re if splitter.idle() else None
             run, simple_run = self.run_re, self.simple_run_re
+            groups, group_nets = self.group_res
             object_attributes, net_index = self.object_attributes, self.net_index
             stroke, region = self.fast_stroke, self.region
+            clear_stroke, clear_width = self.fast_clear_stroke, self.clear_width
             div_x, div_y = self.div_x, self.div_y
             sink = self.sink
             pending = sink.pending
@@ -364,6 +400,61 @@ class _GerberReader:
             stroke_open, last_op, mode = self.stroke_open, self.last_operation, self.interpolation or 1
             runs = fast is not None and (stroke or region is not None)
             while True:
+                if runs and region is None and mode == 1 and pos >= no_run_before and pos >= no_groups_before:
+                    # ---- strokes, each an optional net change, a D02 and D01 lines, all spelled simply:
+                    # one match for them all, their points kept as text, parsed in bulk later
+                    gm = groups(buf, pos)
+                    rend = gm.end() if gm is not None else pos
+                    n = buf.count(b"\n", pos, rend)
+                    if lineno + n > next_check:  # the object limits are checked at next_check: stop before
+                        n = next_check - lineno
+                        if n > 0:
+                            rend = _line_end(buf, pos, rend, n)
+                            while rend > pos and not buf.endswith(b"D01*\n", pos, rend):  # not after a head
+                                rend = buf.rfind(b"\n", pos, rend - 1) + 1 or pos
+                        else:
+                            rend = pos
+                        n = buf.count(b"\n", pos, rend)
+                    if n < MIN_GROUPS_LINES or nbytes + (rend - pos) > size_limit:
+                        no_groups_before = max(rend, pos + 1)  # the runs below take these lines
+                    else:
+                        text = buf[pos:rend]
+                        d02, points_before, net_changes = stroke_heads(text)
+                        stroke_nets = np.empty(len(d02), dtype=np.int32)
+                        done = 0
+                        for k, name in net_changes:  # in order: as _apply_attribute, _object_attributes_changed
+                            stroke_nets[done:k] = net
+                            done = k
+                            fields = net_fields.get(name)
+                            if fields is None:
+                                fields = net_fields[name] = (name.decode("ascii"),)
+                            if object_attributes.get(".N") != fields:
+                                object_attributes[".N"] = fields
+                                net = net_index.get(fields[0])
+                                if net is None:
+                                    net = net_index[fields[0]] = len(self.net_names)
+                                    self.net_names.append(fields[0])
+                                self.net = net
+                        stroke_nets[done:] = net
+                        nets_before = len(net_changes)
+                        s_start.frombytes((points_before + (len(sink.px) + len(pending))).tobytes())
+                        s_line.frombytes((d02 + (lineno + 1)).tobytes())  # the line after each D02
+                        s_width.frombytes(np.full(len(d02), width).tobytes())
+                        s_net.frombytes(stroke_nets.tobytes())
+                        s_func.frombytes(np.full(len(d02), function, dtype=np.int32).tobytes())
+                        pending.add_run(group_nets(b"", text) if nets_before else text, n - nets_before, cx, cy,
+                                        div_x, div_y, False, True)
+                        ix = text.rfind(b"X")
+                        iy = text.rfind(b"Y")
+                        cx = int(text[ix + 1:iy]) / div_x
+                        cy = int(text[iy + 1:-5]) / div_y
+                        stroke_open = True
+                        last_op = 1
+                        lineno += n
+                        last_line = lineno - 1
+                        nbytes += rend - pos
+                        pos = rend
+                        continue
                 if runs and mode == 1 and pos >= no_run_before:
                     # ---- a run of straight draws or region vertices, after at most one net change (TO.N)
                     # and one D02: kept as text, its points parsed in bulk later
@@ -380,8 +471,7 @@ class _GerberReader:
                         if lineno + n > next_check:  # the object limits are checked at next_check
                             n = next_check - lineno
                             if n > 0:
-                                rend = pos + int(np.flatnonzero(np.frombuffer(buf, np.uint8, rend - pos, pos)
-                                                                == 10)[n - 1]) + 1
+                                rend = _line_end(buf, pos, rend, n)
                             else:
                                 n, rend = 0, pos
                         net_change = rm.start(1) >= 0
@@ -391,10 +481,14 @@ class _GerberReader:
                                     region.current) < MIN_REGION_RUN)))):  # (a short run in a small contour)
                             no_run_before = pos + 1 if net_change else rend
                         else:
+                            # the new current point: the run's last X and Y
                             ix = buf.rfind(b"X", pos, rend)
                             iy = buf.rfind(b"Y", pos, rend)
-                            last_x = _NUMBER(buf, ix + 1)[0] if ix >= 0 else None
-                            last_y = _NUMBER(buf, iy + 1)[0] if iy >= 0 else None
+                            if simple:  # the last line is X<x>Y<y>D01*
+                                last_x, last_y = buf[ix + 1:iy], buf[iy + 1:rend - 5]
+                            else:
+                                last_x = _NUMBER(buf, ix + 1)[0] if ix >= 0 else None
+                                last_y = _NUMBER(buf, iy + 1)[0] if iy >= 0 else None
                             if region is None:
                                 if net_change:
                                     fields = net_fields.get(rm[2])
@@ -433,10 +527,16 @@ class _GerberReader:
                                 region.points += n - lead
                                 if region.points > MAX_REGION_POINTS:
                                     raise self._too_many_region_points()
-                            if last_x is not None:
-                                cx = _signed(last_x, div_x, region is not None)
-                            if last_y is not None:
-                                cy = _signed(last_y, div_y, region is not None)
+                            if region is None:
+                                if last_x is not None:
+                                    cx = int(last_x) / div_x
+                                if last_y is not None:
+                                    cy = int(last_y) / div_y
+                            else:
+                                if last_x is not None:
+                                    cx = _signed(last_x, div_x, True)
+                                if last_y is not None:
+                                    cy = _signed(last_y, div_y, True)
                             last_op = 1
                             lineno += n
                             last_line = lineno - 1
@@ -451,6 +551,7 @@ class _GerberReader:
                         if block:
                             buf = buf[pos:] + block
                             no_run_before -= pos
+                            no_groups_before -= pos
                             pos = 0
                         else:
                             eof = True
@@ -475,6 +576,23 @@ class _GerberReader:
                             next_check = lineno + CHECK_EVERY
                             self._check_limits(lineno)
                         if d == b"1":
+                            if clear_stroke and new_mode == 1:
+                                # ---- a straight clear draw with a round aperture: its stadium, a clear object
+                                x = _signed(xs, div_x, True) if xs is not None else cx
+                                cy_ = _signed(ys, div_y, True) if ys is not None else cy
+                                outline = (stadium(cx, cy, x, cy_, clear_width) if x != cx or cy_ != cy
+                                           else disc(cx, cy, clear_width / 2))
+                                sink.add_clear(ShapeRecord("draw", outline, 0.0, 0.0, net, lineno, flash_function))
+                                if len(shapes) + len(sink.clears) > MAX_SHAPES:
+                                    raise self.error(lineno, f"more than {MAX_SHAPES} pads, regions and other "
+                                                     "shapes: over this reader's limit")
+                                cx = x
+                                cy = cy_
+                                mode = new_mode
+                                last_op = 1
+                                lineno += buf[end - 1] == 10
+                                pos = end
+                                continue
                             if region is not None or stroke:
                                 if plain:
                                     x = int(xs) / div_x if xs is not None else cx
@@ -726,6 +844,12 @@ class _GerberReader:
         if self.fast_stroke:
             self.trace_width = ap.round_width * self.scale
             self.trace_function = ap.function_index
+        self.fast_clear_stroke = (ready and not in_region and not self.dark and ap is not None
+                                  and ap.round_width is not None
+                                  and 0 < ap.round_width * self.scale <= MAX_COORDINATE_MM
+                                  and not self._dropped(ap.function))
+        if self.fast_clear_stroke:
+            self.clear_width = ap.round_width * self.scale
         flash = None
         if ready and not in_region and ap is not None and ap.kind != "block" and not self._dropped(ap.function):
             flash = ap.outline if is_identity(self.matrix) else self.templates.get((ap.number, self.matrix))
@@ -736,8 +860,10 @@ class _GerberReader:
         self.fast_re = _fast_regex(self.div_x, self.div_y) if ready else None
         self.run_re = run_matcher(_digits(self.div_x), _digits(self.div_y), False) if ready else None
         self.simple_run_re = run_matcher(_digits(self.div_x), _digits(self.div_y), True) if ready else None
-        state = (self.fast_re, self.fast_stroke, in_region, self.div_x, self.div_y, self.sink, self.trace_width,
-                 self.trace_function, ap.number if ap is not None else None, self.dark, id(flash))
+        self.group_res = group_matchers(_digits(self.div_x), _digits(self.div_y)) if ready else (None, None)
+        state = (self.fast_re, self.fast_stroke, self.fast_clear_stroke, in_region, self.div_x, self.div_y, self.sink,
+                 self.trace_width, self.trace_function, self.clear_width, ap.number if ap is not None else None,
+                 self.dark, id(flash))
         if state != self.fast_state:
             self.fast_state = state
             self.version += 1

@@ -17,14 +17,17 @@ therefore proportional to the pairs that can matter, and a clear region of
 thousands of vertices costs a logarithmic test per object near it, not a
 scan of its outline per object in its bounding box.
 
-* Shapes (pads, regions, non-round draws, dots): polygon difference.
+* Shapes (pads, regions, non-round draws, dots): polygon difference with
+  the union of their clear objects (:func:`_union`).
 * Trace pieces: the centreline is clipped by the clear objects and the
-  remaining sub-segments are kept, with the piece's full width. This is an
-  approximation: a trace cut by a clear object ends square at the
-  centreline's intersection with the clear outline (its round end cap and
-  the part of its width that reaches into the clear object are not
-  modelled), and a clear object that only grazes the trace's edge without
-  reaching the centreline leaves the trace whole.
+  remaining sub-segments are kept, with the piece's full width
+  (:func:`_clip_pieces`: all piece and clear-object pairs intersected in
+  one vectorised call, the stretches inside merged along each piece; no
+  union per piece). This is an approximation: a trace cut by a clear
+  object ends square at the centreline's intersection with the clear
+  outline (its round end cap and the part of its width that reaches into
+  the clear object are not modelled), and a clear object that only grazes
+  the trace's edge without reaching the centreline leaves the trace whole.
 
 Strokes are then renumbered so that a stroke is again a run of pieces that
 touch end to start: a stroke that lost a stretch in the middle becomes two.
@@ -227,6 +230,8 @@ def _clip_pieces(clears: _Clears, x1, y1, x2, y2, stroke):
         parts, sub = shapely.get_parts(parts, return_index=True)
         owner = owner[sub]
     coords, coord_part = shapely.get_coordinates(parts, return_index=True)
+    if not len(coords):  # the clear objects only meet the pieces' bounding boxes
+        return x1, y1, x2, y2, stroke
     hit = np.unique(pair_piece)
     piece_of = pair_piece[owner[coord_part]]
     ax, ay = x1[piece_of], y1[piece_of]
@@ -361,8 +366,8 @@ def _traces(sink: ObjectSink, x1, y1, x2, y2, stroke) -> GerberTraces:
     width = np.frombuffer(sink.s_width, dtype=np.float64)[stroke]
     net = np.frombuffer(sink.s_net, dtype=np.int32)[stroke]
     line = np.frombuffer(sink.s_line, dtype=np.int64)[stroke[first]]
-    f = lambda a: np.ascontiguousarray(a, dtype=np.float64)  # noqa: E731
-    i = lambda a: np.ascontiguousarray(a, dtype=np.int32)  # noqa: E731
+    f = lambda a: np.ascontiguousarray(a, dtype=np.float64)
+    i = lambda a: np.ascontiguousarray(a, dtype=np.int32)
     return GerberTraces(f(x1), f(y1), f(x2), f(y2), f(width), i(net), i(new_stroke), i(ordinal),
                         np.ascontiguousarray(line, dtype=np.int64))
 

@@ -50,6 +50,38 @@ def run_matcher(nx: int, ny: int, simple: bool):
                       rb"(%s2%s)?+(?:%s1%s)++" % (line, end, line, end)).match
 
 
+@functools.cache
+def group_matchers(nx: int, ny: int):
+    """(``match(buffer, pos)`` of one or more groups, ``sub`` that deletes
+    their net lines). A group is an optional net attribute line
+    ``%TO.N,<name>*%`` (name as in :func:`run_matcher`), a line
+    ``X<x>Y<y>D02*`` and one or more lines ``X<x>Y<y>D01*``, each ending in
+    a bare line feed: one stroke, after a net change. Exported copper is
+    mostly such groups."""
+    net = rb"(%TO\.N,([\x21-\x24\x26-\x29\x2b\x2d-\x5b\x5d-\x7e]*+)\*%\n)?+"
+    line = rb"X[+-]?+[0-9]{1,%d}+Y[+-]?+[0-9]{1,%d}+D0" % (nx, ny)
+    groups = re.compile(rb"(?:%s%s2\*\n(?:%s1\*\n)++)++" % (net, line, line)).match
+    nets = re.compile(rb"%TO[^\n]*+\n").sub
+    return groups, nets
+
+
+def stroke_heads(text: bytes) -> tuple[np.ndarray, np.ndarray, list[tuple[int, bytes]]]:
+    """The strokes in ``text`` (whole groups, see :func:`group_matchers`):
+    the line of each stroke's D02 in ``text``, the index of its point among
+    the points of ``text`` (every line but the net lines), and for each net
+    line, in order, (the stroke it comes before, the net name)."""
+    a = np.frombuffer(text, dtype=np.uint8)
+    ends = np.flatnonzero(a == 10)
+    starts = np.r_[0, ends[:-1] + 1]
+    is_net = a[starts] == 37  # '%'
+    d02 = np.flatnonzero((a[ends - 2] == 50) & ~is_net)  # ...D02*
+    net_lines = np.flatnonzero(is_net)
+    points_before = d02 - np.searchsorted(net_lines, d02)
+    before = np.searchsorted(d02, net_lines + 1).tolist()
+    names = [text[b + 6:e - 2] for b, e in zip(starts[net_lines].tolist(), ends[net_lines].tolist())]  # %TO.N,...*%
+    return d02, points_before, list(zip(before, names))
+
+
 class PointChunks:
     """Points in creation order: single points (appended to ``xs``, ``ys``),
     arrays, and kept runs. ``len()`` counts them all; :meth:`take` returns

@@ -128,7 +128,7 @@ class ObjectSink:
 
     # ---- copying a block into its parent
 
-    def replay_into(self, dst: "ObjectSink", m: tuple[float, float, float, float], dx: float, dy: float,
+    def replay_into(self, dst: ObjectSink, m: tuple[float, float, float, float], dx: float, dy: float,
                     toggle: bool, max_coordinate_mm: float) -> None:
         """Append this sink's objects to ``dst`` under ``x' = a x + b y + dx,
         y' = d x + e y + dy`` (``m`` = (a, b, d, e); stroke widths scale by
