@@ -6,11 +6,12 @@ section numbers below refer to it. The file is read once, front to back, in
 blocks of :data:`READ_BLOCK` bytes, in time linear in its size (also the
 clear-polarity step, :mod:`.gerber_output`):
 
-* a run of straight draws or region vertices (``X..Y..D01*`` lines, after
-  at most one ``%TO.N,..*%`` and one ``D02`` line) is matched by one regular
-  expression and kept as text; its coordinates are parsed later, with all
-  other runs, in one vectorised pass (:mod:`.gerber_runs`), and land in
-  flat arrays (:mod:`.gerber_sink`; no Python object per draw);
+* a run of strokes (each an optional ``%TO.N,..*%``, a ``D02`` and
+  ``D01`` lines), or of straight draws or region vertices, is matched by
+  one regular expression and kept as text; its coordinates are parsed
+  later, with all other runs, in one vectorised pass (:mod:`.gerber_runs`),
+  and land in flat arrays (:mod:`.gerber_sink`; no Python object per
+  draw);
 * other ``D01``/``D02``/``D03`` lines (arcs, flashes, clear draws),
   attribute lines and aperture selections are read by one precompiled
   regular expression each, with the reader's state in local variables;
@@ -358,8 +359,8 @@ class _GerberReader:
 
         One loop over lines, in three tiers, the graphics state held in
         local variables (reloaded whenever :meth:`_refresh` counts a new
-        ``version``): (1) a run of straight draws or region vertices, tried
-        first while the interpolation is linear, taken whole
+        ``version``): (1) while the interpolation is linear, a run of whole
+        strokes, or of straight draws or region vertices, taken whole
         (:mod:`.gerber_runs`); (2) one D01/D02/D03 line (arcs, moves,
         flashes, single draws, clear draws), an attribute line or an
         aperture selection, each by one regular expression; (3) anything

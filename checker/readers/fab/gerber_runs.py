@@ -5,10 +5,12 @@ other kept runs, in one vectorised numpy pass.
 Nearly all of an exported copper layer is straight draws and region contour
 vertices (Gerber Layer Format Specification 2021.02, 4.7.1 and 4.10). The
 reader (:mod:`.gerber`) finds a run of such lines with one regular
-expression (:func:`run_matcher`), counts its lines, reads only its last
-coordinates (the new current point) and hands the run's text to a
+expression (:func:`group_matchers` for whole strokes with their net
+changes, :func:`run_matcher` for the rest), counts its lines, reads only
+its last coordinates (the new current point) and hands the run's text to a
 :class:`PointChunks`; the coordinates are parsed when the points are needed
 (:meth:`PointChunks.take`), a few tens of thousands of lines at a time.
+Arcs wait there too (:meth:`PointChunks.add_arc`) and are chorded in bulk.
 
 The values are those of the line-by-line path, bit for bit: a coordinate is
 the integer its digits spell divided by the coordinate units per mm (one
