@@ -217,6 +217,7 @@ from .fab.jobfile import (
     DEFAULT_MASK_ER,
     DEFAULT_MASK_MM,
     MAX_LENGTH_MM,
+    series_dielectric,
 )
 from .fab.layer import (
     NET_UNKNOWN,
@@ -1003,17 +1004,10 @@ class _Reader:
 
     def combine(self, rows: list[tuple[Element, str, _LayerDef]], specs: dict) -> Dielectric:
         """One model dielectric from consecutive layers, by the series rule
-        (as :meth:`checker.readers.fab.jobfile._Job.combine`)."""
-        parts = [self.insulator(e, p, layer, specs, mask=False) for e, p, layer in rows]
-        total = sum(t for t, _, _, _ in parts)
-        er = total / sum(t / e for t, e, _, _ in parts)
-        tan_d = None
-        if all(tan is not None for _, _, tan, _ in parts):
-            eps = total / sum(t / (e * complex(1.0, -tan)) for t, e, tan, _ in parts)
-            tan_d = -eps.imag / eps.real
-        assumed = tuple(sorted({a for *_, got in parts for a in got}))
-        return Dielectric(thickness_mm=total, er=er, loss_tangent=tan_d,
-                          name=" + ".join(layer.name for _, _, layer in rows), assumed=assumed)
+        (:func:`checker.readers.fab.jobfile.series_dielectric`)."""
+        return series_dielectric([(t, e, tan, layer.name, got) for (t, e, tan, got), (_, _, layer)
+                                  in zip((self.insulator(e, p, layer, specs, mask=False) for e, p, layer in rows),
+                                         rows)])
 
     def outside(self, rows: list[tuple[Element, str, _LayerDef]], side: str, specs: dict) -> Dielectric | None:
         masks = [r for r in rows if r[2].function == "SOLDERMASK"]

@@ -134,6 +134,25 @@ def read_job(stream: BinaryIO, name: str) -> JobStackup:
     return _Job(name, data).build()
 
 
+def series_dielectric(layers: list[tuple[float, float, float | None, str | None, tuple[str, ...]]]) -> Dielectric:
+    """One model dielectric from consecutive layers (thickness mm, εr, loss
+    tangent or None, name or None, assumed values), as capacitors in series
+    in a field normal to the layers: T = Σtᵢ, εeff = T / Σ(tᵢ/εᵢ), and the
+    loss tangent from the complex permittivities εᵢ(1 − j tanᵢ) by the same
+    rule (``None`` if any part lacks one). Every fabrication door with a
+    layered stackup uses it."""
+    total = sum(t for t, _, _, _, _ in layers)
+    er = total / sum(t / e for t, e, _, _, _ in layers)
+    tan_d = None
+    if all(tan is not None for _, _, tan, _, _ in layers):
+        eps = total / sum(t / (e * complex(1.0, -tan)) for t, e, tan, _, _ in layers)
+        tan_d = -eps.imag / eps.real
+    names = [n for _, _, _, n, _ in layers if n]
+    assumed = tuple(sorted({a for *_, parts_assumed in layers for a in parts_assumed}))
+    return Dielectric(thickness_mm=total, er=er, loss_tangent=tan_d, name=" + ".join(names) or None,
+                      assumed=assumed)
+
+
 # --------------------------------------------------------------------------- JSON
 
 
@@ -381,17 +400,7 @@ class _Job:
 
     def combine(self, parts: list[tuple[int, dict]]) -> Dielectric:
         """One model dielectric from consecutive entries, by the series rule."""
-        layers = [self.layer(i, e, mask=False) for i, e in parts]
-        total = sum(t for t, _, _, _, _ in layers)
-        er = total / sum(t / e for t, e, _, _, _ in layers)
-        tan_d = None
-        if all(tan is not None for _, _, tan, _, _ in layers):
-            eps = total / sum(t / (e * complex(1.0, -tan)) for t, e, tan, _, _ in layers)
-            tan_d = -eps.imag / eps.real
-        names = [n for _, _, _, n, _ in layers if n]
-        assumed = tuple(sorted({a for *_, parts_assumed in layers for a in parts_assumed}))
-        return Dielectric(thickness_mm=total, er=er, loss_tangent=tan_d, name=" + ".join(names) or None,
-                          assumed=assumed)
+        return series_dielectric([self.layer(i, e, mask=False) for i, e in parts])
 
     def outside(self, entries: list, kinds: list[str], span: range, side: str) -> Dielectric | None:
         masks = [i for i in span if kinds[i] == "SolderMask"]
