@@ -33,8 +33,9 @@ from dataclasses import asdict, dataclass, field
 from typing import Callable, Iterable, Iterator
 
 from . import __version__
-from .atomic import refuse_overwriting_inputs, write_atomically
-from .errors import CouplintError, UsageError
+from .atomic import Stopped, refuse_overwriting_inputs, write_atomically
+from .errors import CouplintError, UsageError, bounded
+from .report.visible import visible
 
 EXIT_PASS, EXIT_FAIL = 0, 1
 
@@ -153,7 +154,7 @@ def check_one(path: str, rules: str | None, fail_on: str = "warning", waivers: s
 
 
 def _error_outcome(path: str, name: str, message: str, seconds: float = 0.0) -> BoardOutcome:
-    return BoardOutcome(path=path, name=name, verdict="error", seconds=seconds, error=message)
+    return BoardOutcome(path=path, name=name, verdict="error", seconds=seconds, error=bounded(message))
 
 
 def _worst_noise_mv(result) -> float | None:
@@ -305,7 +306,7 @@ def run(args: argparse.Namespace) -> int:
     print_table(ordered, summary["totals"])
     for o in ordered:
         if o.error is not None:
-            print(f"couplint: error: {o.error}", file=sys.stderr)
+            print(f"couplint: error: {visible(o.error, keep_lines=True)}", file=sys.stderr)
     return EXIT_PASS if all(o.verdict in ("pass", "pass with waivers") for o in ordered) else EXIT_FAIL
 
 
@@ -462,22 +463,34 @@ def _write(path: str, emit: Callable) -> None:
 # --------------------------------------------------------------------------- executors
 
 class _Stream:
-    """A context manager yielding outcomes as boards finish; closes its workers on exit."""
+    """A context manager yielding outcomes as boards finish; closes its
+    workers on exit. ``close(stopping)``: ``stopping`` is true when the run
+    was interrupted (Ctrl-C, SIGTERM), so running boards are abandoned
+    rather than waited for."""
 
-    def __init__(self, gen: Iterator[BoardOutcome], close: Callable[[], None]) -> None:
+    def __init__(self, gen: Iterator[BoardOutcome], close: Callable[[bool], None]) -> None:
         self._gen, self._close = gen, close
 
     def __enter__(self) -> Iterator[BoardOutcome]:
         return self._gen
 
-    def __exit__(self, *exc) -> None:
-        self._close()
+    def __exit__(self, exc_type, exc, tb) -> None:
+        self._close(exc_type is not None and issubclass(exc_type, (KeyboardInterrupt, Stopped)))
+
+
+def _close_pool(pool, stopping: bool) -> None:
+    if stopping:  # do not wait for the boards being checked: end the workers
+        for process in list(getattr(pool, "_processes", {}).values()):
+            process.terminate()
+        pool.shutdown(wait=False, cancel_futures=True)
+    else:
+        pool.shutdown(wait=True, cancel_futures=True)
 
 
 def _pool_outcomes(boards: list[str], baselines: dict[str, str], options: dict, jobs: int) -> _Stream:
     jobs = min(jobs, len(boards))
     if jobs <= 1:  # no worker processes: check here, one board after another
-        return _Stream((check_one(b, baseline=baselines.get(b), **options) for b in boards), lambda: None)
+        return _Stream((check_one(b, baseline=baselines.get(b), **options) for b in boards), lambda stopping: None)
 
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor, as_completed
@@ -496,7 +509,7 @@ def _pool_outcomes(boards: list[str], baselines: dict[str, str], options: dict, 
         for future in as_completed(futures):
             yield _outcome_of(future, futures[future], BrokenProcessPool)
 
-    return _Stream(gen(), lambda: pool.shutdown(wait=True, cancel_futures=True))
+    return _Stream(gen(), lambda stopping: _close_pool(pool, stopping))
 
 
 def _outcome_of(future, path: str, broken: type) -> BoardOutcome:
@@ -529,7 +542,7 @@ def _dask_outcomes(boards: list[str], baselines: dict[str, str], options: dict, 
         for future in as_completed(futures, loop=client.loop):
             yield _outcome_of(future, paths[future.key], ())
 
-    return _Stream(gen(), client.close)
+    return _Stream(gen(), lambda stopping: client.close())
 
 
 def _check_address(address: str) -> None:

@@ -17,8 +17,14 @@ from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
 from . import __version__, batch
-from .atomic import refuse_overwriting_inputs, refuse_shared_outputs, write_atomically
-from .errors import CouplintError, UsageError
+from .atomic import (
+    refuse_overwriting_inputs,
+    refuse_shared_outputs,
+    Stopped,
+    removing_temporaries_on_signals,
+    write_atomically,
+)
+from .errors import CouplintError, UsageError, bounded
 from .report.visible import visible
 from .review import DEFAULT_WAIVER_FILE, FAIL_ON, TODAY_ENV
 
@@ -111,16 +117,13 @@ def main(argv: list[str] | None = None) -> int:
     except SystemExit as exc:  # argparse has printed its message
         return EXIT_BAD_INPUT if exc.code not in (0, None) else EXIT_CLEAN
     try:
-        if args.command == "batch":
-            return batch.run(args)
-        if args.command == "kinds":
-            return _kinds(args.kind)
-        if args.command == "waive":
-            return _waive(args)
-        board_paths = [str(demo_board_path())] if args.command == "demo" else args.board
-        return _check(board_paths, args)
+        with removing_temporaries_on_signals():
+            return _dispatch(args)
+    except Stopped as exc:  # SIGTERM or SIGHUP (see removing_temporaries_on_signals)
+        print(f"couplint: stopped by a signal (exit {exc.code}); no output was left half-written", file=sys.stderr)
+        return int(exc.code)
     except CouplintError as exc:
-        print(f"couplint: error: {visible(str(exc), keep_lines=True)}", file=sys.stderr)
+        print(f"couplint: error: {visible(bounded(str(exc)), keep_lines=True)}", file=sys.stderr)
         return EXIT_BAD_INPUT
     except BrokenPipeError:  # e.g. piped into `head`: stop quietly
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
@@ -132,8 +135,20 @@ def main(argv: list[str] | None = None) -> int:
         print("couplint: error: out of memory", file=sys.stderr)
         return EXIT_INTERNAL
     except Exception as exc:  # noqa: BLE001 - one line, never a traceback
-        print(f"couplint: internal error: {type(exc).__name__}: {exc} (please report this)", file=sys.stderr)
+        print(f"couplint: internal error: {type(exc).__name__}: {visible(bounded(str(exc)))} (please report this)",
+              file=sys.stderr)
         return EXIT_INTERNAL
+
+
+def _dispatch(args: argparse.Namespace) -> int:
+    if args.command == "batch":
+        return batch.run(args)
+    if args.command == "kinds":
+        return _kinds(args.kind)
+    if args.command == "waive":
+        return _waive(args)
+    board_paths = [str(demo_board_path())] if args.command == "demo" else args.board
+    return _check(board_paths, args)
 
 
 def _load(board_paths: list[str], args: argparse.Namespace):

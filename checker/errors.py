@@ -7,6 +7,30 @@ go straight to the bad spot.
 
 from __future__ import annotations
 
+from .describe import shorten
+
+
+#: Longest file name or place (JSON path, key path) a message shows, and
+#: longest line of a message; longer ones keep their head and tail.
+PLACE_CHARS = 160
+LINE_CHARS = 400
+#: Most lines a message shows (a table of a package's files may be long).
+MESSAGE_LINES = 80
+
+
+def bounded(text: str, limit: int = LINE_CHARS) -> str:
+    """``text`` with every line shortened to ``limit`` characters (head
+    ``...`` tail) and at most :data:`MESSAGE_LINES` lines: a hostile input
+    cannot make a message of megabytes.
+
+    >>> bounded("a" * 10 + "b" * 10, 9)
+    'aaa...bbb'
+    """
+    lines = [shorten(line, limit) for line in text.split("\n")]
+    if len(lines) > MESSAGE_LINES:
+        lines = lines[:MESSAGE_LINES - 1] + [f"... ({len(lines) - MESSAGE_LINES + 1} more lines)"]
+    return "\n".join(lines)
+
 
 class CouplintError(Exception):
     """Base of every error couplint reports to a user."""
@@ -19,8 +43,8 @@ class InputError(CouplintError):
         self.file = file
         self.place = place
         self.message = message
-        where = f"{file}: {place}" if place else file
-        super().__init__(f"{where}: {message}")
+        where = f"{bounded(file, PLACE_CHARS)}: {bounded(place, PLACE_CHARS)}" if place else bounded(file, PLACE_CHARS)
+        super().__init__(f"{where}: {bounded(message)}")
 
 
 class BoardError(InputError):
@@ -67,3 +91,10 @@ class FabError(BoardError):
         if place is None and line is not None:
             place = f"line {line}"
         super().__init__(file, place, message)
+
+
+class SolveError(CouplintError, ValueError):
+    """A cross-section the field solver cannot take (conductors that touch,
+    a layer of no thickness). The sanity bounds of :mod:`checker.bounds`
+    keep such input out; this is the solver's own refusal, so a case they
+    miss still ends in one message, not an internal error."""

@@ -36,6 +36,7 @@ import yaml
 from .atomic import write_atomically
 from .errors import BaselineError, RuleError, UsageError, WaiverError
 from .findings import SEVERITIES, Finding
+from .yamldoc import YamlProblem, compose_document
 
 #: ``--fail-on`` choices: the lowest severity that fails, or ``new`` (only
 #: findings absent from the baseline fail).
@@ -435,34 +436,17 @@ def _read_text(file: str) -> str:
 
 def _compose(text: str, file: str) -> yaml.Node | None:
     """The document's node tree (safe tags only); a YAML error becomes one
-    :class:`WaiverError` with its line and column, worded as the rule-file
-    loader words it."""
-    loader = None
+    :class:`WaiverError` with its line and column, worded as every YAML
+    door words it (:mod:`checker.yamldoc`)."""
     try:
-        loader = yaml.SafeLoader(text)
-        return loader.get_single_node()
-    except yaml.MarkedYAMLError as exc:
-        mark = exc.problem_mark or exc.context_mark
-        message = " ".join(str(exc.problem or "").split())
-        if exc.context:
-            where = f" (line {exc.context_mark.line + 1})" if exc.context_mark is not None else ""
-            message = f"{' '.join(exc.context.split())}{where}, {message}"
-        place = f"line {mark.line + 1}, column {mark.column + 1}" if mark is not None else None
-        raise WaiverError(file, place, f"invalid YAML: {message}") from None
-    except yaml.YAMLError as exc:  # the reader: a character YAML does not allow
-        position = getattr(exc, "position", None)
-        place = None
-        if isinstance(position, int):
-            line = text.count("\n", 0, position) + 1
-            place = f"line {line}, column {position - (text.rfind(chr(10), 0, position) + 1) + 1}"
-        reason = getattr(exc, "reason", None) or " ".join(str(exc).split())
-        character = getattr(exc, "character", None)
-        if isinstance(character, int):
-            reason = f"character U+{character:04X}: {reason}"
-        raise WaiverError(file, place, f"invalid YAML: {reason}") from None
-    finally:
-        if loader is not None:
-            loader.dispose()
+        return compose_document(text, MAX_YAML_NODES, "a waiver file")
+    except YamlProblem as exc:
+        raise WaiverError(file, exc.place, exc.message) from None
+
+
+#: Most values a waiver file may hold once its YAML aliases are expanded
+#: (a waiver is about ten).
+MAX_YAML_NODES = 1_000_000
 
 
 # --------------------------------------------------------------------------

@@ -47,6 +47,7 @@ from .checks.options import Option
 from .errors import RuleError
 from .shielding import DEFAULT_REFERENCE_NETS
 from .units import DEFAULT_UNIT, UNITS, UnitError, parse_quantity
+from .yamldoc import YamlProblem, compose_document, construct
 from .yamlkeys import first_repeated_key
 
 #: The only rule-file format version this loader reads.
@@ -793,39 +794,18 @@ def _read_yaml(path: pathlib.Path, file: str) -> Any:
         raise RuleError(file, None, f"not UTF-8 text (bad byte at offset {e.start})") from None
     except OSError as e:
         raise RuleError(file, None, f"cannot read: {e.strerror or e}") from None
-    loader = None
     try:
-        loader = yaml.SafeLoader(text)  # the reader checks the characters already here
-        node = loader.get_single_node()
+        node = compose_document(text, MAX_YAML_NODES, "a rule file")
         if node is None:
             raise RuleError(file, None, "the file is empty (a rule file starts with 'version: 1')")
         _check_duplicate_keys(node, file)
-        return loader.construct_document(node)
-    except yaml.MarkedYAMLError as e:
-        mark = e.problem_mark or e.context_mark
-        place = f"line {mark.line + 1}, column {mark.column + 1}" if mark is not None else None
-        message = " ".join(str(e.problem or "").split())
-        if e.context:  # yaml's context reads first: "while parsing X (line 2), expected Y"
-            where = f" (line {e.context_mark.line + 1})" if e.context_mark is not None else ""
-            message = f"{' '.join(e.context.split())}{where}, {message}"
-        raise RuleError(file, place, f"invalid YAML: {message}") from None
-    except yaml.YAMLError as e:
-        position = getattr(e, "position", None)
-        place = None
-        if isinstance(position, int):
-            line = text.count("\n", 0, position) + 1
-            column = position - (text.rfind("\n", 0, position) + 1) + 1
-            place = f"line {line}, column {column}"
-        reason = getattr(e, "reason", None) or " ".join(str(e).split())
-        character = getattr(e, "character", None)
-        if isinstance(character, int):  # a code point (the text is already decoded)
-            reason = f"character U+{character:04X}: {reason}"
-        raise RuleError(file, place, f"invalid YAML: {reason}") from None
-    except (ValueError, OverflowError) as e:  # a value yaml cannot build, e.g. the date 2026-13-01
-        raise RuleError(file, None, f"invalid YAML value: {e}") from None
-    finally:
-        if loader is not None:
-            loader.dispose()
+        return construct(node)
+    except YamlProblem as e:
+        raise RuleError(file, e.place, e.message) from None
+
+
+#: Most values a rule file may hold once its YAML aliases are expanded.
+MAX_YAML_NODES = 1_000_000
 
 
 def _check_duplicate_keys(node: yaml.Node, file: str) -> None:

@@ -7,7 +7,7 @@ from dataclasses import dataclass, field
 
 from .analysis import Analysis, analyse, analysis_steps
 from .checks import REGISTRY
-from .errors import CouplintError
+from .errors import BoardError, CouplintError, SolveError
 from .findings import Finding, sort_findings
 from .model import Board
 from .review import Review
@@ -68,7 +68,11 @@ def check_board(board: Board, ruleset: RuleSet, progress=None, accurate: bool = 
         def step(description: str) -> None:
             progress(description, next(done, total), total)
 
-    analysis = analyse(board, ruleset, step, accurate)
-    analysis.what_if = what_if
-    findings = run_checks(analysis, step)
+    try:
+        analysis = analyse(board, ruleset, step, accurate)
+        analysis.what_if = what_if
+        findings = run_checks(analysis, step)
+    except SolveError as exc:
+        raise BoardError(board.path, None, f"a cross-section of this board cannot be solved ({exc}); check the "
+                                           "stackup's thicknesses and the copper's widths") from None
     return Result(analysis, findings, time.perf_counter() - start)

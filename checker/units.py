@@ -12,6 +12,8 @@ from __future__ import annotations
 import math
 import re
 
+from .describe import describe_value, shorten
+
 #: kind -> {unit: factor to the internal unit}; internal units are mm for
 #: length, F for capacitance, V for voltage, Hz, s, ohm and degrees.
 UNITS: dict[str, dict[str, float]] = {
@@ -55,23 +57,33 @@ def parse_quantity(value: object, kind: str) -> float:
     2.0
     """
     table = UNITS[kind]
+    # as written, shortened (repr of a 5 000-digit integer is refused by Python itself)
+    shown = describe_value(value) if isinstance(value, int) else shorten(repr(value), 60)
     if isinstance(value, bool):
-        raise UnitError(f"expected a {kind}, got {value!r}")
+        raise UnitError(f"expected a {kind}, got {shown}")
     if isinstance(value, (int, float)):
-        number, unit = float(value), DEFAULT_UNIT[kind]
+        number, unit = _float(value, kind, shown), DEFAULT_UNIT[kind]
     elif isinstance(value, str):
         m = _QUANTITY.match(value)
         if not m:
-            raise UnitError(f"expected a {kind} like '{_example(kind)}', got {value!r}")
-        number, unit = float(m.group(1)), m.group(2) or DEFAULT_UNIT[kind]
+            raise UnitError(f"expected a {kind} like '{_example(kind)}', got {shown}")
+        number, unit = _float(m.group(1), kind, shown), m.group(2) or DEFAULT_UNIT[kind]
     else:
-        raise UnitError(f"expected a {kind} like '{_example(kind)}', got {value!r}")
+        raise UnitError(f"expected a {kind} like '{_example(kind)}', got {shown}")
     if unit not in table:
         accepted = ", ".join(u for u in table if u) or "no unit"
-        raise UnitError(f"unknown {kind} unit {unit!r} (accepted: {accepted})")
+        raise UnitError(f"unknown {kind} unit {shorten(unit, 20)!r} (accepted: {accepted})")
     if not math.isfinite(number):
-        raise UnitError(f"{kind} must be a finite number, got {value!r}")
+        raise UnitError(f"{kind} must be a finite number, got {shown}")
     return round(number * table[unit], 15) if kind == "length" else number * table[unit]
+
+
+def _float(text: int | float | str, kind: str, shown: str) -> float:
+    """``float(text)``; an integer beyond the float range is a UnitError."""
+    try:
+        return float(text)
+    except OverflowError:
+        raise UnitError(f"{kind} far too large, got {shown}") from None
 
 
 def _example(kind: str) -> str:

@@ -37,3 +37,89 @@ def test_output_naming_an_input_is_refused(tmp_path):
     with pytest.raises(UsageError, match="board.json"):
         refuse_overwriting_inputs(tmp_path / "." / "board.json", [board])
     refuse_overwriting_inputs(tmp_path / "other.json", [board])  # a different path is fine
+
+
+# --------------------------------------------------------------------------- signals and leftovers
+
+import os  # noqa: E402
+import signal  # noqa: E402
+import subprocess  # noqa: E402
+import sys  # noqa: E402
+import time  # noqa: E402
+
+from checker.atomic import TEMPORARY_NAME, sweep_leftovers  # noqa: E402
+
+# A real `couplint demo --out` whose report write stalls after its first
+# bytes (the JSON writer is wrapped), so a signal arrives mid-write.
+_STALLING_RUN = """
+import pathlib, sys, time
+import checker.cli as cli
+import checker.report.json_report as json_report
+original = json_report.write
+def stalling(result, handle):
+    original(result, handle)
+    handle.flush()
+    pathlib.Path(sys.argv[2]).write_text("ready")
+    time.sleep(120)
+json_report.write = stalling
+sys.exit(cli.main(["demo", "--format", "json", "--out", sys.argv[1]]))
+"""
+
+
+def _interrupt_mid_write(tmp_path, signum) -> tuple[int, str, list[str]]:
+    out_dir = tmp_path / "out"
+    out_dir.mkdir()
+    ready = tmp_path / "ready"
+    child = subprocess.Popen([sys.executable, "-c", _STALLING_RUN, str(out_dir / "report.json"), str(ready)],
+                             stderr=subprocess.PIPE, text=True)
+    try:
+        deadline = time.monotonic() + 120
+        while not ready.exists():
+            assert child.poll() is None, "the run ended before its write"
+            assert time.monotonic() < deadline, "the run never reached its write"
+            time.sleep(0.05)
+        assert any(TEMPORARY_NAME.match(p.name) for p in out_dir.iterdir())  # mid-write: the temporary exists
+        child.send_signal(signum)
+        _, err = child.communicate(timeout=60)
+    finally:
+        if child.poll() is None:
+            child.kill()
+            child.communicate()
+    return child.returncode, err, sorted(p.name for p in out_dir.iterdir())
+
+
+def test_sigterm_mid_write_leaves_nothing_behind(tmp_path):
+    code, err, left = _interrupt_mid_write(tmp_path, signal.SIGTERM)
+    assert code == 128 + signal.SIGTERM  # as a shell reports a process ended by SIGTERM
+    assert "stopped by a signal" in err and "Traceback" not in err
+    assert left == []
+
+
+def test_sigint_mid_write_leaves_nothing_behind(tmp_path):
+    code, err, left = _interrupt_mid_write(tmp_path, signal.SIGINT)
+    assert code == 130 and "interrupted" in err and "Traceback" not in err
+    assert left == []
+
+
+def test_a_killed_run_s_leftover_is_swept_by_the_next_write_there(tmp_path):
+    gone = subprocess.run([sys.executable, "-c", "import os; print(os.getpid())"], capture_output=True, text=True)
+    dead_pid = int(gone.stdout)
+    sleeper = subprocess.Popen([sys.executable, "-c", "import time; time.sleep(60)"])
+    try:
+        dead = tmp_path / f".report.json.couplint-{dead_pid}-a1b2c3.tmp"
+        alive = tmp_path / f".report.json.couplint-{sleeper.pid}-d4e5f6.tmp"
+        foreign = tmp_path / ".report.json.x1y2.tmp"  # not ours by name: never touched
+        for p in (dead, alive, foreign):
+            p.write_text("half")
+        elsewhere = tmp_path / "sub"
+        elsewhere.mkdir()
+        other_dead = elsewhere / dead.name
+        other_dead.write_text("half")
+        write_atomically(tmp_path / "summary.json", lambda handle: handle.write("{}\n"))
+        assert not dead.exists()
+        assert alive.exists() and foreign.exists()
+        assert other_dead.exists()  # only the output's own folder is swept
+        assert sweep_leftovers(tmp_path) == []
+    finally:
+        sleeper.kill()
+        sleeper.wait()

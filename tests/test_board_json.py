@@ -362,6 +362,9 @@ def test_solder_mask_entries_at_both_ends() -> None:
 def test_read_board_dict_does_not_modify_its_input() -> None:
     data = four()
     data["units"] = "mil"
+    for entry in data["stackup"]:  # 1.4 mil = 35.56 um: copper thickness within its sanity bound
+        if "copper" in entry:
+            entry["thickness"] = 1.4
     before = copy.deepcopy(data)
     read_board_dict(data, "b.json")
     assert data == before
@@ -525,13 +528,29 @@ BAD = [
     ("point-string", put(["tracks", 0, "points", 1, 1], "3"), "tracks[0].points[1][1]", "must be a number"),
     ("coincident-points", put(["tracks", 0, "points"], [[1, 1], [1, 1], [1, 1]]), "tracks[0].points", "no length"),
     ("far-coordinate", put(["tracks", 1, "points", 2], [5, 10001]), "tracks[1].points[2]", "10 m"),
-    ("far-coordinate-in-inches", both(put(["units"], "in"), put(["tracks", 4, "points", 0], [1e307, 0])),
+    ("far-coordinate-in-inches", both(put(["units"], "in"), put(["stackup", 3, "thickness"], 0.04),
+                                      put(["tracks", 4, "points", 0], [1e307, 0])),
      "tracks[4].points[0]", "1e+307 in is more than 10 m"),
     ("far-region-corner", put(["regions", 0, "holes", 0, 2], [0, -1e5]), "regions[0].holes[0][2]", "10 m"),
     ("huge-width", put(["tracks", 2, "width"], 2e4), "tracks[2].width", "more than 10 m"),
     ("huge-arc-width", put(["arcs", 1, "width"], 2e4), "arcs[1].width", "more than 10 m"),
     ("huge-thickness", put(["stackup", 3, "thickness"], 1e300), "stackup[3].thickness", "more than 10 m"),
     ("huge-pad", put(["vias", 0, "pad"], 1e9), "vias[0].pad", "more than 10 m"),
+    # physical sanity bounds (checker/bounds.py): refused with the key before any solver sees them
+    ("huge-int-width", put(["tracks", 2, "width"], 10 ** 400), "tracks[2].width", "number far too large"),
+    ("huge-int-er", put(["stackup", 1, "er"], 10 ** 400), "stackup[1].er", "number far too large"),
+    ("huge-int-coordinate", put(["tracks", 0, "points", 0], [10 ** 400, 0]), "tracks[0].points[0][0]",
+     "number far too large"),
+    ("sub-micron-dielectric", put(["stackup", 1, "thickness"], 1e-16), "stackup[1].thickness",
+     "below the sanity bound (1 um to 25 mm)"),
+    ("thin-copper", put(["stackup", 0, "thickness"], 1e-4), "stackup[0].thickness",
+     "0.1 um is below the sanity bound (1 um to 1 mm)"),
+    ("er-absurd", put(["stackup", 1, "er"], 1e6), "stackup[1].er", "above the sanity bound (1 to 100)"),
+    ("loss-tangent-absurd", put(["stackup", 1, "loss_tangent"], 3), "stackup[1].loss_tangent",
+     "above the sanity bound (0 to 1)"),
+    ("nanometre-width", put(["tracks", 2, "width"], 1e-7), "tracks[2].width", "below the sanity bound"),
+    ("nanometre-arc-width", put(["arcs", 1, "width"], 1e-7), "arcs[1].width", "below the sanity bound"),
+    ("nanometre-drill", both(put(["vias", 0, "drill"], 1e-9)), "vias[0].drill", "below the sanity bound"),
     ("unknown-layer", put(["tracks", 1, "layer"], "IN2"), "tracks[1].layer", "unknown layer 'IN2'"),
     ("dielectric-as-layer", put(["tracks", 1, "layer"], "core"), "tracks[1].layer", "dielectric"),
     ("unknown-net", put(["tracks", 1, "net"], "NOPE"), "tracks[1].net", "unknown net 'NOPE'"),

@@ -48,6 +48,7 @@ from scipy.constants import epsilon_0 as EPS0
 from scipy.special import ellipk, ellipkm1
 from skrf.media import MLine
 
+from checker.errors import SolveError
 from checker.physics.fieldsolve import (
     FAST,
     FINE,
@@ -303,9 +304,9 @@ def test_grid_contains_every_edge_and_is_graded():
 
 
 def test_bad_geometry_is_rejected():
-    with pytest.raises(ValueError, match="touches ground"):
+    with pytest.raises(SolveError, match="touches ground"):
         solve(CrossSection((Conductor(-1, 1, 0.0, 0.1, 0),), planes=(0.0,)))
-    with pytest.raises(ValueError, match="touches net"):
+    with pytest.raises(SolveError, match="touches net"):  # a CouplintError: one message, exit 2
         solve(CrossSection((Conductor(-1, 1, 0.1, 0.2, 0), Conductor(0.5, 2, 0.2, 0.3, 1))))
     with pytest.raises(ValueError, match="overlap"):
         solve(CrossSection((Conductor(-1, 1, 0.1, 0.2, 0),), (Slab(0, 0.5, 4), Slab(0.4, 1, 3))))

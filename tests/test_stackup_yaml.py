@@ -156,7 +156,7 @@ def test_alias_bomb_is_refused_quickly() -> None:
     lines = ["l0: &l0 [x, x, x, x, x, x, x, x, x]"]
     for k in range(1, 10):
         lines.append(f"l{k}: &l{k} [" + ", ".join([f"*l{k - 1}"] * 9) + "]")
-    with pytest.raises(FabError, match=r"more than 100000 values once aliases are expanded"):
+    with pytest.raises(FabError, match=r"more than 100,000 values once aliases are expanded"):
         read("\n".join(lines) + "\nstackup: []\n", "s.yaml")
 
 

@@ -212,6 +212,8 @@ import scipy.sparse as sp
 from scipy.constants import epsilon_0
 from scipy.sparse.linalg import splu
 
+from ..errors import SolveError
+
 #: Net number of a grounded conductor.
 GROUND = -1
 
@@ -509,12 +511,12 @@ def _domain(cs: CrossSection) -> tuple[float, float, float, float]:
             else:
                 inside = all(math.hypot(x - b.cx, y - b.cy) < b.r for x in (c.x0, c.x1) for y in (c.y0, c.y1))
             if not inside:
-                raise ValueError("every conductor must lie strictly inside the box")
+                raise SolveError("every conductor must lie strictly inside the box")
         return _extent(b)
     if cs.box is not None:
         bx0, bx1, by0, by1 = cs.box
         if not (bx0 < min(cx) and max(cx) < bx1 and by0 < min(cy) and max(cy) < by1):
-            raise ValueError("every conductor must lie strictly inside the box")
+            raise SolveError("every conductor must lie strictly inside the box")
         return float(bx0), float(bx1), float(by0), float(by1)
     if cs.box_margin <= 0:
         raise ValueError(f"box_margin must be positive, got {cs.box_margin}")
@@ -570,7 +572,7 @@ def _circle_clearances(
             for g, net in gaps:
                 if g <= tol and net != c.net:
                     what = "ground (a plane, the box or a ground conductor)" if net == GROUND else f"net {net}"
-                    raise ValueError(f"signal conductor {c} touches {what}")
+                    raise SolveError(f"signal conductor {c} touches {what}")
         out.append(min((g for g, net in gaps if net != c.net), default=math.inf))
     if enclosure is not None:
         gaps = [enclosure.r - math.hypot(o.cx - enclosure.cx, o.cy - enclosure.cy) - o.r for o in circles]
@@ -753,7 +755,7 @@ def _build(cs: CrossSection, resolution: float) -> _Grid:
                 clash = label[inside & (label != _FREE) & (label != c.net)]
                 if clash.size:
                     what = "ground (a plane, the box or a ground conductor)" if clash[0] == GROUND else f"net {clash[0]}"
-                    raise ValueError(f"signal conductor {c} touches {what}")
+                    raise SolveError(f"signal conductor {c} touches {what}")
             label[inside] = c.net
             continue
         i0, i1 = index(x, c.x0), index(x, c.x1)
@@ -763,7 +765,7 @@ def _build(cs: CrossSection, resolution: float) -> _Grid:
             clash = block[(block != _FREE) & (block != c.net)]
             if clash.size:
                 what = "ground (a plane, the box or a ground conductor)" if clash[0] == GROUND else f"net {clash[0]}"
-                raise ValueError(f"signal conductor {c} touches {what}")
+                raise SolveError(f"signal conductor {c} touches {what}")
         block[...] = c.net
 
     yc = 0.5 * (y[:-1] + y[1:])

@@ -41,6 +41,16 @@ import numpy as np
 import shapely
 from shapely.geometry.polygon import orient
 
+from ..bounds import (
+    COPPER_THICKNESS,
+    DIELECTRIC_THICKNESS,
+    HOLE,
+    LOSS_TANGENT,
+    MASK_THICKNESS,
+    PERMITTIVITY,
+    TRACE_WIDTH,
+    Bound,
+)
 from ..errors import BoardError
 from ..model import (
     ARC_CHORD_TOLERANCE_MM,
@@ -174,14 +184,19 @@ def _parse_json(text: str, file: str) -> tuple[Any, bool]:
         duplicates.append(dup)
         return flagged
 
+    def integer(digits: str) -> int:
+        if len(digits) > 300:  # beyond the float range: the slow path names the place
+            duplicates.append(digits[:20])
+        return int(digits)
+
     try:
-        data = json.loads(text, object_pairs_hook=pairs, parse_constant=non_finite)
+        data = json.loads(text, object_pairs_hook=pairs, parse_constant=non_finite, parse_int=integer)
     except json.JSONDecodeError as exc:
         raise BoardError(file, f"line {exc.lineno}, column {exc.colno}", f"invalid JSON: {exc.msg}") from None
     except RecursionError:
         raise BoardError(file, None, "invalid JSON: nested far too deeply") from None
-    except ValueError as exc:  # e.g. an integer with thousands of digits
-        raise BoardError(file, None, f"invalid JSON: {exc}") from None
+    except ValueError:  # an integer of thousands of digits (Python refuses to convert it)
+        raise BoardError(file, None, "invalid JSON: a number with thousands of digits") from None
     return data, bool(duplicates)
 
 
@@ -464,19 +479,13 @@ class _Builder:
                 if name in seen:
                     self.fail(("stackup", i, "copper"), f"layer name {name!r} is already used by stackup[{seen[name]}]")
                 seen[name] = i
-                thickness = self.length(("stackup", i, "thickness"), entry["thickness"])
+                thickness = self.length(("stackup", i, "thickness"), entry["thickness"], COPPER_THICKNESS)
                 layers.append(CopperLayer(name, entry["role"], thickness))
             else:
                 if "dielectric" not in entry:
                     self.fail(("stackup", i), "expected a dielectric here: two copper layers need a "
                               "dielectric between them")
-                tan_d = entry.get("loss_tangent")
-                dielectrics.append(Dielectric(
-                    thickness_mm=self.length(("stackup", i, "thickness"), entry["thickness"]),
-                    er=float(entry["er"]),
-                    loss_tangent=None if tan_d is None else float(tan_d),
-                    name=entry.get("dielectric"),
-                ))
+                dielectrics.append(self.dielectric(i, entry, "dielectric", DIELECTRIC_THICKNESS))
         if (last - first) % 2 == 0:
             where = "before the bottom solder mask" if mask_bottom is not None else ""
             self.fail(("stackup", last - 1), f"the stackup must end with a copper layer{' ' + where if where else ''}, "
@@ -484,12 +493,17 @@ class _Builder:
         return Stackup(tuple(layers), tuple(dielectrics), mask_top, mask_bottom)
 
     def mask(self, i: int, entry: dict) -> Dielectric:
+        return self.dielectric(i, entry, "mask", MASK_THICKNESS)
+
+    def dielectric(self, i: int, entry: dict, key: str, thickness: Bound) -> Dielectric:
+        """A dielectric or solder-mask entry, every number within its bound."""
         tan_d = entry.get("loss_tangent")
+        here = ("stackup", i)
         return Dielectric(
-            thickness_mm=self.length(("stackup", i, "thickness"), entry["thickness"]),
-            er=float(entry["er"]),
-            loss_tangent=None if tan_d is None else float(tan_d),
-            name=entry.get("mask"),
+            thickness_mm=self.length(here + ("thickness",), entry["thickness"], thickness),
+            er=self.bounded(here + ("er",), float(entry["er"]), PERMITTIVITY),
+            loss_tangent=None if tan_d is None else self.bounded(here + ("loss_tangent",), float(tan_d), LOSS_TANGENT),
+            name=entry.get(key),
         )
 
     def nets(self) -> tuple[Net, ...]:
@@ -545,13 +559,26 @@ class _Builder:
             find((kind, i, key), items[i].get(key))
         return out
 
-    def length(self, path: tuple, value: float) -> float:
-        """A width, thickness, drill or pad in mm, refused above 10 m."""
+    def length(self, path: tuple, value: float, bound: Bound) -> float:
+        """A width, thickness, drill or pad in mm, refused outside its
+        physical sanity ``bound`` (:mod:`checker.bounds`)."""
         mm = float(value) * self.scale
         if mm > MAX_COORDINATE_MM:
             self.fail(path, f"{value:g} {self.units} is more than 10 m "
                       f'(wrong "units"? the file says {self.units})')
+        self.bounded(path, mm, bound)
         return mm
+
+    def bounded(self, path: tuple, value: float, bound: Bound) -> float:
+        problem = bound.problem(value)
+        if problem is not None:
+            self.fail(path, problem)
+        return value
+
+    def first_outside(self, values: np.ndarray, bound: Bound) -> int | None:
+        """Index of the first of ``values`` (mm) outside ``bound``, or None."""
+        bad = np.flatnonzero(~((values >= bound.low) & (values <= bound.high)))
+        return int(bad[0]) if len(bad) else None
 
     def too_far(self, path: tuple, value: float) -> NoReturn:
         self.fail(path, f"coordinate {value:g} {self.units} is more than 10 m from the origin "
@@ -601,9 +628,9 @@ class _Builder:
         before = np.concatenate(([0], np.cumsum(kept_per_track)[:-1]))
         ordinal = np.arange(len(owner)) - before[owner]
         width = np.fromiter((tr["width"] for tr in tracks), dtype=np.float64, count=t) * self.scale
-        wide = np.flatnonzero(width > MAX_COORDINATE_MM)
-        if len(wide):
-            self.length(("tracks", int(wide[0]), "width"), tracks[int(wide[0])]["width"])
+        k = self.first_outside(width, TRACE_WIDTH)
+        if k is not None:
+            self.length(("tracks", k, "width"), tracks[k]["width"], TRACE_WIDTH)
         base = len(self.sources)
         self.sources.extend(f"tracks[{i}]" for i in range(t))
         self.columns.append([a[:, 0], a[:, 1], b[:, 0], b[:, 1], width[owner], net[owner], layer[owner],
@@ -640,7 +667,7 @@ class _Builder:
             xy[0], xy[-1] = p[0], p[2]  # exactly the file's end points
         n = len(xy) - 1
         self.columns.append([xy[:-1, 0], xy[:-1, 1], xy[1:, 0], xy[1:, 1],
-                             np.full(n, self.length(here + ("width",), a["width"])), np.full(n, net), np.full(n, layer),
+                             np.full(n, self.length(here + ("width",), a["width"], TRACE_WIDTH)), np.full(n, net), np.full(n, layer),
                              np.full(n, len(self.sources)), np.arange(n)])
         self.sources.append(f"arcs[{i}]")
 
@@ -706,9 +733,10 @@ class _Builder:
             self.too_far(("vias", k, "at"), max(vias[k]["at"], key=abs))
         drill = np.fromiter((v["drill"] for v in vias), dtype=np.float64, count=n)
         pad = np.fromiter((v["pad"] for v in vias), dtype=np.float64, count=n)
-        big = np.flatnonzero(pad * self.scale > MAX_COORDINATE_MM)  # pad > drill is checked next
-        if len(big):
-            self.length(("vias", int(big[0]), "pad"), vias[int(big[0])]["pad"])
+        for key, column in (("drill", drill), ("pad", pad)):  # pad > drill is checked next
+            k = self.first_outside(column * self.scale, HOLE)
+            if k is not None:
+                self.length(("vias", k, key), vias[k][key], HOLE)
         small = np.flatnonzero(pad <= drill)
         if len(small):
             k = int(small[0])

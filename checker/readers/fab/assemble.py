@@ -47,6 +47,7 @@ from scipy.sparse.csgraph import connected_components
 from scipy.spatial import cKDTree
 from shapely.geometry.polygon import orient
 
+from ...bounds import check_geometry, check_stackup
 from ...errors import FabError, UsageError
 from ...model import NO_NET, Board, Net, Pieces, Region, Stackup, Vias
 from .excellon import read_excellon
@@ -85,9 +86,13 @@ def load_package(paths: list[str], stackup: str | None = None, netlist: str | No
     overrides = dict(parse_layer_override(text) for text in (layers or []))
     found = collect(paths, overrides)
     if found.ipc2581:
-        return _from_ipc2581(found, stackup, netlist, layers)
+        board = _from_ipc2581(found, stackup, netlist, layers)
+        check_stackup(board.stackup, board.path)
+        check_geometry(board)
+        return board
     notes: list[str] = []
     job = _stackup_of(found, stackup, notes)
+    check_stackup(job.stackup, job.path)  # before any Gerber is read
     copper = _copper_files(found, job, notes)
     # the small files first, so a bad drill file or netlist fails in seconds, naming itself
     drills = [_plating_by_name(_read(m, read_excellon), notes) for m in found.drills]
@@ -101,6 +106,7 @@ def load_package(paths: list[str], stackup: str | None = None, netlist: str | No
     notes += [f"not read: {s}" for s in found.skipped]
     board = board_from_layers(found.name, found.path, job, gerbers, drills, nets_file, outline, notes,
                               given_roles=given, file_names=files)
+    check_geometry(board)
     return dataclasses.replace(board, files=tuple(sorted(found.read_as)))
 
 

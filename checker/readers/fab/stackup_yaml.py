@@ -50,6 +50,7 @@ import yaml
 
 from ...errors import BoardError, FabError
 from ...model import Stackup
+from ...yamldoc import YamlProblem, compose_document, construct
 from ...yamlkeys import first_repeated_key
 from .. import board_json
 from .layer import JobStackup
@@ -97,81 +98,20 @@ def _read_text(stream: BinaryIO, name: str) -> str:
 
 def _load(text: str, name: str) -> tuple[yaml.Node, Any]:
     """The YAML node tree and the data built from it (safe tags only, one
-    document, no repeated keys, no alias bombs)."""
-    loader = None
+    document, no repeated keys, no alias bombs, no nesting bombs: see
+    :mod:`checker.yamldoc`)."""
     try:
-        loader = yaml.SafeLoader(text)  # checks the characters already
-        node = loader.get_single_node()
+        node = compose_document(text, MAX_NODES, "a stackup file")
         if node is None:
             raise FabError(name, None, "the file is empty (a stackup file holds a 'stackup:' list)")
-        _check_size(node, name)
         _check_repeated_keys(node, name)
-        return node, loader.construct_document(node)
-    except yaml.MarkedYAMLError as exc:
-        mark = exc.problem_mark or exc.context_mark
-        message = " ".join(str(exc.problem or "").split())
-        if exc.context:
-            where = f" (line {exc.context_mark.line + 1})" if exc.context_mark is not None else ""
-            message = f"{' '.join(exc.context.split())}{where}, {message}"
-        if mark is None:
-            raise FabError(name, None, f"invalid YAML: {message}") from None
-        raise FabError(name, mark.line + 1, f"invalid YAML: {message}",
-                       place=f"line {mark.line + 1}, column {mark.column + 1}") from None
-    except yaml.YAMLError as exc:
-        position = getattr(exc, "position", None)
-        reason = getattr(exc, "reason", None) or " ".join(str(exc).split())
-        character = getattr(exc, "character", None)
-        if isinstance(character, int):  # a code point (the text is decoded already)
-            reason = f"character U+{character:04X}: {reason}"
-        if isinstance(position, int):
-            line = text.count("\n", 0, position) + 1
-            raise FabError(name, line, f"invalid YAML: {reason}") from None
-        raise FabError(name, None, f"invalid YAML: {reason}") from None
-    except (ValueError, OverflowError, TypeError) as exc:  # a value yaml cannot build, e.g. 2026-13-01
-        raise FabError(name, None, f"invalid YAML value: {exc}") from None
-    except RecursionError:
-        raise FabError(name, None, "invalid YAML: nested far too deeply") from None
-    finally:
-        if loader is not None:
-            loader.dispose()
+        return node, construct(node)
+    except YamlProblem as exc:
+        raise FabError(name, exc.line, exc.message, place=exc.place) from None
 
 
 #: Most nodes a stackup file may hold once its aliases are expanded.
 MAX_NODES = 100_000
-
-#: Deepest nesting accepted (a stackup needs 3: stackup[i].key).
-MAX_DEPTH = 32
-
-
-def _check_size(root: yaml.Node, name: str) -> None:
-    """Refuse alias bombs (a few lines that expand to millions of nodes),
-    recursive aliases and absurd nesting, before anything walks the data."""
-    memo: dict[int, int] = {}
-    active: set[int] = set()
-
-    def size(node: yaml.Node, depth: int) -> int:
-        key = id(node)
-        if key in memo:
-            return memo[key]
-        line = node.start_mark.line + 1
-        if key in active:
-            raise FabError(name, line, "a recursive alias (a node that contains itself)")
-        if depth > MAX_DEPTH:
-            raise FabError(name, line, f"nested more than {MAX_DEPTH} levels deep")
-        active.add(key)
-        total = 1
-        if isinstance(node, yaml.SequenceNode):
-            total += sum(size(item, depth + 1) for item in node.value)
-        elif isinstance(node, yaml.MappingNode):
-            total += sum(size(k, depth + 1) + size(v, depth + 1) for k, v in node.value)
-        active.discard(key)
-        memo[key] = total
-        if total > MAX_NODES:
-            raise FabError(name, line, f"more than {MAX_NODES} values once aliases are expanded: "
-                           "not a stackup file")
-        return total
-
-    size(root, 0)
 
 
 def _check_repeated_keys(node: yaml.Node, name: str) -> None:
