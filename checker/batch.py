@@ -32,7 +32,7 @@ import time
 from dataclasses import asdict, dataclass, field
 from typing import Callable, Iterable, Iterator
 
-from . import __version__
+from . import __version__, limits
 from .atomic import Stopped, refuse_overwriting_inputs, write_atomically
 from .errors import CouplintError, UsageError, bounded
 from .report.visible import visible
@@ -96,7 +96,7 @@ class BoardOutcome:
 
 def check_one(path: str, rules: str | None, fail_on: str = "warning", waivers: str | None = None,
               baseline: str | None = None, today: datetime.date | None = None,
-              stackup: str | None = None) -> BoardOutcome:
+              stackup: str | None = None, caps: limits.Limits | None = None) -> BoardOutcome:
     """Check one board file; runs in a worker. Never raises: a board that
     cannot be loaded or checked comes back with ``verdict="error"`` and the
     message in ``error``.
@@ -104,7 +104,14 @@ def check_one(path: str, rules: str | None, fail_on: str = "warning", waivers: s
     ``rules``, ``waivers`` (a waiver file) and ``baseline`` (an earlier JSON
     report of this board) are paths the worker reads itself; ``today`` is the
     date waiver expiry is judged on (default: the worker's today);
-    ``stackup``: a stackup YAML for fabrication packages without a job file."""
+    ``stackup``: a stackup YAML for fabrication packages without a job file;
+    ``caps``: the resource caps (``--limit``; default: :mod:`checker.limits`'s)."""
+    with limits.using(caps):
+        return _check_one(path, rules, fail_on, waivers, baseline, today, stackup)
+
+
+def _check_one(path: str, rules: str | None, fail_on: str, waivers: str | None, baseline: str | None,
+               today: datetime.date | None, stackup: str | None) -> BoardOutcome:
     start = time.perf_counter()
     name = board_stem(path)
     try:
@@ -256,7 +263,7 @@ def run(args: argparse.Namespace) -> int:
         load_waivers(args.waivers)
         today = review_today()  # one date for every board, also on remote workers
     options = {"rules": args.rules, "fail_on": args.fail_on, "waivers": args.waivers, "today": today,
-               "stackup": args.stackup}
+               "stackup": args.stackup, "caps": limits.current()}
     if args.scheduler:
         source = _dask_outcomes(boards, baselines, options, args.scheduler, args.connect_timeout)
     else:

@@ -16,7 +16,7 @@ from pathlib import Path
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
-from . import __version__, batch
+from . import __version__, batch, limits, progress
 from .atomic import (
     refuse_overwriting_inputs,
     refuse_shared_outputs,
@@ -34,6 +34,14 @@ EXIT_CLEAN, EXIT_FINDINGS, EXIT_BAD_INPUT, EXIT_INTERNAL = 0, 1, 2, 3
 def demo_board_path() -> Path:
     """The invented demo board shipped inside the package."""
     return Path(str(resources.files("checker") / "data" / "demo_board.json"))
+
+
+def limit_option(p: argparse.ArgumentParser) -> None:
+    """``--limit NAME=VALUE``: raise (or lower) one resource cap."""
+    p.add_argument("--limit", metavar="NAME=VALUE", action="append", default=[],
+                   help="raise or lower a resource cap, repeatable: file-mb (default 512), package-mb (2048), "
+                        "draws (10000000 per Gerber layer), shapes (1000000 per Gerber layer), track-points "
+                        "(1000000 per JSON track or outline); see the README's caps")
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -70,6 +78,7 @@ def _parser() -> argparse.ArgumentParser:
         p.add_argument("--what-if", action="store_true",
                        help="for budget findings, also work out the extra spacing that would meet the budget "
                             "(solves wider tables; the fraction of today's coupling is always given)")
+        limit_option(p)
         p.add_argument("--accurate", action="store_true",
                        help="solve every distinct coupled cross-section directly instead of interpolating "
                             "field-solved tables (slower; the report says which mode was used)")
@@ -93,6 +102,7 @@ def _parser() -> argparse.ArgumentParser:
     output_options(demo)
     batch_parser = sub.add_parser("batch", help="check many boards in parallel (files, folders or globs)")
     batch.add_arguments(batch_parser)
+    limit_option(batch_parser)
     waive = sub.add_parser(
         "waive", help="append a waiver for one finding id to a waiver file",
         description="Append a waiver for the finding ID to the waiver file (created if missing). The id is "
@@ -117,7 +127,8 @@ def main(argv: list[str] | None = None) -> int:
     except SystemExit as exc:  # argparse has printed its message
         return EXIT_BAD_INPUT if exc.code not in (0, None) else EXIT_CLEAN
     try:
-        with removing_temporaries_on_signals():
+        caps = limits.parse(getattr(args, "limit", None) or [])
+        with removing_temporaries_on_signals(), limits.using(caps), progress.to(_progress_line):
             return _dispatch(args)
     except Stopped as exc:  # SIGTERM or SIGHUP (see removing_temporaries_on_signals)
         print(f"couplint: stopped by a signal (exit {exc.code}); no output was left half-written", file=sys.stderr)
@@ -138,6 +149,11 @@ def main(argv: list[str] | None = None) -> int:
         print(f"couplint: internal error: {type(exc).__name__}: {visible(bounded(str(exc)))} (please report this)",
               file=sys.stderr)
         return EXIT_INTERNAL
+
+
+def _progress_line(line: str) -> None:
+    """A progress line of a long stage, on stderr (terminal and CI log alike)."""
+    print(visible(line), file=sys.stderr, flush=True)
 
 
 def _dispatch(args: argparse.Namespace) -> int:

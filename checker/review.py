@@ -33,6 +33,7 @@ from typing import Any
 
 import yaml
 
+from . import limits
 from .atomic import write_atomically
 from .errors import BaselineError, RuleError, UsageError, WaiverError
 from .findings import SEVERITIES, Finding
@@ -421,7 +422,9 @@ def _describe_node(node: yaml.Node) -> str:
 def _read_text(file: str) -> str:
     """The file's text, exactly (no newline translation)."""
     try:
-        raw = Path(file).read_bytes()
+        raw = limits.read_file(file)
+    except limits.TooLarge as exc:
+        raise WaiverError(file, None, str(exc)) from None
     except FileNotFoundError:
         raise WaiverError(file, None, "no such file") from None
     except IsADirectoryError:
@@ -577,7 +580,9 @@ def load_baseline(path: str | os.PathLike[str]) -> Baseline:
 
     file = os.fspath(path)
     try:
-        raw = Path(file).read_bytes()
+        raw = limits.read_file(file)
+    except limits.TooLarge as exc:
+        raise BaselineError(file, None, str(exc)) from None
     except FileNotFoundError:
         raise BaselineError(file, None, "no such file") from None
     except IsADirectoryError:

@@ -46,6 +46,7 @@ from .checks import REGISTRY
 from .checks.options import Option
 from .errors import RuleError
 from .shielding import DEFAULT_REFERENCE_NETS
+from . import limits
 from .units import DEFAULT_UNIT, UNITS, UnitError, parse_quantity
 from .yamldoc import YamlProblem, compose_document, construct
 from .yamlkeys import first_repeated_key
@@ -785,7 +786,9 @@ def _compile_pattern(pattern: str) -> re.Pattern[str]:
 def _read_yaml(path: pathlib.Path, file: str) -> Any:
     """Parse one YAML document with safe tags only, rejecting duplicate keys."""
     try:
-        text = path.read_text(encoding="utf-8")
+        text = limits.read_file(str(path)).decode("utf-8")
+    except limits.TooLarge as e:
+        raise RuleError(file, None, str(e)) from None
     except FileNotFoundError:
         raise RuleError(file, None, "no such file") from None
     except IsADirectoryError:

@@ -20,6 +20,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from checker import limits
 from checker.errors import FabError
 from checker.readers.fab import excellon
 from checker.readers.fab.excellon import load_excellon, read_excellon
@@ -335,13 +336,15 @@ def test_not_utf8_names_the_line() -> None:
 
 
 def test_over_the_size_limit(monkeypatch: pytest.MonkeyPatch) -> None:
-    monkeypatch.setattr(excellon, "MAX_FILE_BYTES", 32)
-    with pytest.raises(FabError, match=r"^x\.drl: over the size limit of 32 bytes: not read$"):
-        read(METRIC_DECIMAL, "x.drl")
+    monkeypatch.setattr(limits, "MB", 1)  # the cap counted in bytes, for a small test file
+    with limits.using(limits.Limits(file_mb=32)):
+        with pytest.raises(FabError, match=r"^x\.drl: over the cap of 32 MB read per file: not read; "
+                                           r"raise it with --limit file-mb=N if the input is genuine$"):
+            read(METRIC_DECIMAL, "x.drl")
 
 
 def test_size_limit_is_stated() -> None:
-    assert excellon.MAX_FILE_BYTES == 256 * 1024 * 1024
+    assert limits.Limits().file_bytes == 512 * 10 ** 6
 
 
 def test_missing_file_and_folder(tmp_path: Path) -> None:

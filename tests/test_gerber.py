@@ -1115,14 +1115,17 @@ def test_unknown_commands_are_ignored_and_garbage_refused():
 
 
 def test_size_limit_refuses_before_reading(tmp_path, monkeypatch):
+    from checker import limits
+
     path = tmp_path / "big.gbr"
-    path.write_bytes(gbr("G04 padding*\n" * 100))
-    monkeypatch.setattr(gerber_module, "GERBER_SIZE_LIMIT", 1000)
+    path.write_bytes(gbr("G04 padding*\n" * 100_000))  # 1.3 MB
     opened = []
     real_open = open
     monkeypatch.setattr("builtins.open", lambda *a, **k: opened.append(a) or real_open(*a, **k))
-    with pytest.raises(FabError, match=r"more than the 1000 bytes .* refusing to read it") as info:
-        load_gerber(path)
+    with limits.using(limits.Limits(file_mb=1)):
+        with pytest.raises(FabError, match=r"more than the cap of 1,000,000 bytes per file; refusing to read it "
+                                           r"\(raise it with --limit file-mb=N") as info:
+            load_gerber(path)
     assert info.value.file == str(path) and not opened
     # a stream is cut off once it passes the limit
     with pytest.raises(FabError, match=r"larger than 500 bytes"):

@@ -184,3 +184,178 @@ def test_bounded_keeps_head_and_tail_and_caps_lines() -> None:
     assert text.startswith("file-z") and ".gbr: aaa" in text and len(text) < 1000
     many = bounded("\n".join(str(i) for i in range(1000)))
     assert many.count("\n") == 79 and many.endswith("(921 more lines)")
+
+
+# --------------------------------------------------------------------------- resource caps (checker/limits.py)
+
+import io  # noqa: E402
+import zipfile  # noqa: E402
+
+from checker import limits, progress  # noqa: E402
+from checker.errors import FabError  # noqa: E402
+from checker.readers.fab.source import Metered, PackageBudget  # noqa: E402
+
+
+def _gerber(body: str) -> str:
+    return "%FSLAX46Y46*%\n%MOMM*%\n%ADD10C,0.1*%\nD10*\n" + body + "M02*\n"
+
+
+def test_zip_bomb_member_is_refused_before_inflating(tmp_path, capsys) -> None:
+    package = tmp_path / "bomb.zip"
+    comment = "G04 padding padding padding padding padding padding*\n"
+    with zipfile.ZipFile(package, "w", zipfile.ZIP_DEFLATED) as archive:
+        for name in ("bomb-F_Cu.gbr", "bomb-B_Cu.gbr"):
+            archive.writestr(name, _gerber("X0Y0D02*\nX1000000Y0D01*\n" + comment * 200_000))  # 10.6 MB each
+    assert package.stat().st_size < 200_000
+    start = time.perf_counter()
+    code, _, err = run(capsys, "check", package, "--limit", "file-mb=5")
+    line = one_error_line(err)
+    assert code == 2 and time.perf_counter() - start < 20
+    assert "bomb.zip:bomb-B_Cu.gbr: the file is 11 MB, over the cap of 5 MB per file; raise it with --limit " \
+           "file-mb=N" in line
+    code, _, err = run(capsys, "check", package, "--limit", "package-mb=15")
+    line = one_error_line(err)
+    assert code == 2 and "bomb.zip: the files add up to 21 MB (uncompressed), over the cap of 15 MB per " \
+                         "package; raise it with --limit package-mb=N" in line
+
+
+def test_bytes_are_counted_while_read(monkeypatch) -> None:
+    """A stream that yields more than it declared (or than the cap) is cut
+    off while it is read, per file and per package."""
+    monkeypatch.setattr(limits, "MB", 1000)  # caps counted in kB for a small test
+    with limits.using(limits.Limits(file_mb=10, package_mb=15)):
+        one = Metered(io.BytesIO(b"x" * 20_000), "a.gbr", size=100)
+        with pytest.raises(FabError, match=r"^a\.gbr: over the cap of 10 MB read per file"):
+            while one.read(4096):
+                pass
+        budget = PackageBudget("p.zip")
+        first = Metered(io.BytesIO(b"x" * 9_000), "p.zip:a", 9_000, budget)
+        assert len(first.read()) == 9_000
+        second = Metered(io.BytesIO(b"x" * 9_000), "p.zip:b", 9_000, budget)
+        with pytest.raises(FabError, match=r"^p\.zip: over the cap of 15 MB read from one package"):
+            second.read()
+
+
+def test_gerber_draws_cap_names_file_line_and_option(tmp_path, capsys) -> None:
+    package = tmp_path / "pkg"
+    shutil.copytree(SIX, package)
+    code, _, err = run(capsys, "check", package, "--limit", "draws=20")
+    line = one_error_line(err)
+    assert code == 2
+    assert "six-layer-fab-L1.gbr: line 67: the step and repeat opened here makes 12 copies: more objects than " \
+           "the caps allow (--limit draws=N and --limit shapes=N raise them" in line
+    # plain draws: the cap counted as they are read
+    from checker.readers.fab.gerber import read_gerber
+
+    draws = "".join(f"X{i * 100000}Y0D01*\n" for i in range(1, 101))
+    with limits.using(limits.Limits(draws=50)):
+        with pytest.raises(FabError, match=r"^d\.gbr: line \d+: more than 50 draw and arc points on this layer: "
+                                           r"over the cap; raise it with --limit draws=N"):
+            read_gerber(io.BytesIO(_gerber("X0Y0D02*\n" + draws).encode()), "d.gbr")
+    assert len(read_gerber(io.BytesIO(_gerber("X0Y0D02*\n" + draws).encode()), "d.gbr").traces.x1) == 100
+
+
+def test_json_track_points_cap(tmp_path, capsys) -> None:
+    data = json.loads(demo_board_path().read_text(encoding="utf-8"))
+    data["tracks"][3]["points"] = [[x * 0.01, 5.0] for x in range(3000)]
+    path = tmp_path / "b.json"
+    path.write_text(json.dumps(data), encoding="utf-8")
+    code, _, err = run(capsys, "check", path, "--limit", "track-points=2000")
+    line = one_error_line(err)
+    assert code == 2 and ("b.json: tracks[3].points: 3,000 points, over the cap of 2,000 points per track or "
+                          "outline; raise it with --limit track-points=N") in line
+
+
+def test_json_file_size_cap(tmp_path, capsys) -> None:
+    data = json.loads(demo_board_path().read_text(encoding="utf-8"))
+    data["description"] = "x" * 1_500_000
+    path = tmp_path / "b.json"
+    path.write_text(json.dumps(data), encoding="utf-8")
+    code, _, err = run(capsys, "check", path, "--limit", "file-mb=1")
+    line = one_error_line(err)
+    assert code == 2 and "b.json: the file is 2 MB, over the cap of 1 MB per file" in line
+
+
+@pytest.mark.parametrize("item, words", [
+    ("draws", "expected NAME=VALUE"), ("pixels=3", "expected NAME=VALUE"),
+    ("draws=0", "at least 1"), ("draws=1.5", "whole number"), ("file-mb=1e400", "whole number"),
+])
+def test_limit_option_is_checked(capsys, item, words) -> None:
+    code, _, err = run(capsys, "demo", "--limit", item)
+    line = one_error_line(err)
+    assert code == 2 and words in line
+
+
+def test_limits_parse_reads_names_and_numbers() -> None:
+    caps = limits.parse(["draws=5e7", "file-mb=1_024", "track-points=10"])
+    assert (caps.draws, caps.file_mb, caps.track_points) == (50_000_000, 1024, 10)
+    assert caps.package_mb == limits.Limits().package_mb
+
+
+def test_progress_lines_for_long_stages_only() -> None:
+    lines: list[str] = []
+    now = [100.0]
+    with progress.to(lines.append):
+        quick = progress.Stage("reading a.gbr", 10e6, clock=lambda: now[0])
+        now[0] += 1.0
+        quick.at(5e6)
+        assert lines == []  # under QUIET_SECONDS: silent
+        slow = progress.Stage("reading big.gbr", 400e6, clock=lambda: now[0])
+        for step in range(1, 21):
+            now[0] += 1.0
+            slow.at(step * 20e6)
+    assert lines[0] == "couplint: reading big.gbr: 60 of 400 MB (15 %), 3 s"
+    assert len(lines) == 4  # at 3 s, then every 5 s: 8, 13, 18
+    assert lines[-1].endswith("360 of 400 MB (90 %), 18 s")
+    silent = progress.Stage("reading c.gbr", 1.0, clock=lambda: now[0] + 1000)
+    silent.at(1.0)  # no sink outside the block: nothing, no error
+
+
+# --------------------------------------------------------------------------- hostile text in every output
+
+
+def test_control_characters_are_neutralised_in_every_output(tmp_path, capsys) -> None:
+    """ECMA-48: ESC (0x1b) and the single-byte CSI (0x9b, a C1 control)
+    start control sequences, BEL (0x07) ends an OSC string. None may reach
+    the terminal or a file raw: terminal, JSON (escaped \\u00XX, RFC 8259
+    section 7 allows any character escaped), HTML, SVG and JUnit XML (XML 1.0
+    section 2.2: C0 forbidden, DEL and C1 discouraged) show escapes."""
+    board = json.loads((ROOT / "fixtures" / "two_layer_parallel.json").read_text(encoding="utf-8"))
+    hostile = "CLK_A\x1b]0;pwned\x07\x9b2J\x7f\x00"
+    board["nets"] = [dict(n, name=hostile) if n["name"] == "CLK_A" else n for n in board["nets"]]
+    for key in ("tracks", "arcs", "regions", "vias"):
+        for item in board.get(key, []):
+            if item.get("net") == "CLK_A":
+                item["net"] = hostile
+    path = tmp_path / "hostile.json"
+    path.write_text(json.dumps(board), encoding="utf-8")
+    outputs = {name: tmp_path / name for name in ("r.html", "o.svg", "j.xml")}
+    code, out, err = run(capsys, "check", path, "--format", "json", "--html", outputs["r.html"],
+                         "--svg", outputs["o.svg"], "--junit", outputs["j.xml"])
+    assert code == 1, err
+    raw = set("\x1b\x07\x9b\x7f\x00")
+    assert not raw & set(out + err)
+    report = json.loads(out)
+    assert hostile in {n for p in report["net_pairs"] for n in p["nets"]}  # the JSON still carries the name exactly
+    assert "\\u009b2J\\u007f\\u0000" in out
+    for name, file in outputs.items():
+        text = file.read_text(encoding="utf-8")
+        assert not raw & set(text), name
+        assert "CLK_A\\x1b]0;pwned\\x07\\x9b2J\\x7f\\x00" in text, name
+    code, out, err = run(capsys, "check", path)  # the terminal table
+    assert not raw & set(out + err) and "CLK_A\\x1b]0;pwned\\x07\\x9b2J\\x7f\\x00" in out
+
+
+def test_runs_of_comment_lines_are_skipped_whole_and_counted() -> None:
+    """A run of plain G04 comments is skipped in one step (a file padded
+    with comments reads at tens of MB/s, scripts/bench_gerber.py), and the
+    lines are still counted (errors name the right line) while comments
+    that carry an attribute (``G04 #@! TO.N``, spec 5.1.1) still apply."""
+    from checker.readers.fab.gerber import read_gerber
+
+    head = "%FSLAX46Y46*%\n%MOMM*%\n%ADD10C,0.1*%\nD10*\n"
+    with pytest.raises(FabError, match=r"^c\.gbr: line 8: cannot read the command 'X0Y0Q5D02'"):
+        read_gerber(io.BytesIO((head + "G04 a*\nG04 b*\r\nG4 c*\nX0Y0Q5D02*\nM02*\n").encode()), "c.gbr")
+    body = "G04 a*\nG04 #@! TO.N,SENSE*\nG04 b*\nX0Y0D02*\nX1000000Y0D01*\nG04 c*\nG04 d*\nM02*\n"
+    layer = read_gerber(io.BytesIO((head + body).encode()), "c.gbr")
+    assert layer.net_names == ["SENSE"] and len(layer.traces.x1) == 1

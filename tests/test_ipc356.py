@@ -19,6 +19,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from checker import limits
 from checker.errors import FabError
 from checker.readers.fab import ipc356
 from checker.readers.fab.ipc356 import load_ipc356, read_ipc356
@@ -217,10 +218,10 @@ def test_empty_and_not_utf8() -> None:
 
 
 def test_size_limit(monkeypatch: pytest.MonkeyPatch) -> None:
-    assert ipc356.MAX_FILE_BYTES == 256 * 1024 * 1024
-    monkeypatch.setattr(ipc356, "MAX_FILE_BYTES", 10)
-    with pytest.raises(FabError, match=r"^n\.ipc: over the size limit of 10 bytes"):
-        read(SAMPLE_MM, "n.ipc")
+    monkeypatch.setattr(limits, "MB", 1)  # the cap counted in bytes, for a small test file
+    with limits.using(limits.Limits(file_mb=10)):
+        with pytest.raises(FabError, match=r"^n\.ipc: over the cap of 10 MB read per file"):
+            read(SAMPLE_MM, "n.ipc")
 
 
 def test_missing_file(tmp_path: Path) -> None:

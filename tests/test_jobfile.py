@@ -18,6 +18,7 @@ from pathlib import Path
 
 import pytest
 
+from checker import limits
 from checker.errors import FabError
 from checker.model import Stackup
 from checker.readers.fab import jobfile
@@ -273,10 +274,10 @@ def test_repeated_key_nan_and_empty() -> None:
 def test_not_utf8_and_size_limit(monkeypatch: pytest.MonkeyPatch) -> None:
     with pytest.raises(FabError, match=r"^j: line 2: not UTF-8 text"):
         read(b'{\n"Header": "\xff"}', "j")
-    assert jobfile.MAX_FILE_BYTES == 256 * 1024 * 1024
-    monkeypatch.setattr(jobfile, "MAX_FILE_BYTES", 100)
-    with pytest.raises(FabError, match=r"^j: over the size limit of 100 bytes"):
-        read(JOB, "j")
+    monkeypatch.setattr(limits, "MB", 1)  # the cap counted in bytes, for a small test file
+    with limits.using(limits.Limits(file_mb=100)):
+        with pytest.raises(FabError, match=r"^j: over the cap of 100 MB read per file"):
+            read(JOB, "j")
 
 
 def test_missing_file(tmp_path: Path) -> None:

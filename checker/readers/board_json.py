@@ -41,6 +41,7 @@ import numpy as np
 import shapely
 from shapely.geometry.polygon import orient
 
+from .. import limits
 from ..bounds import (
     COPPER_THICKNESS,
     DIELECTRIC_THICKNESS,
@@ -103,7 +104,9 @@ def load_board(path: str | os.PathLike[str]) -> Board:
     """
     file = os.fspath(path)
     try:
-        raw = Path(file).read_bytes()
+        raw = limits.read_file(file)
+    except limits.TooLarge as exc:
+        raise BoardError(file, None, str(exc)) from None
     except FileNotFoundError:
         raise BoardError(file, None, "no such file") from None
     except IsADirectoryError:
@@ -145,6 +148,7 @@ def _read(data: Any, file: str, suspect: bool) -> Board:
     if not isinstance(data, dict):
         raise BoardError(file, None, f"must be a JSON object {{...}}, got {describe_json_value(data)}")
     _check_header(data, file)
+    _check_point_counts(data, file)
     if suspect or not _fast_schema_check()(data):
         # Something is off: find it, slowly, with the path and a good message.
         _check_raw(data, file)
@@ -152,6 +156,38 @@ def _read(data: Any, file: str, suspect: bool) -> Board:
         # Nothing found: the quick check is stricter than it need be (a
         # number type other than int or float, say); the data is valid.
     return _Builder(data, file).build()
+
+
+def _check_point_counts(data: dict, file: str) -> None:
+    """The ``track-points`` cap (:mod:`checker.limits`) on every track's
+    points and every region ring's corners, before any check walks them."""
+    cap = limits.current().track_points
+
+    def over(value: Any) -> bool:
+        return isinstance(value, list) and len(value) > cap
+
+    def fail(path: tuple, count: int) -> NoReturn:
+        raise BoardError(file, format_path(path), f"{count:,} points, over the cap of {cap:,} points per track or "
+                                                  f"outline; {limits.hint('track-points')}")
+
+    for key in ("tracks", "regions"):
+        items = data.get(key)
+        if not isinstance(items, list):
+            continue
+        for i, item in enumerate(items):
+            if not isinstance(item, dict):
+                continue
+            if key == "tracks" and over(item.get("points")):
+                fail((key, i, "points"), len(item["points"]))
+            if key == "regions":
+                if over(item.get("outline")):
+                    fail((key, i, "outline"), len(item["outline"]))
+                holes = item.get("holes")
+                for j, hole in enumerate(holes if isinstance(holes, list) else []):
+                    if over(hole):
+                        fail((key, i, "holes", j), len(hole))
+    if over(data.get("outline")):
+        fail(("outline",), len(data["outline"]))
 
 
 # --------------------------------------------------------------------------- pass 1: raw data

@@ -156,7 +156,7 @@ What is read
   primitive lands at Location + Xform_pad(Xform_own(p)) (the order from
   memory). A primitive's own offsets are in its dictionary's units.
 
-Refused, each with the element path: a file over :data:`MAX_FILE_BYTES`;
+Refused, each with the element path: a file over the per-file cap (:mod:`checker.limits`);
 an empty file, one of white space only, binary content or text that does
 not start with ``<`` (each said so: "not an IPC-2581 file"); bytes that are
 not well-formed XML (with the line); any ``DOCTYPE`` (an IPC-2581 file has
@@ -203,6 +203,7 @@ import shapely
 import shapely.affinity
 from shapely.geometry.polygon import orient
 
+from .. import limits
 from ..errors import FabError
 from ..model import Board, CopperLayer, Dielectric, Stackup
 from .arcs import arc_polyline
@@ -229,9 +230,6 @@ from .fab.layer import (
 )
 from .fab.source import read_path
 
-#: Larger files are refused before they are parsed (512 MiB; the parsed
-#: tree takes several times the file's size in memory).
-MAX_FILE_BYTES = 512 * 1024 * 1024
 
 #: Most trace points (ends of pieces) over all copper layers.
 MAX_TRACE_POINTS = 20_000_000
@@ -407,12 +405,14 @@ def _parse(stream: BinaryIO, name: str) -> tuple[Element, dict[int, int]]:
     internal subset is read, so no entity is ever declared), and so are
     entity declarations and external references should one get through;
     parameter entities are never parsed."""
+    cap = limits.current().file_bytes
     try:
-        data = stream.read(MAX_FILE_BYTES + 1)
+        data = stream.read(cap + 1)
     except OSError as exc:
         raise FabError(name, None, f"cannot read the file: {exc}") from None
-    if len(data) > MAX_FILE_BYTES:
-        raise FabError(name, None, f"over the size limit of {MAX_FILE_BYTES:,} bytes: not read")
+    if len(data) > cap:
+        raise FabError(name, None, f"over the cap of {cap // limits.MB:,} MB read per file: not read; "
+                                   f"{limits.hint('file-mb')}")
     _not_xml(bytes(data[:4096]) if len(data) > 4096 else bytes(data), data, name)
     parser = expat.ParserCreate(None, "}")
     parser.buffer_text = True

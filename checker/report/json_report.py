@@ -8,6 +8,7 @@ to six significant digits.
 from __future__ import annotations
 
 import io
+import re
 import secrets
 import json
 from typing import Iterator, TextIO
@@ -281,10 +282,26 @@ def _lines(items: list[str]) -> str:
     return "[\n    " + ",\n    ".join(items) + "\n  ]" if items else "[]"
 
 
+class _EscapingControls:
+    r"""A text sink that writes DEL and the C1 controls (U+007F-U+009F) as
+    ``\u00XX`` escapes: ``json.dumps`` escapes only C0, and a report piped
+    to a terminal must not carry raw control characters from a net name.
+    Outside strings JSON text is ASCII, so escaping everywhere is exact."""
+
+    _CONTROLS = re.compile("[\x7f-\x9f]")
+
+    def __init__(self, out: TextIO) -> None:
+        self.out = out
+
+    def write(self, text: str) -> None:
+        self.out.write(self._CONTROLS.sub(lambda m: f"\\u{ord(m.group()):04x}", text))
+
+
 def write(result: Result, out: TextIO) -> None:
     """Write the report: indented JSON, with the findings and the (possibly
     huge) list of net pairs one compact object per line, the net pairs
     streamed in chunks."""
+    out = _EscapingControls(out)  # type: ignore[assignment]
     report = build_report(result)
     findings, report["findings"] = report["findings"], _FINDINGS
     head = json.dumps(report, indent=2, ensure_ascii=False, allow_nan=False)

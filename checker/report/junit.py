@@ -20,10 +20,11 @@ does it for one checked board.
 
 from __future__ import annotations
 
-import re
 import xml.etree.ElementTree as ET
 from collections.abc import Iterable, Sequence
 from typing import TYPE_CHECKING
+
+from .visible import xml_visible
 
 if TYPE_CHECKING:  # pragma: no cover
     from ..runner import Result
@@ -31,12 +32,10 @@ if TYPE_CHECKING:  # pragma: no cover
 #: The testcase that stands for reading and checking the board file.
 LOAD_CASE = "load"
 
-_NOT_XML = re.compile("[^\t\n\r\u0020-\ud7ff\ue000-\ufffd\U00010000-\U0010ffff]")
-
-
 def clean(text: object) -> str:
-    """``text`` as a string XML 1.0 can hold: characters it forbids become ``\\xNN``."""
-    return _NOT_XML.sub(lambda m: f"\\x{ord(m.group()):02x}", str(text))
+    """``text`` as a string XML 1.0 can hold: characters it forbids or
+    discourages become ``\\xNN`` (:func:`.visible.xml_visible`)."""
+    return xml_visible(text)
 
 
 def describe_finding(f: dict) -> str:

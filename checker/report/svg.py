@@ -42,6 +42,7 @@ from xml.sax.saxutils import escape, quoteattr
 import numpy as np
 import shapely
 
+from .visible import xml_visible
 from ..checks import REGISTRY
 from ..findings import Finding
 from ..model import Board
@@ -216,12 +217,9 @@ def _fs(a: np.ndarray) -> list[str]:
 
 
 def _clean(s: str) -> str:
-    """Replace characters XML 1.0 cannot carry (control characters, lone
-    surrogates, U+FFFE/U+FFFF) with U+FFFD."""
-    return "".join(
-        ch if (ch in "\t\n\r" or 0x20 <= ord(ch) <= 0xD7FF or 0xE000 <= ord(ch) <= 0xFFFD
-               or 0x10000 <= ord(ch) <= 0x10FFFF) else "\ufffd"
-        for ch in str(s))
+    """Characters XML 1.0 cannot carry or discourages (control characters,
+    lone surrogates, U+FFFE/U+FFFF) shown as ``\\xNN`` escapes."""
+    return xml_visible(s)
 
 
 def _text(s: str) -> str:

@@ -138,7 +138,7 @@ plausibility limits used to infer what a file does not say (a board within
   fields) to every tool defined after it, until ``TD`` deletes it.
 
 Inch values are converted to mm (1 in = 25.4 mm). Refused, each with the
-line: a file over :data:`MAX_FILE_BYTES`, bytes that are not UTF-8, a file
+line: a file over the per-file cap (:mod:`checker.limits`), bytes that are not UTF-8, a file
 that neither starts with ``M48`` nor looks like a program without header, a
 header without end, a hit before a tool is selected, an undefined tool in
 a file with a header, a coordinate more than 10 m from the origin or with
@@ -159,8 +159,6 @@ from ...errors import FabError
 from .layer import DrillFile
 from .source import read_lines, read_path
 
-#: Larger files are refused before they are read (256 MiB).
-MAX_FILE_BYTES = 256 * 1024 * 1024
 
 #: A coordinate or diameter beyond 10 m is taken as a units mistake.
 MAX_COORDINATE_MM = 10_000.0
@@ -237,7 +235,7 @@ def read_excellon(stream: BinaryIO, name: str) -> DrillFile:
     seen; :func:`_decide` infers what the file leaves open; a second pass
     reads with it. A file that states everything it uses is read once.
     """
-    lines = read_lines(stream, name, MAX_FILE_BYTES)
+    lines = read_lines(stream, name)
     if not any(s.strip() for s in lines):
         raise FabError(name, None, "the file is empty")
     pre = _prescan(lines)

@@ -70,7 +70,7 @@ AB statement open at M02, a file without M02 (truncated), coordinates more
 than 10 m from the origin (also apertures, LS-scaled traces and pads, and
 copies made by SR or AB), non-ASCII bytes in a command or invalid UTF-8 in
 an attribute, sizes the spec forbids (negative, zero for R/O/P), holes that
-do not fit, files over :data:`GERBER_SIZE_LIMIT` and content beyond the
+do not fit, files over the per-file cap (:mod:`checker.limits`) and content beyond the
 object limits below. No other exception leaves :func:`read_gerber`.
 
 Tolerated deviations: a missing G01 before the first draw (linear assumed);
@@ -94,6 +94,7 @@ import numpy as np
 import shapely
 from shapely.errors import GEOSException
 
+from ... import limits
 from ...errors import FabError
 from ..board_json import MAX_COORDINATE_MM
 from .gerber_apertures import (EMPTY, ApertureError, apply_matrix, disc, is_identity, stadium, standard_aperture,
@@ -107,11 +108,8 @@ from .gerber_runs import PointChunks, group_matchers, run_matcher, stroke_heads
 from .gerber_sink import ObjectSink, ReplayError, ShapeRecord, stroke_outline
 from .layer import NET_UNKNOWN, GerberLayer
 
-#: Largest Gerber file read (bytes); a larger one is refused before reading.
-GERBER_SIZE_LIMIT = 1 << 30
-#: Most trace points (all strokes), shapes and clear objects one file may create.
-MAX_TRACE_POINTS = 20_000_000
-MAX_SHAPES = 1_000_000
+#: The caps on trace points (all strokes) and on shapes and clear objects
+#: of one file are ``--limit draws`` and ``--limit shapes`` (:mod:`checker.limits`).
 #: Most contour points in one region statement.
 MAX_REGION_POINTS = 5_000_000
 #: Deepest nesting of AB / SR statements.
@@ -149,6 +147,8 @@ _NAME = re.compile(r"[._a-zA-Z$][._a-zA-Z0-9$]*")
 _SR = re.compile(r"SR(?:X(\d+))?(?:Y(\d+))?(?:I([+-]?(?:\d+\.?\d*|\.\d+)))?(?:J([+-]?(?:\d+\.?\d*|\.\d+)))?")
 _SPACES = re.compile(r"\s+")
 _COMMENT = re.compile(rb"G0*4(?![0-9])").match
+#: Consecutive whole lines that are each one comment without an attribute (no ``#@!``: no '#' at all)
+_COMMENT_RUN = re.compile(rb"(?:G0*4(?![0-9])[^*%#\r\n]*\*\r?\n)+").match
 #: A line that is one word command or one single-word extended command.
 _ONE_WORD = re.compile(rb"[ \t]*(?:([^%*\r\n]+)\*|%([^%*\r\n]+)\*%)[ \t\r\n]*").fullmatch
 _MAX_DIGITS = 18
@@ -248,16 +248,17 @@ class _Region:
 
 
 def load_gerber(path: str | os.PathLike) -> GerberLayer:
-    """Read the Gerber file at ``path`` (refused unread if over
-    :data:`GERBER_SIZE_LIMIT`)."""
+    """Read the Gerber file at ``path`` (refused unread if over the
+    per-file cap, ``--limit file-mb``)."""
     name = os.fspath(path)
     try:
         size = os.path.getsize(name)
     except OSError as exc:
         raise FabError(name, None, f"cannot read the file: {exc.strerror or exc}") from None
-    if size > GERBER_SIZE_LIMIT:
-        raise FabError(name, None, f"the file is {size} bytes, more than the {GERBER_SIZE_LIMIT} bytes (1 GiB) "
-                       "a Gerber layer may have; refusing to read it")
+    cap = limits.current().file_bytes
+    if size > cap:
+        raise FabError(name, None, f"the file is {size:,} bytes, more than the cap of {cap:,} bytes per file; "
+                       f"refusing to read it ({limits.hint('file-mb')})")
     try:
         stream = open(name, "rb")
     except OSError as exc:
@@ -266,11 +267,11 @@ def load_gerber(path: str | os.PathLike) -> GerberLayer:
         return read_gerber(stream, name)
 
 
-def read_gerber(stream, name: str, size_limit: int = GERBER_SIZE_LIMIT) -> GerberLayer:
+def read_gerber(stream, name: str, size_limit: int | None = None) -> GerberLayer:
     """Read one Gerber layer from a binary stream (read once, front to
     back; it need not be seekable). ``name`` is what error messages call
     the file. Raises only :class:`FabError`."""
-    reader = _GerberReader(name, size_limit)
+    reader = _GerberReader(name, limits.current().file_bytes if size_limit is None else size_limit)
     try:
         return reader.read(stream)
     except FabError:
@@ -291,6 +292,9 @@ class _GerberReader:
     def __init__(self, name: str, size_limit: int) -> None:
         self.name = name
         self.size_limit = size_limit
+        caps = limits.current()
+        self.max_points = caps.draws
+        self.max_shapes = caps.shapes
         self.line = 0
         self.warnings: list[str] = []
         self.unknown_count = 0
@@ -348,6 +352,10 @@ class _GerberReader:
         self.version = 0
 
     # ------------------------------------------------------------------ errors
+
+    def _too_large(self, line: int) -> FabError:
+        return self.error(line, f"the file is larger than {self.size_limit:,} bytes: over the per-file cap; "
+                                f"{limits.hint('file-mb')}")
 
     def error(self, line: int | None, message: str) -> FabError:
         return FabError(self.name, line, message)
@@ -561,6 +569,18 @@ class _GerberReader:
                     if end == pos:
                         finished = True
                         break
+                if fast is not None and buf[pos] == 71:  # 'G': a run of plain comments (no attribute)?
+                    cm = _COMMENT_RUN(buf, pos)
+                    if cm is not None:  # skipped whole, counted as the general path counts them
+                        rend = cm.end()
+                        n = buf.count(b"\n", pos, rend)
+                        nbytes += rend - pos
+                        if nbytes > size_limit:
+                            raise self._too_large(lineno)
+                        lineno += n
+                        last_line = lineno - 1
+                        pos = rend
+                        continue
                 if fast is not None:
                     m = fast(buf, pos, end)
                     if m is not None:
@@ -572,7 +592,7 @@ class _GerberReader:
                         last_line = lineno
                         nbytes += end - pos
                         if nbytes > size_limit:
-                            raise self.error(lineno, f"the file is larger than {size_limit} bytes; refusing to read on")
+                            raise self._too_large(lineno)
                         if lineno >= next_check:
                             next_check = lineno + CHECK_EVERY
                             self._check_limits(lineno)
@@ -584,9 +604,9 @@ class _GerberReader:
                                 outline = (stadium(cx, cy, x, cy_, clear_width) if x != cx or cy_ != cy
                                            else disc(cx, cy, clear_width / 2))
                                 sink.add_clear(ShapeRecord("draw", outline, 0.0, 0.0, net, lineno, flash_function))
-                                if len(shapes) + len(sink.clears) > MAX_SHAPES:
-                                    raise self.error(lineno, f"more than {MAX_SHAPES} pads, regions and other "
-                                                     "shapes: over this reader's limit")
+                                if len(shapes) + len(sink.clears) > self.max_shapes:
+                                    raise self.error(lineno, f"more than {self.max_shapes:,} pads, regions and other "
+                                                     f"shapes: over the cap; {limits.hint('shapes')}")
                                 cx = x
                                 cy = cy_
                                 mode = new_mode
@@ -642,7 +662,7 @@ class _GerberReader:
                                             add_y(cy_)
                                         else:
                                             pending.add_arc(cx, cy, x, cy_, circle, False)
-                                        if not plain and len(sink.px) + len(pending) > MAX_TRACE_POINTS:
+                                        if not plain and len(sink.px) + len(pending) > self.max_points:
                                             self._check_limits(lineno)  # as the general path checks
                                     cx = x
                                     cy = cy_
@@ -676,9 +696,9 @@ class _GerberReader:
                                     shapes.append(record)
                                 else:
                                     sink.add_clear(record)
-                                if len(shapes) + len(sink.clears) > MAX_SHAPES:
-                                    raise self.error(lineno, f"more than {MAX_SHAPES} pads, regions and other "
-                                                     "shapes: over this reader's limit")
+                                if len(shapes) + len(sink.clears) > self.max_shapes:
+                                    raise self.error(lineno, f"more than {self.max_shapes:,} pads, regions and other "
+                                                     f"shapes: over the cap; {limits.hint('shapes')}")
                                 last_op = 3
                             lineno += buf[end - 1] == 10
                             pos = end
@@ -699,8 +719,7 @@ class _GerberReader:
                                     last_line = lineno
                                     nbytes += end - pos
                                     if nbytes > size_limit:
-                                        raise self.error(lineno, f"the file is larger than {size_limit} bytes; "
-                                                         "refusing to read on")
+                                        raise self._too_large(lineno)
                                     if lineno >= next_check:
                                         next_check = lineno + CHECK_EVERY
                                         self._check_limits(lineno)
@@ -720,8 +739,7 @@ class _GerberReader:
                                     last_line = lineno
                                     nbytes += end - pos
                                     if nbytes > size_limit:
-                                        raise self.error(lineno, f"the file is larger than {size_limit} bytes; "
-                                                         "refusing to read on")
+                                        raise self._too_large(lineno)
                                     if lineno >= next_check:
                                         next_check = lineno + CHECK_EVERY
                                         self._check_limits(lineno)
@@ -749,7 +767,7 @@ class _GerberReader:
                     last_line = lineno
                     nbytes += len(line)
                     if nbytes > size_limit:
-                        raise self.error(lineno, f"the file is larger than {size_limit} bytes; refusing to read on")
+                        raise self._too_large(lineno)
                     if lineno >= next_check:
                         next_check = lineno + CHECK_EVERY
                         self.cx, self.cy, self.stroke_open = cx, cy, stroke_open
@@ -811,11 +829,12 @@ class _GerberReader:
             s.flush()
         points = sum(len(s.px) for s in sinks)
         shapes = sum(len(s.shapes) + len(s.clears) for s in sinks)
-        if points > MAX_TRACE_POINTS:
-            raise self.error(line, f"more than {MAX_TRACE_POINTS} trace points: over this reader's limit")
-        if shapes > MAX_SHAPES:
-            raise self.error(line, f"more than {MAX_SHAPES} pads, regions and other shapes: over this "
-                             "reader's limit")
+        if points > self.max_points:
+            raise self.error(line, f"more than {self.max_points:,} draw and arc points on this layer: over the cap; "
+                                   f"{limits.hint('draws')}")
+        if shapes > self.max_shapes:
+            raise self.error(line, f"more than {self.max_shapes:,} pads, regions and other shapes: over the cap; "
+                                   f"{limits.hint('shapes')}")
 
     def _check_open_statements(self, line: int, where: str) -> None:
         if self.region is not None:
@@ -1071,7 +1090,7 @@ class _GerberReader:
                     sink.s_line.append(line)
                     self.stroke_open = True
                 sink.pending.add_array(path[1:, 0], path[1:, 1])
-                if sink.point_count() > MAX_TRACE_POINTS:
+                if sink.point_count() > self.max_points:
                     self._check_limits(line)
             else:
                 self._add(ShapeRecord("draw", stroke_outline(path, width), 0.0, 0.0, self.net, line,
@@ -1108,9 +1127,9 @@ class _GerberReader:
             self.sink.shapes.append(record)
         else:
             self.sink.add_clear(record)
-        if len(self.sink.shapes) + len(self.sink.clears) > MAX_SHAPES:
-            raise self.error(line, f"more than {MAX_SHAPES} pads, regions and other shapes: over this "
-                             "reader's limit")
+        if len(self.sink.shapes) + len(self.sink.clears) > self.max_shapes:
+            raise self.error(line, f"more than {self.max_shapes:,} pads, regions and other shapes: over the cap; "
+                                   f"{limits.hint('shapes')}")
 
     def _template(self, ap: Aperture) -> shapely.Geometry:
         """The aperture outline under the current LM/LR/LS (cached)."""
@@ -1476,8 +1495,9 @@ class _GerberReader:
             self._close_step_repeat(line)  # a new SR closes the open one (8.3.4)
         if nx == 1 and ny == 1:
             return  # %SRX1Y1I0J0*%: no repeat (8.3.4)
-        if nx * ny > MAX_SHAPES:
-            raise self.error(line, f"SR with {nx} x {ny} copies: over this reader's limit of {MAX_SHAPES}")
+        if nx * ny > self.max_shapes:
+            raise self.error(line, f"SR with {nx} x {ny} copies: over the cap of {self.max_shapes:,} shapes; "
+                                   f"{limits.hint('shapes')}")
         self._open_statement(_Statement("SR", line, self.sink, ObjectSink(), repeat=(nx, ny, step_x, step_y)),
                              line)
 
@@ -1488,10 +1508,10 @@ class _GerberReader:
         nx, ny, step_x, step_y = st.repeat
         copies = nx * ny
         body = st.sink
-        if (st.parent.point_count() + copies * body.point_count() > MAX_TRACE_POINTS
-                or len(st.parent.shapes) + copies * (len(body.shapes) + len(body.clears)) > MAX_SHAPES):
+        if (st.parent.point_count() + copies * body.point_count() > self.max_points
+                or len(st.parent.shapes) + copies * (len(body.shapes) + len(body.clears)) > self.max_shapes):
             raise self.error(st.line, f"the step and repeat opened here makes {copies} copies: more objects "
-                             "than this reader's limits")
+                             f"than the caps allow (--limit draws=N and --limit shapes=N raise them if the input is genuine)")
         # copies go first along Y, then along X (4.12)
         for ix in range(nx):
             for iy in range(ny):

@@ -52,7 +52,7 @@ through hole), ``Ann`` gives ``nn`` as written. ``refdes``, ``pin`` and
 the hole's ``P`` / ``U`` flag (``plated``) are returned as written. A ``P`` record
 repeating an ``NNAME`` key with another name, a tab in a test record, a
 coordinate more than 10 m from the origin, a file over
-:data:`MAX_FILE_BYTES` and bytes that are not UTF-8 are refused. The
+the per-file cap (:mod:`checker.limits`) and bytes that are not UTF-8 are refused. The
 input is never modified.
 """
 
@@ -66,8 +66,6 @@ from ...errors import FabError
 from .layer import Netlist, NetPoint
 from .source import read_lines, read_path
 
-#: Larger files are refused before they are read (256 MiB).
-MAX_FILE_BYTES = 256 * 1024 * 1024
 
 #: A coordinate farther than this (10 m) is taken as a units mistake.
 MAX_COORDINATE_MM = 10_000.0
@@ -98,7 +96,7 @@ def load_ipc356(path: str | os.PathLike[str]) -> Netlist:
 def read_ipc356(stream: BinaryIO, name: str) -> Netlist:
     """Read an IPC-D-356 netlist from a binary stream; ``name`` is used in
     messages and as ``Netlist.path``."""
-    lines = read_lines(stream, name, MAX_FILE_BYTES)
+    lines = read_lines(stream, name)
     return _Reader(name).read(lines)
 
 

@@ -72,7 +72,7 @@ Each default sits at the high end of the usual range, so the coupling
 it gives errs toward more, not less (C12 grows with εr, with copper
 thickness for edge coupling, and with a mask's thickness and εr).
 
-Refused, with the JSON path: a file over :data:`MAX_FILE_BYTES`, bytes
+Refused, with the JSON path: a file over the per-file cap (:mod:`checker.limits`), bytes
 that are not UTF-8, invalid JSON (with the line), ``NaN`` / ``Infinity``,
 a key repeated in one object, wrong types, missing required values, and
 the stackup problems above. The input is never modified.
@@ -92,8 +92,6 @@ from ..board_json import describe_json_value, format_path
 from .layer import JobStackup
 from .source import read_path, read_text
 
-#: Larger files are refused before they are read (256 MiB).
-MAX_FILE_BYTES = 256 * 1024 * 1024
 
 #: A length over 10 m is taken as a units mistake.
 MAX_LENGTH_MM = 10_000.0
@@ -163,7 +161,7 @@ class _Repeated(dict):
 
 
 def _parse(stream: BinaryIO, name: str) -> Any:
-    text = read_text(stream, name, MAX_FILE_BYTES)
+    text = read_text(stream, name)
     if not text.strip():
         raise FabError(name, None, "the file is empty")
 

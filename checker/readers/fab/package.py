@@ -33,17 +33,16 @@ import io
 import os
 import re
 import zipfile
+import zlib
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import BinaryIO, Callable
 
+from ... import limits
 from ...errors import FabError, UsageError
 from .excellon import looks_like_drill
 from .identify import Guess, from_content, from_name
-
-#: Largest file couplint reads from a package (bytes); a copper layer of a
-#: million draws is about 40 MB.
-MAX_MEMBER_BYTES = 1 << 30
+from .source import Metered, PackageBudget
 
 #: How much of a file's start is read to decide its format.
 SNIFF_BYTES = 1 << 16
@@ -227,21 +226,37 @@ def _members(paths: list[str]) -> tuple[list[Member], str, str]:
         files = sorted(p for p in folder.iterdir() if p.is_file() and not p.name.startswith("."))
         if not files:
             raise FabError(str(folder), None, "the folder holds no files")
-        return [_file_member(p) for p in files], folder.resolve().name, str(folder)
+        budget = PackageBudget(str(folder))
+        return _within_cap([_file_member(p, budget) for p in files], budget), folder.resolve().name, str(folder)
     if len(paths) == 1 and paths[0].lower().endswith(".zip"):
-        return _zip_members(paths[0]), Path(paths[0]).stem, paths[0]
+        budget = PackageBudget(paths[0])
+        return _within_cap(_zip_members(paths[0], budget), budget), Path(paths[0]).stem, paths[0]
     members = []
+    first = Path(paths[0])
+    budget = PackageBudget(str(first.parent))
     for p in paths:
         if os.path.isdir(p) or p.lower().endswith(".zip"):
             raise UsageError(f"{p}: give one folder, one .zip, or a list of files, not a mix")
         if not os.path.exists(p):
             raise FabError(p, None, "no such file")
-        members.append(_file_member(Path(p)))
-    first = Path(paths[0])
-    return members, first.parent.resolve().name or first.stem, str(first.parent)
+        members.append(_file_member(Path(p), budget))
+    return _within_cap(members, budget), first.parent.resolve().name or first.stem, str(first.parent)
 
 
-def _file_member(p: Path) -> Member:
+def _within_cap(members: list[Member], budget: PackageBudget) -> list[Member]:
+    """Refuse, before reading, a package whose files (their declared sizes,
+    uncompressed) add up to more than the package cap; the bytes actually
+    read are counted too (:class:`PackageBudget`), so a size that lies does
+    not get past it."""
+    total = sum(m.size for m in members)
+    if total > budget.limit:
+        raise FabError(budget.name, None, f"the files add up to {total / limits.MB:,.0f} MB (uncompressed), over the "
+                                          f"cap of {budget.limit // limits.MB:,} MB per package; "
+                                          f"{limits.hint('package-mb')}")
+    return members
+
+
+def _file_member(p: Path, budget: PackageBudget) -> Member:
     try:
         size = p.stat().st_size
     except OSError as exc:
@@ -249,20 +264,22 @@ def _file_member(p: Path) -> Member:
 
     def opener(p: Path = p) -> BinaryIO:
         try:
-            return open(p, "rb")
+            return Metered(open(p, "rb"), str(p), size, budget)
         except OSError as exc:
             raise FabError(str(p), None, f"cannot read: {exc.strerror or exc}") from None
 
     return Member(str(p), _stem(p.name), size, opener)
 
 
-def _zip_members(path: str) -> list[Member]:
+def _zip_members(path: str, budget: PackageBudget) -> list[Member]:
     try:
         archive = zipfile.ZipFile(path)
-        infos = [i for i in archive.infolist() if not i.is_dir() and not Path(i.filename).name.startswith(".")]
+        # a member without a name cannot be a file of the package
+        infos = [i for i in archive.infolist()
+                 if i.filename and not i.is_dir() and not Path(i.filename).name.startswith(".")]
     except FileNotFoundError:
         raise FabError(path, None, "no such file") from None
-    except (OSError, zipfile.BadZipFile, ValueError) as exc:
+    except (OSError, EOFError, zipfile.BadZipFile, ValueError, NotImplementedError, RuntimeError) as exc:
         raise FabError(path, None, f"not a readable .zip archive: {exc}") from None
     if not infos:
         raise FabError(path, None, "the archive holds no files")
@@ -272,7 +289,7 @@ def _zip_members(path: str) -> list[Member]:
 
         def opener(info: zipfile.ZipInfo = info, name: str = name) -> BinaryIO:
             try:
-                return archive.open(info)
+                return Metered(archive.open(info), name, info.file_size, budget)  # counted while inflating
             except (OSError, zipfile.BadZipFile, RuntimeError, NotImplementedError, ValueError) as exc:
                 raise FabError(name, None, f"cannot extract from the archive: {exc}") from None
 
@@ -285,13 +302,14 @@ def _stem(filename: str) -> str:
 
 
 def _head(m: Member) -> bytes:
-    if m.size > MAX_MEMBER_BYTES:
-        raise FabError(m.name, None, f"the file is {m.size / 2**30:.1f} GiB; couplint reads files of up to "
-                                     f"{MAX_MEMBER_BYTES >> 30} GiB")
+    cap = limits.current().file_bytes
+    if m.size > cap:
+        raise FabError(m.name, None, f"the file is {m.size / limits.MB:,.0f} MB, over the cap of {cap // limits.MB:,} "
+                                     f"MB per file; {limits.hint('file-mb')}")
     stream = m.open()
     try:
         return stream.read(SNIFF_BYTES)
-    except (OSError, zipfile.BadZipFile, EOFError, ValueError) as exc:
+    except (OSError, zipfile.BadZipFile, EOFError, ValueError, zlib.error) as exc:
         raise FabError(m.name, None, f"cannot read: {exc}") from None
     finally:
         stream.close()
@@ -312,7 +330,7 @@ def sniff_kind(path: str) -> str | None:
     """``gerber``, ``job``, ``drill``, ``netlist``, ``ipc2581`` or ``None`` for the file
     at ``path``, from its content (unreadable files: ``None``)."""
     try:
-        member = _file_member(Path(path))
+        member = _file_member(Path(path), PackageBudget(path))
         with open(path, "rb") as stream:
             head = stream.read(SNIFF_BYTES)
         return _kind(head, _stem(os.path.basename(path)), member)

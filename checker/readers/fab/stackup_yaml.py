@@ -90,7 +90,7 @@ def read_stackup_yaml(stream: BinaryIO, name: str) -> JobStackup:
 
 
 def _read_text(stream: BinaryIO, name: str) -> str:
-    text = read_text(stream, name, MAX_FILE_BYTES, "not a stackup file")
+    text = read_text(stream, name, "not a stackup file", format_limit=MAX_FILE_BYTES)
     if not text.strip():
         raise FabError(name, None, "the file is empty (a stackup file holds a 'stackup:' list)")
     return text
