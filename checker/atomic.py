@@ -18,8 +18,9 @@ import os
 import re
 import signal
 import tempfile
+from collections.abc import Callable, Iterator
 from pathlib import Path
-from typing import Callable, Iterator, TextIO
+from typing import TextIO
 
 from .errors import UsageError
 
