@@ -40,7 +40,7 @@ def limit_option(p: argparse.ArgumentParser) -> None:
     """``--limit NAME=VALUE``: raise (or lower) one resource cap."""
     p.add_argument("--limit", metavar="NAME=VALUE", action="append", default=[],
                    help="raise or lower a resource cap, repeatable: file-mb (default 512), package-mb (2048), "
-                        "draws (10000000 per Gerber layer), shapes (1000000 per Gerber layer), track-points "
+                        "draws (5000000 per Gerber layer), shapes (1000000 per Gerber layer), track-points "
                         "(1000000 per JSON track or outline); see the README's caps")
 
 
@@ -211,13 +211,19 @@ def _check(board_paths: list[str], args: argparse.Namespace) -> int:
                       TimeElapsedColumn(), console=err, transient=True) as bar:
             task = bar.add_task("checking", total=None)
 
-            def progress(what: str, done: int, total: int) -> None:
+            def advance(what: str, done: int, total: int) -> None:
                 bar.update(task, description=what, completed=done, total=total)
 
-            result = check_board(board, ruleset, progress=progress, accurate=args.accurate,
+            result = check_board(board, ruleset, progress=advance, accurate=args.accurate,
                                      what_if=args.what_if)
-    else:
-        result = check_board(board, ruleset, accurate=args.accurate, what_if=args.what_if)
+    else:  # plain lines (CI logs): a long check says where it is every few seconds
+        stage = progress.Stage("checking", unit="steps", scale=1)
+
+        def lines(what: str, done: int, total: int) -> None:
+            stage.total = total
+            stage.at(done, what)
+
+        result = check_board(board, ruleset, progress=lines, accurate=args.accurate, what_if=args.what_if)
     result.fail_on = args.fail_on
     result.review = build_review(result.findings, waivers, baseline, on=day)
 

@@ -11,7 +11,7 @@ repeatable) and a default large enough for real boards:
 |                |           | it is read)                                                          |
 | ``package-mb`` | 2048      | megabytes read from all files of one fabrication package together    |
 |                |           | (after decompression, counted while inflating a .zip)                |
-| ``draws``      | 10000000  | draw and arc points of one Gerber layer                              |
+| ``draws``      | 5000000   | draw and arc points of one Gerber layer                              |
 | ``shapes``     | 1000000   | pads, regions and other shapes of one Gerber layer                   |
 | ``track-points`` | 1000000 | points of one track, or of one region outline or hole, of a board    |
 |                |           | JSON file                                                            |
@@ -43,7 +43,7 @@ class Limits:
 
     file_mb: int = 512
     package_mb: int = 2048
-    draws: int = 10_000_000
+    draws: int = 5_000_000
     shapes: int = 1_000_000
     track_points: int = 1_000_000
 

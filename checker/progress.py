@@ -49,8 +49,9 @@ class Stage:
         self.start = clock()
         self.next_line = self.start + QUIET_SECONDS
 
-    def at(self, done: float) -> None:
-        """The work has reached ``done`` (in counts, e.g. bytes)."""
+    def at(self, done: float, detail: str | None = None) -> None:
+        """The work has reached ``done`` (in counts, e.g. bytes); ``detail``
+        says what it is doing now (shown after the figures)."""
         if self.sink is None:
             return
         now = self.clock()
@@ -63,4 +64,4 @@ class Stage:
             shown += f" of {self.total / self.scale:,.0f} {self.unit} ({share:.0f} %)"
         else:
             shown += f" {self.unit}"
-        self.sink(f"couplint: {self.what}: {shown}, {now - self.start:.0f} s")
+        self.sink(f"couplint: {self.what}: {shown}, {now - self.start:.0f} s" + (f" ({detail})" if detail else ""))

@@ -359,3 +359,16 @@ def test_runs_of_comment_lines_are_skipped_whole_and_counted() -> None:
     body = "G04 a*\nG04 #@! TO.N,SENSE*\nG04 b*\nX0Y0D02*\nX1000000Y0D01*\nG04 c*\nG04 d*\nM02*\n"
     layer = read_gerber(io.BytesIO((head + body).encode()), "c.gbr")
     assert layer.net_names == ["SENSE"] and len(layer.traces.x1) == 1
+
+
+def test_a_long_check_prints_plain_progress_lines_when_not_on_a_terminal(capsys, monkeypatch) -> None:
+    monkeypatch.setattr(progress, "QUIET_SECONDS", 0.0)  # every step counts as long for this test
+    monkeypatch.setattr(progress, "EVERY_SECONDS", 0.0)
+    code, out, err = run(capsys, "demo")
+    assert code == 1
+    lines = [ln for ln in err.splitlines() if ln.startswith("couplint: checking: ")]
+    assert len(lines) >= 5
+    assert all("\x1b" not in ln for ln in lines)  # plain text: no colour, no cursor movement
+    first, last = lines[0], lines[-1]
+    total = int(first.split(" of ")[1].split()[0])
+    assert first.startswith("couplint: checking: 0 of ") and f"of {total} steps" in last
