@@ -33,7 +33,8 @@ from ..model import Stackup
 from ..stackup import effective_er, separation_mm
 from .broadside import broadside_section
 from .edge import edge_section, ground_section
-from .fieldsolve import CrossSection, solve
+from .fieldsolve import CrossSection
+from .solvecache import cached_solve
 
 #: grid refinement of the accurate solves (``FINE`` is 3)
 ACCURATE_RESOLUTION = 2.0
@@ -62,7 +63,7 @@ def _extrapolated(cs: CrossSection) -> np.ndarray:
     """Maxwell matrix (F/m) of ``cs``, Richardson-extrapolated from
     ``ACCURATE_RESOLUTION`` / 2 and ``ACCURATE_RESOLUTION``; an entry whose
     sign the extrapolation would flip keeps the finer solve's value."""
-    r = solve(cs, ACCURATE_RESOLUTION / 2, richardson=True)
+    r = cached_solve(cs, ACCURATE_RESOLUTION / 2, richardson=True)
     out = r.extrapolated.copy()
     flipped = np.sign(out) != np.sign(r.maxwell)
     out[flipped] = r.maxwell[flipped]

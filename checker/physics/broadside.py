@@ -177,7 +177,8 @@ from scipy.constants import epsilon_0
 
 from ..model import Stackup
 from ..stackup import effective_er, separation_mm
-from .fieldsolve import GROUND, Block, CapacitanceResult, Conductor, CrossSection, Slab, solve
+from .fieldsolve import GROUND, Block, CapacitanceResult, Conductor, CrossSection, Slab
+from .solvecache import cached_solve
 
 #: Solver resolution used for the tables (see ``fieldsolve``): 1.0-1.6 %
 #: high on broadside pairs, 5-30 ms a solve.
@@ -317,7 +318,7 @@ def solve_shared(sections: list[CrossSection], resolution: float,
     first = sorted(todo.values())
     workers = max(1, min(2, os.cpu_count() or 1))
     with ThreadPoolExecutor(max_workers=workers) as pool:
-        solved = dict(zip(first, pool.map(lambda i: solve(sections[i], resolution, richardson=richardson), first)))
+        solved = dict(zip(first, pool.map(lambda i: cached_solve(sections[i], resolution, richardson=richardson), first)))
     in_key = {i: _reorder(solved[i], np.array(canon[i][1], np.int64), to_key=True)
               for i in first if keys[i] is not None}
     with _shared_lock:

@@ -140,7 +140,8 @@ import numpy as np
 from scipy.constants import epsilon_0, mu_0
 
 from ..model import Stackup
-from .fieldsolve import FAST, CrossSection, _domain, solve
+from .fieldsolve import FAST, CrossSection, _domain
+from .solvecache import cached_solve
 
 #: Index of the aggressor and the victim in a two-conductor ``LineMatrices``.
 AGGRESSOR = 0
@@ -312,8 +313,8 @@ def line_matrices(section: CrossSection, resolution: float = FAST) -> LineMatric
     """
     if section.box is None:
         section = dataclasses.replace(section, box=_domain(section))
-    c = solve(section, resolution).maxwell
-    c0 = solve(vacuum(section), resolution).maxwell
+    c = cached_solve(section, resolution).maxwell
+    c0 = cached_solve(vacuum(section), resolution).maxwell
     if c.shape[0] not in (1, 2):
         raise ValueError(f"need one or two signal conductors, got {c.shape[0]}")
     l = mu_0 * epsilon_0 * np.linalg.inv(c0)  # noqa: E741
