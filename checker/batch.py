@@ -35,6 +35,7 @@ from typing import Callable, Iterable, Iterator
 from . import __version__, limits
 from .atomic import Stopped, refuse_overwriting_inputs, write_atomically
 from .errors import CouplintError, UsageError, bounded
+from .report.json_report import DEFAULT_PAIRS, parse_pairs
 from .report.visible import visible
 
 EXIT_PASS, EXIT_FAIL = 0, 1
@@ -96,7 +97,8 @@ class BoardOutcome:
 
 def check_one(path: str, rules: str | None, fail_on: str = "warning", waivers: str | None = None,
               baseline: str | None = None, today: datetime.date | None = None,
-              stackup: str | None = None, caps: limits.Limits | None = None) -> BoardOutcome:
+              stackup: str | None = None, caps: limits.Limits | None = None,
+              pairs: int | None = DEFAULT_PAIRS) -> BoardOutcome:
     """Check one board file; runs in a worker. Never raises: a board that
     cannot be loaded or checked comes back with ``verdict="error"`` and the
     message in ``error``.
@@ -105,13 +107,14 @@ def check_one(path: str, rules: str | None, fail_on: str = "warning", waivers: s
     report of this board) are paths the worker reads itself; ``today`` is the
     date waiver expiry is judged on (default: the worker's today);
     ``stackup``: a stackup YAML for fabrication packages without a job file;
-    ``caps``: the resource caps (``--limit``; default: :mod:`checker.limits`'s)."""
+    ``caps``: the resource caps (``--limit``; default: :mod:`checker.limits`'s);
+    ``pairs``: net pairs the JSON report lists besides those a finding names."""
     with limits.using(caps):
-        return _check_one(path, rules, fail_on, waivers, baseline, today, stackup)
+        return _check_one(path, rules, fail_on, waivers, baseline, today, stackup, pairs)
 
 
 def _check_one(path: str, rules: str | None, fail_on: str, waivers: str | None, baseline: str | None,
-               today: datetime.date | None, stackup: str | None) -> BoardOutcome:
+               today: datetime.date | None, stackup: str | None, pairs: int | None) -> BoardOutcome:
     start = time.perf_counter()
     name = board_stem(path)
     try:
@@ -146,7 +149,7 @@ def _check_one(path: str, rules: str | None, fail_on: str, waivers: str | None, 
         return BoardOutcome(
             path=path, name=name, verdict=result.verdict(), findings=len(result.findings),
             failing=len(failing), waived=len(waived), by_rule=by_rule, worst_noise_mv=_worst_noise_mv(result),
-            seconds=time.perf_counter() - start, report_text=json_report.render(result),
+            seconds=time.perf_counter() - start, report_text=json_report.render(result, pairs),
             failing_findings=failing, waived_findings=waived, ruleset_sha256=ruleset.sha256,
         )
     except CouplintError as exc:
@@ -204,6 +207,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("targets", nargs="+", metavar="TARGET",
                         help="board files, fabrication packages (a folder of Gerber files or a .zip), folders "
                              "(every *.json directly inside) or glob patterns (quote them; ** recurses)")
+    parser.add_argument("--pairs", metavar="N|all", type=parse_pairs, default=DEFAULT_PAIRS,
+                        help="net pairs each JSON report lists besides those a finding names: the N worst "
+                             f"(default {DEFAULT_PAIRS}), or 'all'")
     parser.add_argument("--stackup", metavar="FILE",
                         help="stackup YAML for fabrication packages that have no Gerber job file")
     parser.add_argument("--rules", metavar="FILE",
@@ -263,7 +269,7 @@ def run(args: argparse.Namespace) -> int:
         load_waivers(args.waivers)
         today = review_today()  # one date for every board, also on remote workers
     options = {"rules": args.rules, "fail_on": args.fail_on, "waivers": args.waivers, "today": today,
-               "stackup": args.stackup, "caps": limits.current()}
+               "stackup": args.stackup, "caps": limits.current(), "pairs": args.pairs}
     if args.scheduler:
         source = _dask_outcomes(boards, baselines, options, args.scheduler, args.connect_timeout)
     else:

@@ -17,6 +17,7 @@ from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
 from . import __version__, batch, limits, progress
+from .report import json_report
 from .atomic import (
     refuse_overwriting_inputs,
     refuse_shared_outputs,
@@ -34,6 +35,13 @@ EXIT_CLEAN, EXIT_FINDINGS, EXIT_BAD_INPUT, EXIT_INTERNAL = 0, 1, 2, 3
 def demo_board_path() -> Path:
     """The invented demo board shipped inside the package."""
     return Path(str(resources.files("checker") / "data" / "demo_board.json"))
+
+
+def pairs_option(p: argparse.ArgumentParser, each: str = "the") -> None:
+    """``--pairs N|all``: how many net pairs a JSON report lists."""
+    p.add_argument("--pairs", metavar="N|all", type=json_report.parse_pairs, default=json_report.DEFAULT_PAIRS,
+                   help=f"net pairs {each} JSON report lists besides those a finding names: the N worst "
+                        f"(default {json_report.DEFAULT_PAIRS}), or 'all'")
 
 
 def limit_option(p: argparse.ArgumentParser) -> None:
@@ -79,6 +87,7 @@ def _parser() -> argparse.ArgumentParser:
                        help="for budget findings, also work out the extra spacing that would meet the budget "
                             "(solves wider tables; the fraction of today's coupling is always given)")
         limit_option(p)
+        pairs_option(p)
         p.add_argument("--accurate", action="store_true",
                        help="solve every distinct coupled cross-section directly instead of interpolating "
                             "field-solved tables (slower; the report says which mode was used)")
@@ -103,6 +112,7 @@ def _parser() -> argparse.ArgumentParser:
     batch_parser = sub.add_parser("batch", help="check many boards in parallel (files, folders or globs)")
     batch.add_arguments(batch_parser)
     limit_option(batch_parser)
+
     waive = sub.add_parser(
         "waive", help="append a waiver for one finding id to a waiver file",
         description="Append a waiver for the finding ID to the waiver file (created if missing). The id is "
@@ -188,7 +198,7 @@ def _load(board_paths: list[str], args: argparse.Namespace):
 
 
 def _check(board_paths: list[str], args: argparse.Namespace) -> int:
-    from .report import json_report, terminal
+    from .report import terminal
     from .review import build_review, load_baseline, load_waivers, today
     from .ruleset import default_ruleset, load_ruleset
     from .runner import check_board
@@ -228,7 +238,7 @@ def _check(board_paths: list[str], args: argparse.Namespace) -> int:
     result.review = build_review(result.findings, waivers, baseline, on=day)
 
     if args.format == "json":
-        emit = lambda handle: json_report.write(result, handle)  # noqa: E731
+        emit = lambda handle: json_report.write(result, handle, args.pairs)  # noqa: E731
     elif args.out:
         emit = lambda handle: terminal.render(  # noqa: E731
             result, Console(file=handle, width=140, color_system=None, soft_wrap=True))

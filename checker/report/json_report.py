@@ -7,6 +7,7 @@ to six significant digits.
 
 from __future__ import annotations
 
+import argparse
 import io
 import re
 import secrets
@@ -74,9 +75,54 @@ def _fmt(values: np.ndarray) -> list[str]:
     return ["null" if v != v else ("0" if v == 0 else "%.6g" % v) for v in values.tolist()]
 
 
-def net_pair_lines(result: Result, chunk: int = 50_000) -> Iterator[list[str]]:
-    """Every coupled net pair as one compact JSON object per line, in chunks,
-    worst noise first, then largest C12, then net order.
+#: Net pairs the JSON report lists by default besides those with a finding
+#: (``--pairs all`` lists every coupled pair).
+DEFAULT_PAIRS = 10_000
+
+
+def parse_pairs(text: str) -> int | None:
+    """``--pairs``: a whole number, or ``all`` (None: no bound)."""
+    if text.strip().lower() == "all":
+        return None
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number or 'all', got {text[:40]!r}") from None
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"expected 0 or more, got {value}")
+    return value
+
+
+def pair_order(result: Result, limit: int | None = DEFAULT_PAIRS) -> np.ndarray:
+    """Indices into ``analysis.net_pairs`` of the pairs the report lists, in
+    report order (worst noise first, then largest C12, then net order):
+    every pair that a finding names, plus the first ``limit`` in that order;
+    ``limit`` None lists them all."""
+    p = result.analysis.net_pairs
+    if len(p) == 0:
+        return np.zeros(0, dtype=np.int64)
+    worst = np.fmax(p.noise_ab_v, p.noise_ba_v)
+    worst = np.where(np.isnan(worst), -1.0, worst)
+    order = np.lexsort((p.net_b, p.net_a, -p.c12_pf, -worst))
+    if limit is None or limit >= order.size:
+        return order
+    keep = np.zeros(order.size, dtype=bool)
+    keep[:limit] = True
+    index = result.analysis.board.net_index()
+    named = {(index.get(f.aggressor, -1), index.get(f.victim, -1)) for f in result.findings}
+    named = [(min(a, b), max(a, b)) for a, b in named if a >= 0 and b >= 0]
+    if named:
+        wanted = np.array(named, dtype=np.int64)
+        lo, hi = np.minimum(p.net_a, p.net_b)[order], np.maximum(p.net_a, p.net_b)[order]
+        width = int(max(lo.max(initial=0), hi.max(initial=0), wanted.max())) + 1
+        keep |= np.isin(lo.astype(np.int64) * width + hi, wanted[:, 0] * width + wanted[:, 1])
+    return order[keep]
+
+
+def net_pair_lines(result: Result, chunk: int = 50_000, limit: int | None = None) -> Iterator[list[str]]:
+    """The coupled net pairs of :func:`pair_order` (``limit`` None: every
+    one) as one compact JSON object per line, in chunks, worst noise first,
+    then largest C12, then net order.
 
     ``noise_mv_on`` maps each net of the pair to the noise the other couples
     onto it (``null`` where the net classes lack the model's inputs).
@@ -88,9 +134,7 @@ def net_pair_lines(result: Result, chunk: int = 50_000) -> Iterator[list[str]]:
     p = a.net_pairs
     if len(p) == 0:
         return
-    worst = np.fmax(p.noise_ab_v, p.noise_ba_v)
-    worst = np.where(np.isnan(worst), -1.0, worst)
-    order = np.lexsort((p.net_b, p.net_a, -p.c12_pf, -worst))
+    order = pair_order(result, limit)
     names = [json.dumps(n.name, ensure_ascii=False) for n in a.board.nets]
     groups = [_group_name(a, g) for g in p.layer_groups]
     layer_lists: dict[int, str] = {}
@@ -297,12 +341,22 @@ class _EscapingControls:
         self.out.write(self._CONTROLS.sub(lambda m: f"\\u{ord(m.group()):04x}", text))
 
 
-def write(result: Result, out: TextIO) -> None:
+def write(result: Result, out: TextIO, pairs: int | None = DEFAULT_PAIRS) -> None:
     """Write the report: indented JSON, with the findings and the (possibly
     huge) list of net pairs one compact object per line, the net pairs
-    streamed in chunks."""
+    streamed in chunks. ``pairs``: how many net pairs to list besides those
+    with a finding (:func:`pair_order`; None: all)."""
     out = _EscapingControls(out)  # type: ignore[assignment]
     report = build_report(result)
+    listed = int(pair_order(result, pairs).size)
+    note = {
+        "listed": listed, "coupled": len(result.analysis.net_pairs),
+        "which": "every coupled net pair" if listed == len(result.analysis.net_pairs) else
+                 f"the net pairs a finding names and the {pairs} worst (noise, then C12); '--pairs all' lists all",
+    }
+    keys = list(report)
+    at = keys.index("net_pairs")
+    report = {**{k: report[k] for k in keys[:at]}, "net_pairs_listed": note, **{k: report[k] for k in keys[at:]}}
     findings, report["findings"] = report["findings"], _FINDINGS
     head = json.dumps(report, indent=2, ensure_ascii=False, allow_nan=False)
     start, rest = head.split(json.dumps(_FINDINGS), 1)
@@ -312,7 +366,7 @@ def write(result: Result, out: TextIO) -> None:
     out.write(before)
     out.write("[")
     first = True
-    for lines in net_pair_lines(result):
+    for lines in net_pair_lines(result, limit=pairs):
         out.write(("\n    " if first else ",\n    ") + ",\n    ".join(lines))
         first = False
     out.write("]" if first else "\n  ]")
@@ -320,8 +374,8 @@ def write(result: Result, out: TextIO) -> None:
     out.write("\n")
 
 
-def render(result: Result) -> str:
+def render(result: Result, pairs: int | None = DEFAULT_PAIRS) -> str:
     """The whole report as one string (see :func:`write`)."""
     buffer = io.StringIO()
-    write(result, buffer)
+    write(result, buffer, pairs)
     return buffer.getvalue()
