@@ -69,9 +69,29 @@ def compose_document(text: str, max_nodes: int, what: str) -> yaml.Node | None:
     return node
 
 
+class _Constructor(yaml.SafeLoader):
+    """SafeLoader whose value errors name the node: an explicit tag with a
+    value it cannot take (``!!float`` of nothing, ``!!timestamp x``) makes
+    PyYAML's constructors fail with IndexError, KeyError, AttributeError
+    and the like; each becomes one YamlProblem at the node's line."""
+
+    def construct_object(self, node: yaml.Node, deep: bool = False) -> Any:
+        try:
+            return super().construct_object(node, deep=deep)
+        except (YamlProblem, yaml.YAMLError):
+            raise
+        except (ValueError, OverflowError, TypeError, IndexError, KeyError, AttributeError) as exc:
+            mark = node.start_mark
+            value = node.value if isinstance(node, yaml.ScalarNode) else ""
+            tag = node.tag.replace("tag:yaml.org,2002:", "!!")
+            raise YamlProblem(mark.line + 1, mark.column + 1,
+                              f"invalid YAML value: {shorten(str(value), 40)!r} is not a value of the tag "
+                              f"{shorten(tag, 60)}") from None
+
+
 def construct(node: yaml.Node) -> Any:
     """The Python data of a composed node tree (safe tags only)."""
-    loader = yaml.SafeLoader("")
+    loader = _Constructor("")
     try:
         return loader.construct_document(node)
     except yaml.MarkedYAMLError as exc:

@@ -372,3 +372,18 @@ def test_a_long_check_prints_plain_progress_lines_when_not_on_a_terminal(capsys,
     first, last = lines[0], lines[-1]
     total = int(first.split(" of ")[1].split()[0])
     assert first.startswith("couplint: checking: 0 of ") and f"of {total} steps" in last
+
+
+@pytest.mark.parametrize("text, tag", [("version: !!float\n", "!!float"), ("!!bool\n", "!!bool"),
+                                       ("!!timestamp\n", "!!timestamp"), ("version: !!int 12x\n", "!!int")])
+def test_an_explicit_tag_with_a_value_it_cannot_take(tmp_path, capsys, text, tag) -> None:
+    """Found by the fuzz harness (tests/fuzz/crashers/rules): PyYAML's
+    constructors fail on these with IndexError, KeyError, AttributeError."""
+    for argv in (["demo", "--rules"], ["demo", "--waivers"], ["check", SIX, "--stackup"]):
+        path = tmp_path / "t.yaml"
+        path.write_text(text, encoding="utf-8")
+        code, _, err = run(capsys, *argv, path)
+        line = one_error_line(err)
+        assert code == 2 and "t.yaml: " in line, line
+        if argv[1] != "--waivers":  # the waiver reader judges nodes itself, with its own words
+            assert "t.yaml: line 1" in line and tag in line, line
