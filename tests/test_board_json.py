@@ -765,3 +765,46 @@ def test_the_quick_check_agrees_with_jsonschema() -> None:
     assert outcomes[True] > 50 and outcomes[False] > 500  # both sides were exercised
 
 
+
+
+# --------------------------------------------------------------------------- the column-wise bulk check
+
+
+def test_bulk_check_accepts_exactly_what_the_schema_accepts() -> None:
+    """checker.readers.board_json._bulk_valid checks tracks and vias a column
+    at a time for speed; the oracle is the jsonschema library validating the
+    shipped schema on the same objects. Every mutation below must get the
+    same yes/no from both."""
+    import random
+
+    from checker.readers import board_json
+
+    validator = jsonschema.Draft202012Validator(board_schema())
+    base = four()
+    track, via = base["tracks"][0], base["vias"][0]
+    values = [None, True, False, 0, -1, 0.5, 2, 1e-9, "", "x", "L1", [], [1], [1, 2], [1, 2, 3], ["1", 2],
+              [True, 1], [[1, 2]], [[1, 2], [3, 4]], [[1, 2], [3]], [[1, 2], [3, True]], {}, {"a": 1}]
+    rng = random.Random(5)
+    cases = []
+    for template, kind in ((track, "tracks"), (via, "vias")):
+        keys = list(template) + ["net", "extra", "points", "at"]
+        for _ in range(1500):
+            obj = copy.deepcopy(template)
+            for _ in range(rng.randint(1, 3)):
+                key = rng.choice(keys)
+                if rng.random() < 0.2:
+                    obj.pop(key, None)
+                else:
+                    obj[key] = copy.deepcopy(rng.choice(values))
+            cases.append((kind, obj))
+        cases.append((kind, copy.deepcopy(template)))
+    agree = valid = 0
+    for kind, obj in cases:
+        board = copy.deepcopy(base)
+        board[kind] = [copy.deepcopy(x) for x in base[kind]] + [obj]
+        expected = validator.is_valid(board)
+        got = board_json._bulk_valid(kind, board[kind]) and board_json._valid_fast(board)
+        assert got == expected, (kind, obj)
+        agree += 1
+        valid += expected
+    assert agree == len(cases) and 10 < valid < len(cases) - 100  # both answers occur often
