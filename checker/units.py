@@ -75,7 +75,10 @@ def parse_quantity(value: object, kind: str) -> float:
         raise UnitError(f"unknown {kind} unit {shorten(unit, 20)!r} (accepted: {accepted})")
     if not math.isfinite(number):
         raise UnitError(f"{kind} must be a finite number, got {shown}")
-    return round(number * table[unit], 15) if kind == "length" else number * table[unit]
+    value = number * table[unit]
+    if not math.isfinite(value):  # 1e308 MHz: finite as written, not once in Hz
+        raise UnitError(f"{kind} far too large, got {shown}")
+    return round(value, 15) if kind == "length" else value
 
 
 def _float(text: int | float | str, kind: str, shown: str) -> float:

@@ -387,3 +387,14 @@ def test_an_explicit_tag_with_a_value_it_cannot_take(tmp_path, capsys, text, tag
         assert code == 2 and "t.yaml: " in line, line
         if argv[1] != "--waivers":  # the waiver reader judges nodes itself, with its own words
             assert "t.yaml: line 1" in line and tag in line, line
+
+
+def test_a_quantity_finite_as_written_but_not_in_si(tmp_path, capsys) -> None:
+    """Found by the fuzz harness (tests/fuzz/crashers/rules/2c6118552624):
+    1e308 MHz is 1e314 Hz, beyond the IEEE-754 double range."""
+    text = RULES.read_text(encoding="utf-8").replace("frequency: 25 MHz", "frequency: 1e308 MHz")
+    rules = tmp_path / "r.yaml"
+    rules.write_text(text, encoding="utf-8")
+    code, _, err = run(capsys, "demo", "--rules", rules)
+    line = one_error_line(err)
+    assert code == 2 and "net_classes.clocks.frequency: frequency far too large" in line
