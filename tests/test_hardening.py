@@ -398,3 +398,18 @@ def test_a_quantity_finite_as_written_but_not_in_si(tmp_path, capsys) -> None:
     code, _, err = run(capsys, "demo", "--rules", rules)
     line = one_error_line(err)
     assert code == 2 and "net_classes.clocks.frequency: frequency far too large" in line
+
+
+def test_rich_markup_in_a_name_is_shown_as_text(tmp_path, capsys) -> None:
+    """A name is the input's to choose: rich markup in it ([link=...] would
+    make an OSC 8 hyperlink) must print as the characters themselves."""
+    board = json.loads((ROOT / "fixtures" / "two_layer_parallel.json").read_text(encoding="utf-8"))
+    hostile = "[link=http://example.invalid][bold]CLK_A[/bold][/link]"
+    board["nets"] = [dict(n, name=hostile) if n["name"] == "CLK_A" else n for n in board["nets"]]
+    for item in board.get("tracks", []):
+        if item.get("net") == "CLK_A":
+            item["net"] = hostile
+    path = tmp_path / "markup.json"
+    path.write_text(json.dumps(board), encoding="utf-8")
+    code, out, err = run(capsys, "check", path)
+    assert code == 1 and hostile in out and "\x1b" not in out + err
