@@ -607,8 +607,11 @@ def load_baseline(path: str | os.PathLike[str]) -> Baseline:
         data = json.loads(text, object_pairs_hook=pairs)
     except json.JSONDecodeError as exc:
         raise BaselineError(file, f"line {exc.lineno}, column {exc.colno}", f"invalid JSON: {exc.msg}") from None
-    except (RecursionError, ValueError) as exc:
-        raise BaselineError(file, None, f"invalid JSON: {exc}") from None
+    except RecursionError:
+        raise BaselineError(file, None, "invalid JSON: nested far too deeply (a couplint report nests a few "
+                                        "levels)") from None
+    except ValueError:  # Python refuses to convert an integer of thousands of digits
+        raise BaselineError(file, None, "invalid JSON: a number with thousands of digits") from None
 
     def fail(place: str | None, message: str) -> BaselineError:
         return BaselineError(file, place, message)

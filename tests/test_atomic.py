@@ -56,8 +56,8 @@ import pathlib, sys, time
 import checker.cli as cli
 import checker.report.json_report as json_report
 original = json_report.write
-def stalling(result, handle):
-    original(result, handle)
+def stalling(result, handle, *rest):
+    original(result, handle, *rest)
     handle.flush()
     pathlib.Path(sys.argv[2]).write_text("ready")
     time.sleep(120)

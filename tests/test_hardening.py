@@ -413,3 +413,16 @@ def test_rich_markup_in_a_name_is_shown_as_text(tmp_path, capsys) -> None:
     path.write_text(json.dumps(board), encoding="utf-8")
     code, out, err = run(capsys, "check", path)
     assert code == 1 and hostile in out and "\x1b" not in out + err
+
+
+@pytest.mark.parametrize("text, words", [
+    ('{"report": "couplint", "x": ' + "[" * 5000 + "]" * 5000 + "}", "nested far too deeply"),
+    ('{"report": "couplint", "x": 1' + "0" * 5000 + "}", "a number with thousands of digits"),
+])
+def test_baseline_nesting_and_huge_numbers_are_worded(tmp_path, capsys, text, words) -> None:
+    """Reported by the fuzz harness's run: both gave Python's own wording."""
+    path = tmp_path / "old.json"
+    path.write_text(text, encoding="utf-8")
+    code, _, err = run(capsys, "demo", "--baseline", path)
+    line = one_error_line(err)
+    assert code == 2 and f"old.json: invalid JSON: {words}" in line

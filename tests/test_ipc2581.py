@@ -935,6 +935,16 @@ def test_inch_coordinate_beyond_ten_metres(tmp_path):
     refused(ipc(tmp_path, top, units="INCH"), "12700 mm", "more than 10 m")
 
 
+@pytest.mark.parametrize("er, tan_d, where, words", [
+    (4.5, "1e308", "Dielectric[2]/Property", "a loss tangent 1e+308 is above the sanity bound (0 to 1)"),
+    ("1e308", 0.02, "Dielectric[1]/Property", "a dielectric constant 1e+308 is above the sanity bound (1 to 100)"),
+])
+def test_material_value_beyond_its_sanity_bound(tmp_path, er, tan_d, where, words):
+    """Refused at the Spec's own Property: a loss tangent of 1e308 once
+    overflowed the series rule (complex division by zero)."""
+    refused(ipc(tmp_path, specs=spec("S_CORE", er, tan_d)), f"Spec[1]/{where}", words)
+
+
 def test_absurd_thickness(tmp_path):
     refused(ipc(tmp_path, stackup=STACKUP.replace('"1.5"', '"15000"')), "StackupLayer[2]", "more than 10 m")
 

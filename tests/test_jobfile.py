@@ -162,6 +162,12 @@ M = "MaterialStackup"
         (lambda j: j[M][7].update(DielectricConstant=True), "MaterialStackup[7].DielectricConstant",
          "must be a number, got true"),
         (lambda j: j[M][4].update(LossTangent=-0.1), "MaterialStackup[4].LossTangent", "must be >= 0"),
+        # the sanity bounds of checker/bounds.py, at the entry's own key: a loss tangent of 1e308 once
+        # overflowed the series rule (complex division by zero) before any bound was checked
+        (lambda j: j[M][4].update(LossTangent=1e308), "MaterialStackup[4].LossTangent",
+         "1e+308 is above the sanity bound (0 to 1)"),
+        (lambda j: j[M][7].update(DielectricConstant=1e6), "MaterialStackup[7].DielectricConstant",
+         "1e+06 is above the sanity bound (1 to 100)"),
         (lambda j: j[M][7].update(Type="SolderMask"), "MaterialStackup[7].Type",
          "only Dielectric entries can lie between copper layers"),
         (lambda j: j[M].pop(7), "MaterialStackup[7]", "two copper layers with no Dielectric entry between them"),
@@ -192,6 +198,17 @@ def test_bad_stackup_gives_one_error_with_the_json_path(edit, place: str, messag
     assert err.file == "job.gbrjob" and err.place == place and err.line is None
     assert str(err).startswith(f"job.gbrjob: {place}: ")
     assert message in str(err)
+
+
+def test_series_rule_takes_thicknesses_near_the_smallest_float() -> None:
+    # PP1 (er 4.0) and PP2 (er 4.5) of equal thickness: 2 / (1/4 + 1/4.5) = 72/17 by hand, whatever the
+    # thickness; at 5e-324 mm each t/er rounds to 0 (once a ZeroDivisionError), so the rule must scale
+    def both(t):
+        return changed(lambda j: (j[M][4].update(Thickness=t), j[M][5].update(Thickness=t)))
+    for t in (0.1, 5e-324):
+        d = read(both(t)).stackup.dielectrics[0]
+        assert d.er == pytest.approx(72 / 17, rel=1e-12)
+        assert d.thickness_mm == 2 * t
 
 
 def test_dielectric_without_thickness_names_the_flag_that_supplies_it() -> None:

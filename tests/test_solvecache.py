@@ -132,17 +132,23 @@ def test_prune_keeps_the_newest(cache) -> None:
 
 
 def test_a_warm_recheck_writes_the_same_report(cache, tmp_path) -> None:
-    from checker.cli import main
+    """Three fresh runs of the demo (as a user re-checks): cold, warm, and
+    with the cache off; the reports are byte-identical and the warm run
+    solved nothing new."""
+    import subprocess
+    import sys
+
+    def demo(out, cache_dir) -> None:
+        env = dict(os.environ, COUPLINT_CACHE_DIR=cache_dir)
+        proc = subprocess.run([sys.executable, "-m", "checker.cli", "demo", "--format", "json", "--out", str(out)],
+                              env=env, capture_output=True, text=True)
+        assert proc.returncode == 1, proc.stderr
 
     reports = [tmp_path / f"r{i}.json" for i in range(3)]
-    assert main(["demo", "--format", "json", "--out", str(reports[0])]) == 1
+    demo(reports[0], str(cache))
     stored = len(entries(cache))
     assert stored > 10
-    assert main(["demo", "--format", "json", "--out", str(reports[1])]) == 1
+    demo(reports[1], str(cache))
     assert len(entries(cache)) == stored  # nothing new to solve
-    os.environ["COUPLINT_CACHE_DIR"] = "off"
-    try:
-        assert main(["demo", "--format", "json", "--out", str(reports[2])]) == 1
-    finally:
-        os.environ["COUPLINT_CACHE_DIR"] = str(cache)
+    demo(reports[2], "off")
     assert reports[0].read_bytes() == reports[1].read_bytes() == reports[2].read_bytes()

@@ -204,6 +204,7 @@ import shapely.affinity
 from shapely.geometry.polygon import orient
 
 from .. import limits
+from ..bounds import LOSS_TANGENT, PERMITTIVITY
 from ..errors import FabError
 from ..model import Board, CopperLayer, Dielectric, Stackup
 from .arcs import arc_polyline
@@ -820,6 +821,11 @@ class _Reader:
                     self.fail(prop, f"{here}/Property", f"a dielectric constant must be >= 1, got {value:g}")
                 if kind == "LOSS_TANGENT" and value < 0:
                     self.fail(prop, f"{here}/Property", f"a loss tangent must be >= 0, got {value:g}")
+                # above its sanity bound a value overflows the series rule that joins the layers
+                bound = PERMITTIVITY if kind == "DIELECTRIC_CONSTANT" else LOSS_TANGENT
+                problem = bound.problem(value, "a dielectric constant" if bound is PERMITTIVITY else "a loss tangent")
+                if problem is not None:
+                    self.fail(prop, f"{here}/Property", problem)
                 values[kind] = value
             out[name] = (values.get("DIELECTRIC_CONSTANT"), values.get("LOSS_TANGENT"), spec, path)
         return out

@@ -86,6 +86,7 @@ import os
 import re
 from typing import Any, BinaryIO, NoReturn
 
+from ...bounds import LOSS_TANGENT, PERMITTIVITY, Bound
 from ...errors import FabError
 from ...model import CopperLayer, Dielectric, Stackup
 from ..board_json import describe_json_value, format_path
@@ -140,15 +141,27 @@ def series_dielectric(layers: list[tuple[float, float, float | None, str | None,
     rule (``None`` if any part lacks one). Every fabrication door with a
     layered stackup uses it."""
     total = sum(t for t, _, _, _, _ in layers)
-    er = total / sum(t / e for t, e, _, _, _ in layers)
+    er = _series(total, [(t, e) for t, e, _, _, _ in layers])
     tan_d = None
     if all(tan is not None for _, _, tan, _, _ in layers):
-        eps = total / sum(t / (e * complex(1.0, -tan)) for t, e, tan, _, _ in layers)
+        eps = _series(total, [(t, e * complex(1.0, -tan)) for t, e, tan, _, _ in layers])
         tan_d = -eps.imag / eps.real
     names = [n for _, _, _, n, _ in layers if n]
     assumed = tuple(sorted({a for *_, parts_assumed in layers for a in parts_assumed}))
     return Dielectric(thickness_mm=total, er=er, loss_tangent=tan_d, name=" + ".join(names) or None,
                       assumed=assumed)
+
+
+def _series(total: float, parts: list[tuple[float, complex]]) -> complex:
+    """``total / Σ(tᵢ / εᵢ)``. Callers bound each εᵢ (1 to 100, loss tangent
+    0 to 1), so only thicknesses near the smallest float can break the sum
+    (``tᵢ / εᵢ`` rounds to 0): then the same sum is taken with thicknesses
+    relative to the thickest layer, which cannot round to 0."""
+    denominator = sum(t / e for t, e in parts)
+    if denominator != 0:
+        return total / denominator
+    top = max(t for t, _ in parts)
+    return (total / top) / sum((t / top) / e for t, e in parts)
 
 
 # --------------------------------------------------------------------------- JSON
@@ -233,6 +246,13 @@ class _Job:
         if number < minimum or (exclusive and number == minimum):
             self.fail(path, f"must be {'>' if exclusive else '>='} {minimum:g}, got {describe_json_value(value)}")
         return number
+
+    def bounded(self, path: tuple, number: float, bound: Bound) -> None:
+        """Refuse a material value outside its physical sanity bound here, at
+        its own key: the series rule that joins the layers needs it finite."""
+        problem = bound.problem(number)
+        if problem is not None:
+            self.fail(path, problem)
 
     def length(self, path: tuple, value: Any) -> float:
         mm = self.number(path, value, minimum=0.0, exclusive=True)
@@ -385,6 +405,7 @@ class _Job:
         if "DielectricConstant" in entry:
             er = self.number(here + ("DielectricConstant",), entry["DielectricConstant"], minimum=1.0,
                              exclusive=False, text_ok=True)
+            self.bounded(here + ("DielectricConstant",), er, PERMITTIVITY)
         else:
             er = DEFAULT_MASK_ER if mask else DEFAULT_DIELECTRIC_ER
             assumed.append("er")
@@ -393,6 +414,7 @@ class _Job:
         if "LossTangent" in entry:
             tan_d = self.number(here + ("LossTangent",), entry["LossTangent"], minimum=0.0, exclusive=False,
                                 text_ok=True)
+            self.bounded(here + ("LossTangent",), tan_d, LOSS_TANGENT)
         name = self.text(here + ("Name",), entry["Name"]) if "Name" in entry else None
         return thickness, er, tan_d, name, tuple(assumed)
 
