@@ -127,3 +127,37 @@ def test_netlist_sniff_takes_long_headers_and_digit_net_names_but_not_csv(tmp_pa
     found = collect([str(folder)])
     assert [m.name.rsplit("/", 1)[-1] for m in found.netlists] == ["a.net"]
     assert any("pnp.csv" in s for s in found.skipped)
+
+
+def test_touching_copper_pairs_match_a_brute_force_distance_check() -> None:
+    """assemble._touching (bounding-box candidates, then GEOS distance-within
+    with polygons prepared) finds exactly the pairs a brute-force
+    shapely.distance over every pair finds, on traces, pads and pours with
+    holes."""
+    import numpy as np
+    import shapely
+
+    from checker.readers.fab.assemble import TOUCH_TOLERANCE_MM, _points_on, _touching
+
+    rng = np.random.default_rng(11)
+    n = 120
+    x, y = rng.uniform(0, 20, n), rng.uniform(0, 20, n)
+    angle, length = rng.uniform(0, 2 * np.pi, n), rng.uniform(0.2, 4, n)
+    lines = shapely.linestrings(np.stack([np.stack([x, y], 1),
+                                          np.stack([x + length * np.cos(angle), y + length * np.sin(angle)], 1)], 1))
+    pads = shapely.buffer(shapely.points(rng.uniform(0, 20, (40, 2))), rng.uniform(0.2, 0.8, 40), quad_segs=4)
+    holes = shapely.union_all(shapely.buffer(shapely.points(rng.uniform(5, 15, (30, 2))), 0.5))
+    pour = shapely.difference(shapely.box(4, 4, 16, 16), holes)
+    geoms = np.concatenate([lines, pads, np.array([pour], dtype=object)])
+    radius = np.concatenate([rng.uniform(0.05, 0.3, n), np.zeros(41)])
+    a, b = _touching(geoms, radius)
+    got = set(zip(a.tolist(), b.tolist()))
+    i, j = np.triu_indices(len(geoms), 1)
+    want_mask = shapely.distance(geoms[i], geoms[j]) <= radius[i] + radius[j] + TOUCH_TOLERANCE_MM
+    want = set(zip(i[want_mask].tolist(), j[want_mask].tolist()))
+    assert got == want and len(want) > 50
+    points = shapely.points(rng.uniform(0, 20, (200, 2)))
+    at, hit = _points_on(geoms, radius, points)
+    pi, gi = np.meshgrid(np.arange(200), np.arange(len(geoms)), indexing="ij")
+    on = shapely.distance(geoms[gi.ravel()], points[pi.ravel()]) <= radius[gi.ravel()] + TOUCH_TOLERANCE_MM
+    assert set(zip(at.tolist(), hit.tolist())) == set(zip(pi.ravel()[on].tolist(), gi.ravel()[on].tolist()))
