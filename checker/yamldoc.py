@@ -80,7 +80,7 @@ class _Constructor(yaml.SafeLoader):
             return super().construct_object(node, deep=deep)
         except (YamlProblem, yaml.YAMLError):
             raise
-        except (ValueError, OverflowError, TypeError, IndexError, KeyError, AttributeError) as exc:
+        except (ValueError, OverflowError, TypeError, IndexError, KeyError, AttributeError):
             mark = node.start_mark
             value = node.value if isinstance(node, yaml.ScalarNode) else ""
             tag = node.tag.replace("tag:yaml.org,2002:", "!!")

@@ -31,6 +31,30 @@ def run(capsys, *argv) -> tuple[int, str, str]:
     return code, out, err
 
 
+def six_layer_with(tmp_path, file: str, old: str, new: str) -> Path:
+    """A copy of the six-layer fixture package with one text replaced in one file."""
+    package = tmp_path / "pkg"
+    shutil.copytree(SIX, package)
+    path = package / file
+    text = path.read_text(encoding="utf-8")
+    assert old in text
+    path.write_text(text.replace(old, new, 1), encoding="utf-8")
+    return package
+
+
+def board_with_net_named(tmp_path, name: str) -> Path:
+    """The two-layer fixture board with its net CLK_A renamed ``name``, written to a file."""
+    board = json.loads((ROOT / "fixtures" / "two_layer_parallel.json").read_text(encoding="utf-8"))
+    board["nets"] = [dict(n, name=name) if n["name"] == "CLK_A" else n for n in board["nets"]]
+    for key in ("tracks", "arcs", "regions", "vias"):
+        for item in board.get(key, []):
+            if item.get("net") == "CLK_A":
+                item["net"] = name
+    path = tmp_path / "renamed.json"
+    path.write_text(json.dumps(board), encoding="utf-8")
+    return path
+
+
 def one_error_line(err: str) -> str:
     lines = err.strip().splitlines()
     assert len(lines) == 1, err[:2000]
@@ -124,12 +148,7 @@ def test_sub_micron_dielectric_in_a_json_board(tmp_path, capsys) -> None:
 
 
 def test_sub_micron_dielectric_in_a_job_file(tmp_path, capsys) -> None:
-    package = tmp_path / "pkg"
-    shutil.copytree(SIX, package)
-    job = package / "six-layer-fab.gbrjob"
-    text = job.read_text(encoding="utf-8")
-    assert '"Thickness": 0.21,' in text
-    job.write_text(text.replace('"Thickness": 0.21,', '"Thickness": 1e-16,', 1), encoding="utf-8")
+    package = six_layer_with(tmp_path, "six-layer-fab.gbrjob", '"Thickness": 0.21,', '"Thickness": 1e-16,')
     code, _, err = run(capsys, "check", package)
     line = one_error_line(err)
     assert code == 2
@@ -137,12 +156,7 @@ def test_sub_micron_dielectric_in_a_job_file(tmp_path, capsys) -> None:
 
 
 def test_nanometre_aperture_in_a_gerber(tmp_path, capsys) -> None:
-    package = tmp_path / "pkg"
-    shutil.copytree(SIX, package)
-    gerber = package / "six-layer-fab-L1.gbr"
-    text = gerber.read_text(encoding="utf-8")
-    assert "%ADD10C,0.15*%" in text
-    gerber.write_text(text.replace("%ADD10C,0.15*%", "%ADD10C,0.0000001*%"), encoding="utf-8")
+    package = six_layer_with(tmp_path, "six-layer-fab-L1.gbr", "%ADD10C,0.15*%", "%ADD10C,0.0000001*%")
     code, _, err = run(capsys, "check", package)
     line = one_error_line(err)
     assert code == 2
@@ -236,10 +250,8 @@ def test_bytes_are_counted_while_read(monkeypatch) -> None:
             second.read()
 
 
-def test_gerber_draws_cap_names_file_line_and_option(tmp_path, capsys) -> None:
-    package = tmp_path / "pkg"
-    shutil.copytree(SIX, package)
-    code, _, err = run(capsys, "check", package, "--limit", "draws=20")
+def test_gerber_draws_cap_names_file_line_and_option(capsys) -> None:
+    code, _, err = run(capsys, "check", SIX, "--limit", "draws=20")
     line = one_error_line(err)
     assert code == 2
     assert "six-layer-fab-L1.gbr: line 67: the step and repeat opened here makes 12 copies: more objects than " \
@@ -320,15 +332,8 @@ def test_control_characters_are_neutralised_in_every_output(tmp_path, capsys) ->
     the terminal or a file raw: terminal, JSON (escaped \\u00XX, RFC 8259
     section 7 allows any character escaped), HTML, SVG and JUnit XML (XML 1.0
     section 2.2: C0 forbidden, DEL and C1 discouraged) show escapes."""
-    board = json.loads((ROOT / "fixtures" / "two_layer_parallel.json").read_text(encoding="utf-8"))
     hostile = "CLK_A\x1b]0;pwned\x07\x9b2J\x7f\x00"
-    board["nets"] = [dict(n, name=hostile) if n["name"] == "CLK_A" else n for n in board["nets"]]
-    for key in ("tracks", "arcs", "regions", "vias"):
-        for item in board.get(key, []):
-            if item.get("net") == "CLK_A":
-                item["net"] = hostile
-    path = tmp_path / "hostile.json"
-    path.write_text(json.dumps(board), encoding="utf-8")
+    path = board_with_net_named(tmp_path, hostile)
     outputs = {name: tmp_path / name for name in ("r.html", "o.svg", "j.xml")}
     code, out, err = run(capsys, "check", path, "--format", "json", "--html", outputs["r.html"],
                          "--svg", outputs["o.svg"], "--junit", outputs["j.xml"])
@@ -403,14 +408,8 @@ def test_a_quantity_finite_as_written_but_not_in_si(tmp_path, capsys) -> None:
 def test_rich_markup_in_a_name_is_shown_as_text(tmp_path, capsys) -> None:
     """A name is the input's to choose: rich markup in it ([link=...] would
     make an OSC 8 hyperlink) must print as the characters themselves."""
-    board = json.loads((ROOT / "fixtures" / "two_layer_parallel.json").read_text(encoding="utf-8"))
     hostile = "[link=http://example.invalid][bold]CLK_A[/bold][/link]"
-    board["nets"] = [dict(n, name=hostile) if n["name"] == "CLK_A" else n for n in board["nets"]]
-    for item in board.get("tracks", []):
-        if item.get("net") == "CLK_A":
-            item["net"] = hostile
-    path = tmp_path / "markup.json"
-    path.write_text(json.dumps(board), encoding="utf-8")
+    path = board_with_net_named(tmp_path, hostile)
     code, out, err = run(capsys, "check", path)
     assert code == 1 and hostile in out and "\x1b" not in out + err
 
