@@ -190,3 +190,23 @@ M02*
     w, length = 1.0, 6.0
     assert region.polygon.area == pytest.approx(200 - (length * w + math.pi * w * w / 4) - math.pi * w * w / 4,
                                                 rel=1e-12)
+
+
+@pytest.mark.parametrize("negative_zero", [False, True])
+def test_region_vertices_in_the_common_spelling_read_bit_for_bit(negative_zero):
+    # 4.10: a contour written X<x>Y<y>D01* only (the spelling region runs take in bulk); every vertex is
+    # int(digits) / 1e6, and a coordinate written "-0" keeps its sign (-0.0) as the line-by-line path reads it
+    side = 40
+    pts = [(k * 250_000, 0) for k in range(side)] + [(side * 250_000, k * 250_000) for k in range(side)] + \
+          [(side * 250_000 - k * 250_000, side * 250_000) for k in range(side)] + \
+          [(0, side * 250_000 - k * 250_000) for k in range(side)]
+    lines = [HEADER, "G36*\n", "X0Y0D02*\n"]
+    for k, (px, py) in enumerate(pts[1:] + pts[:1]):
+        lines.append(f"X{'-0' if negative_zero and px == 0 else px}Y{py}D01*\n")
+    lines.append("G37*\nM02*\n")
+    (region,) = read_text("".join(lines)).shapes
+    xy = shapely.get_coordinates(region.polygon.exterior)
+    assert region.polygon.area == pytest.approx((side * 0.25) ** 2, rel=1e-15)
+    zero_x = xy[:-1][xy[:-1, 0] == 0.0, 0]
+    assert zero_x.size >= side  # the left side's vertices
+    assert np.signbit(zero_x).sum() == (zero_x.size - 1 if negative_zero else 0)  # the D02 start is "X0"

@@ -532,7 +532,7 @@ class _GerberReader:
                                     contour = region.current
                                     if contour is None:
                                         contour = self._start_contour(cx, cy)
-                                contour.add_run(buf[pos:rend], n, cx, cy, div_x, div_y, False)
+                                contour.add_run(buf[pos:rend], n, cx, cy, div_x, div_y, False, simple)
                                 region.points += n - lead
                                 if region.points > MAX_REGION_POINTS:
                                     raise self._too_many_region_points()

@@ -31,6 +31,9 @@ from ..arcs import chord_count
 
 _TO_SPACE = bytes.maketrans(b"XYD*", b"    ")
 _EMPTY = np.zeros(0, dtype=np.float64)
+#: A coordinate written as a negative zero (``X-0Y``, ``Y-000D``): the one
+#: spelling whose general-path value (``-0.0``) the bulk integer parse loses.
+_NEGATIVE_ZERO = re.compile(rb"-0++[YD]")
 
 
 @functools.cache
@@ -217,7 +220,7 @@ def _parse_runs(text: bytes, lines: np.ndarray, x0: np.ndarray, y0: np.ndarray, 
     ``div_y`` hold each line's units per mm; ``simple``: every line is
     ``X<x>Y<y>D01*`` or ``D02*`` (the simple expression matched them)."""
     total = int(lines.sum())
-    if not negate_after and (simple or (
+    if (not negate_after or _NEGATIVE_ZERO.search(text) is None) and (simple or (
             b"G" not in text and b"\r" not in text and text.count(b"X") == total and text.count(b"Y") == total
             and text.count(b"D01*\n") + text.count(b"D02*\n") == total)):
         # every line is exactly X<x>Y<y>D01* (or D02*): the numbers alone, three a line
