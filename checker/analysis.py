@@ -361,6 +361,8 @@ def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=No
     searched: list[tuple[int, int]] = []
     covered: list[str] = []
     shielded_rows = 0
+    if s.planes_shield:
+        ref.prepare_between(layer_pairs)  # the distinct unions at once, on the cores a check may use
     for kind, u, l in tasks:
         if progress is not None:
             where = stackup.layers[u].name + (f"/{stackup.layers[l].name}" if u != l else "")

@@ -33,6 +33,7 @@ from dataclasses import asdict, dataclass, field
 from typing import Callable, Iterable, Iterator
 
 from . import __version__, limits
+from . import cores as core_count
 from .atomic import Stopped, refuse_overwriting_inputs, write_atomically
 from .errors import CouplintError, UsageError, bounded
 from .report.json_report import DEFAULT_PAIRS, parse_pairs
@@ -98,7 +99,7 @@ class BoardOutcome:
 def check_one(path: str, rules: str | None, fail_on: str = "warning", waivers: str | None = None,
               baseline: str | None = None, today: datetime.date | None = None,
               stackup: str | None = None, caps: limits.Limits | None = None,
-              pairs: int | None = DEFAULT_PAIRS) -> BoardOutcome:
+              pairs: int | None = DEFAULT_PAIRS, cores: int | None = None) -> BoardOutcome:
     """Check one board file; runs in a worker. Never raises: a board that
     cannot be loaded or checked comes back with ``verdict="error"`` and the
     message in ``error``.
@@ -108,8 +109,9 @@ def check_one(path: str, rules: str | None, fail_on: str = "warning", waivers: s
     date waiver expiry is judged on (default: the worker's today);
     ``stackup``: a stackup YAML for fabrication packages without a job file;
     ``caps``: the resource caps (``--limit``; default: :mod:`checker.limits`'s);
-    ``pairs``: net pairs the JSON report lists besides those a finding names."""
-    with limits.using(caps):
+    ``pairs``: net pairs the JSON report lists besides those a finding names;
+    ``cores``: processor cores the check may use (:mod:`checker.cores`)."""
+    with limits.using(caps), core_count.using(cores):
         return _check_one(path, rules, fail_on, waivers, baseline, today, stackup, pairs)
 
 
@@ -269,7 +271,8 @@ def run(args: argparse.Namespace) -> int:
         load_waivers(args.waivers)
         today = review_today()  # one date for every board, also on remote workers
     options = {"rules": args.rules, "fail_on": args.fail_on, "waivers": args.waivers, "today": today,
-               "stackup": args.stackup, "caps": limits.current(), "pairs": args.pairs}
+               "stackup": args.stackup, "caps": limits.current(), "pairs": args.pairs,
+               "cores": _cores_per_check(args, len(boards))}
     if args.scheduler:
         source = _dask_outcomes(boards, baselines, options, args.scheduler, args.connect_timeout)
     else:
@@ -498,6 +501,18 @@ def _close_pool(pool, stopping: bool) -> None:
         pool.shutdown(wait=False, cancel_futures=True)
     else:
         pool.shutdown(wait=True, cancel_futures=True)
+
+
+def _cores_per_check(args: argparse.Namespace, boards: int) -> int:
+    """Cores each board's check may use: ``--cores`` if given; else, with
+    worker processes, the cores shared out among them (at least 1);
+    without, every core (:func:`checker.cores.count`); on a cluster, 1."""
+    given = getattr(args, "cores", None)
+    if given is not None:
+        return given
+    if getattr(args, "scheduler", None):
+        return 1  # a cluster's workers share their machines with one another
+    return max(1, core_count.count() // min(args.jobs, max(boards, 1)))
 
 
 def _pool_outcomes(boards: list[str], baselines: dict[str, str], options: dict, jobs: int) -> _Stream:

@@ -16,7 +16,7 @@ from pathlib import Path
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
-from . import __version__, batch, limits, progress
+from . import __version__, batch, cores, limits, progress
 from .report import json_report
 from .atomic import (
     refuse_overwriting_inputs,
@@ -50,6 +50,20 @@ def limit_option(p: argparse.ArgumentParser) -> None:
                    help="raise or lower a resource cap, repeatable: file-mb (default 512), package-mb (2048), "
                         "draws (5000000 per Gerber layer), shapes (1000000 per Gerber layer), track-points "
                         "(1000000 per JSON track or outline); see the README's caps")
+
+
+def cores_option(p: argparse.ArgumentParser, each: str = "a check") -> None:
+    """``--cores N``: how many processor cores one check may use."""
+    p.add_argument("--cores", metavar="N", type=_cores_arg, default=None,
+                   help=f"processor cores {each} may use (default: ${cores.CORES_ENV}, else all this process may "
+                        f"run on, at most {cores.MAX_CORES}); the report is the same for any N")
+
+
+def _cores_arg(text: str) -> int:
+    try:
+        return cores.parse_cores(text)
+    except UsageError as exc:
+        raise argparse.ArgumentTypeError(str(exc).removeprefix("--cores: ")) from None
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -88,6 +102,7 @@ def _parser() -> argparse.ArgumentParser:
                             "(solves wider tables; the fraction of today's coupling is always given)")
         limit_option(p)
         pairs_option(p)
+        cores_option(p)
         p.add_argument("--accurate", action="store_true",
                        help="solve every distinct coupled cross-section directly instead of interpolating "
                             "field-solved tables (slower; the report says which mode was used)")
@@ -112,6 +127,7 @@ def _parser() -> argparse.ArgumentParser:
     batch_parser = sub.add_parser("batch", help="check many boards in parallel (files, folders or globs)")
     batch.add_arguments(batch_parser)
     limit_option(batch_parser)
+    cores_option(batch_parser, "each board's check (with several worker processes, by default 1)")
 
     waive = sub.add_parser(
         "waive", help="append a waiver for one finding id to a waiver file",
@@ -138,7 +154,8 @@ def main(argv: list[str] | None = None) -> int:
         return EXIT_BAD_INPUT if exc.code not in (0, None) else EXIT_CLEAN
     try:
         caps = limits.parse(getattr(args, "limit", None) or [])
-        with removing_temporaries_on_signals(), limits.using(caps), progress.to(_progress_line):
+        with removing_temporaries_on_signals(), limits.using(caps), progress.to(_progress_line), \
+                cores.using(getattr(args, "cores", None)):
             return _dispatch(args)
     except Stopped as exc:  # SIGTERM or SIGHUP (see removing_temporaries_on_signals)
         print(f"couplint: stopped by a signal (exit {exc.code}); no output was left half-written", file=sys.stderr)
@@ -220,20 +237,32 @@ def _check(board_paths: list[str], args: argparse.Namespace) -> int:
         with Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
                       TimeElapsedColumn(), console=err, transient=True) as bar:
             task = bar.add_task("checking", total=None)
+            step = ["checking"]
 
             def advance(what: str, done: int, total: int) -> None:
+                step[0] = what
                 bar.update(task, description=what, completed=done, total=total)
 
-            result = check_board(board, ruleset, progress=advance, accurate=args.accurate,
+            def within(text: str) -> None:  # how far the step has got (pairs measured, solves done)
+                bar.update(task, description=f"{step[0]}: {text}")
+
+            with progress.details_to(within):
+                result = check_board(board, ruleset, progress=advance, accurate=args.accurate,
                                      what_if=args.what_if)
     else:  # plain lines (CI logs): a long check says where it is every few seconds
         stage = progress.Stage("checking", unit="steps", scale=1)
+        at = ["checking", 0]
 
         def lines(what: str, done: int, total: int) -> None:
+            at[:] = [what, done]
             stage.total = total
             stage.at(done, what)
 
-        result = check_board(board, ruleset, progress=lines, accurate=args.accurate, what_if=args.what_if)
+        def within(text: str) -> None:
+            stage.at(at[1], f"{at[0]}: {text}")
+
+        with progress.details_to(within):
+            result = check_board(board, ruleset, progress=lines, accurate=args.accurate, what_if=args.what_if)
     result.fail_on = args.fail_on
     result.review = build_review(result.findings, waivers, baseline, on=day)
 

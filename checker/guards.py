@@ -76,7 +76,7 @@ from .model import NO_NET, Board, Pieces
 from .physics.broadside import mask_blocks, solve_shared
 from .physics.edge import edge_section
 from .physics.fieldsolve import GROUND, Conductor, CrossSection
-from .shielding import piece_polygons, valid
+from .shielding import cover_tiles, piece_polygons, valid
 
 #: Default fraction of a wavelength between stitching vias (common practice).
 STITCH_FRACTION = 0.05
@@ -247,10 +247,13 @@ def _ground_points(line, k: int, w: float, vias, via_ref: np.ndarray, pours) -> 
             on = shapely.distance(line, pts) <= w / 2 + vias.pad[near] / 2
             at.extend(shapely.line_locate_point(line, pts[on]).tolist())
     if pours is not None:
+        tiles, tree = pours
         coords = np.asarray(line.coords)
         for end, s in ((coords[0], 0.0), (coords[-1], float(line.length))):
-            touch = shapely.intersection(pours, shapely.Point(end).buffer(w / 2 + 2e-3))
-            if shapely.area(touch) > 1e-4:
+            disk = shapely.Point(end).buffer(w / 2 + 2e-3)
+            hit = tree.query(disk)
+            # the pours' share of the disk: the union of the tiles near it, clipped to it
+            if hit.size and shapely.area(shapely.union_all(shapely.intersection(tiles[hit], disk))) > 1e-4:
                 at.append(s)
     return sorted(set(round(a, 9) for a in at))
 
@@ -281,7 +284,10 @@ def grounding(board: Board, is_ref_net: np.ndarray, chains: list[np.ndarray], fr
         if k not in pours:
             shapes = [valid(r.polygon) for r in board.regions
                       if r.layer == k and r.net != NO_NET and is_ref_net[r.net]]
-            pours[k] = shapely.union_all(shapes) if shapes else None
+            # small tiles of the pours (no union of a whole layer's pours): each end's test costs what
+            # the few tiles near it cost
+            tiles = cover_tiles(np.array(shapes, dtype=object)) if shapes else None
+            pours[k] = (tiles, shapely.STRtree(tiles)) if tiles is not None and tiles.size else None
         lines = shapely.linestrings(np.stack([np.stack([p.x1[mine], p.x2[mine]], 1),
                                               np.stack([p.y1[mine], p.y2[mine]], 1)], 2))
         merged = shapely.line_merge(shapely.union_all(lines))

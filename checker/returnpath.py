@@ -63,6 +63,7 @@ import shapely
 from scipy.sparse import csr_matrix
 from scipy.sparse.csgraph import connected_components
 
+from .cores import ordered_map
 from .model import NO_NET, Board, Stackup
 from .shielding import TILE_VERTICES, ReferenceCopper, cover_tiles, piece_polygons
 from .stackup import separation_mm
@@ -155,17 +156,19 @@ def return_gaps(board: Board, ref: ReferenceCopper) -> ReturnGaps:
     live &= p.length > 0
     layers = np.unique(p.layer[live]).tolist() if len(p) else []
     by_layer = {int(k): reference_layers_of(board.stackup, has_ref, int(k)) for k in layers}
-    chunks = []
-    tiles: dict[int, tuple] = {}
-    for layer, targets in by_layer.items():
-        idx = np.flatnonzero(live & (p.layer == layer))
-        for k in targets:
-            if k not in tiles:
-                cut = cover_tiles(ref.cover[k], TILE_VERTICES)
-                tiles[k] = (cut, shapely.STRtree(cut))
-            chunk = _stretches(board, ref, idx, layer, k, *tiles[k])
-            if chunk is not None:
-                chunks.append(chunk)
+    jobs = [(layer, k) for layer, targets in by_layer.items() for k in targets]
+
+    def over(k: int) -> dict[tuple[int, int], dict | None]:
+        # one reference layer's work in one thread: its prepared copper and tree are not shared
+        cut = cover_tiles(ref.cover[k], TILE_VERTICES)
+        tree = shapely.STRtree(cut)
+        return {(layer, k): _stretches(board, ref, np.flatnonzero(live & (p.layer == layer)), layer, k, cut, tree)
+                for layer, kk in jobs if kk == k}
+
+    done: dict[tuple[int, int], dict | None] = {}
+    for part in ordered_map(over, sorted({k for _, k in jobs})):
+        done.update(part)
+    chunks = [done[job] for job in jobs if done[job] is not None]
     if not chunks:
         return ReturnGaps.empty(by_layer)
     cols = {name: np.concatenate([c[name] for c in chunks]) for name in chunks[0]}

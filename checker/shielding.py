@@ -68,6 +68,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 import shapely
 
+from .cores import ordered_map, split_map
 from .model import NO_NET, Board, CopperLayer, Pieces, Stackup
 from .occupancy import Occupancy
 from .stackup import separation_mm
@@ -158,11 +159,24 @@ class ReferenceCopper:
         layers = self._layers_between(i, j)
         key = ("between", layers)
         if key not in self._union:
-            geom = shapely.union_all([self.cover[k] for k in layers]) if layers else None
-            if geom is not None:
+            if not layers:
+                geom = None
+            elif len(layers) == 1:
+                geom = self.cover[layers[0]]  # already one valid, prepared geometry
+            else:
+                geom = shapely.union_all([self.cover[k] for k in layers])
                 shapely.prepare(geom)
             self._union[key] = geom
         return self._union[key]
+
+    def prepare_between(self, pairs) -> None:
+        """Build :meth:`between`, :meth:`open_space` and :meth:`open_mask`
+        of every layer pair in ``pairs`` ahead of use, the distinct ones on
+        the cores a check may use (:mod:`checker.cores`)."""
+        firsts: dict[tuple[int, ...], tuple[int, int]] = {}
+        for i, j in pairs:
+            firsts.setdefault(self._layers_between(i, j), (i, j))
+        ordered_map(lambda ij: self.open_mask(*ij), list(firsts.values()))
 
     def open_space(self, i: int, j: int):
         """Where no reference copper of the layers strictly between i and j
@@ -262,8 +276,8 @@ def reference_copper(board: Board, patterns) -> ReferenceCopper:
     else:
         x0, y0, x1, y1 = board.bounds()
         area = max((x1 - x0) * (y1 - y0), 1e-12)
-    cover, fraction, ref_nets = [], np.zeros(n_layers), []
-    for k in range(n_layers):
+
+    def layer_cover(k: int) -> tuple[object, float, tuple[str, ...]]:
         on = p.layer == k
         ref_idx = np.flatnonzero(on & piece_ref)
         regions = [r for r in board.regions if r.layer == k]
@@ -272,9 +286,7 @@ def reference_copper(board: Board, patterns) -> ReferenceCopper:
         if ref_idx.size:
             shapes.extend(piece_polygons(p, ref_idx, 1e-4).tolist())
         if not shapes:
-            cover.append(shapely.Polygon())
-            ref_nets.append(())
-            continue
+            return shapely.Polygon(), 0.0, ()
         geom = shapely.union_all(shapes)
         # copper of any other net (or of none) on the layer is cut out of it
         others = [valid(r.polygon) for r in regions if not (r.net != NO_NET and is_ref[r.net])]
@@ -287,11 +299,13 @@ def reference_copper(board: Board, patterns) -> ReferenceCopper:
         if others:
             geom = shapely.difference(geom, shapely.union_all(others))
         shapely.prepare(geom)
-        cover.append(geom)
-        fraction[k] = min(float(geom.area) / area, 1.0)
         nets = {names[r.net] for r in ref_regions} | {names[i] for i in np.unique(net[ref_idx])}
-        ref_nets.append(tuple(sorted(nets)))
-    return ReferenceCopper(patterns, is_ref, cover, fraction, ref_nets, area, board.bounds())
+        return geom, min(float(geom.area) / area, 1.0), tuple(sorted(nets))
+
+    # layer by layer on the cores a check may use (GEOS releases the interpreter lock)
+    cover, fraction, ref_nets = zip(*ordered_map(layer_cover, range(n_layers))) if n_layers else ((), (), ())
+    return ReferenceCopper(patterns, is_ref, list(cover), np.array(fraction, dtype=float), list(ref_nets), area,
+                           board.bounds())
 
 
 def effective_stackup(stackup: Stackup, ref: ReferenceCopper) -> Stackup:
@@ -381,7 +395,7 @@ def split_shielded(board: Board, ref: ReferenceCopper, table, upper: int, lower:
     windows = _windows(p, table, m, rows)
     # what of each remaining window lies in the open space (no reference copper between): its pieces
     wi, ti = tree.query(windows, predicate="intersects")
-    pieces = shapely.intersection(windows[wi], tiles[ti])
+    pieces = split_map(shapely.intersection, windows[wi], tiles[ti])
     big = shapely.area(pieces) > SLIVER_MM2
     wi, pieces = wi[big], pieces[big]
     par = np.asarray(table.parallel, bool)[rows]

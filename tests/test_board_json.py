@@ -808,3 +808,121 @@ def test_bulk_check_accepts_exactly_what_the_schema_accepts() -> None:
         agree += 1
         valid += expected
     assert agree == len(cases) and 10 < valid < len(cases) - 100  # both answers occur often
+
+
+# --------------------------------------------------------------------------- the quick parse (msgspec)
+
+
+def careful(path: Path) -> Board:
+    """The board as the careful path reads it (Python's json with every hook)."""
+    text = path.read_bytes().decode("utf-8-sig")
+    data, suspect = board_json._parse_json(text, str(path))
+    return board_json._read(data, str(path), suspect=suspect)
+
+
+@pytest.mark.parametrize("path", FIXTURES + [DEMO], ids=lambda p: p.name)
+def test_the_quick_parse_reads_what_the_careful_path_reads(path: Path) -> None:
+    quick = board_json._read_fast(path.read_bytes(), str(path))
+    assert quick is not None, "a well-formed fixture should take the quick path"
+    slow = careful(path)
+    assert_same_board(quick, slow)
+    for col in ("x1", "y1", "x2", "y2", "width"):  # bit for bit, not only within 1e-9
+        np.testing.assert_array_equal(getattr(quick.pieces, col), getattr(slow.pieces, col))
+
+
+def test_msgspec_reads_every_number_as_python_does() -> None:
+    # the quick path's numbers must be Python's own: correctly rounded IEEE doubles of the decimal text
+    rng = np.random.default_rng(11)
+    texts = [f"{float(m):.{int(d)}f}" for m, d in zip(rng.normal(0, 300, 20000), rng.integers(0, 17, 20000))]
+    texts += [repr(float(v)) for v in rng.random(20000) * 10.0 ** rng.integers(-8, 8, 20000)]
+    texts += ["0.1", "-0.0", "1e-7", "2.2250738585072014e-308", "179769313486231570e290", "0.30000000000000004"]
+    doc = "[" + ",".join(texts) + "]"
+    import msgspec
+
+    assert [(type(v), v) for v in msgspec.json.decode(doc)] == [(type(v), v) for v in json.loads(doc)]
+    as_float = msgspec.json.decode(doc, type=list[float])  # as the typed tracks read widths and points
+    assert [np.float64(v).tobytes() for v in as_float] == [np.float64(float(v)).tobytes() for v in json.loads(doc)]
+
+
+def compact_board(tracks: int = 200) -> dict:
+    data = four()
+    first = next(t for t in data["tracks"])
+    data["tracks"] = data["tracks"] + [dict(first, points=[[i * 0.5, 1.0], [i * 0.5, 2.0]]) for i in range(tracks)]
+    return data
+
+
+@pytest.mark.parametrize("spelling", ["same value", "other value", "escaped name"])
+def test_a_repeated_key_in_a_bulk_track_is_found(tmp_path: Path, spelling: str) -> None:
+    data = compact_board()
+    text = json.dumps(data, separators=(",", ":"))
+    k = len(data["tracks"]) - 7
+    head = json.dumps(data["tracks"][k], separators=(",", ":"))
+    width = data["tracks"][k]["width"]
+    again = {"same value": f',"width":{width}', "other value": ',"width":0.123',
+             "escaped name": f',"wid\\u0074h":{width}'}[spelling]
+    assert text.count(head) >= 1
+    at = text.index(head, text.index('"tracks"')) if text.count(head) == 1 else None
+    if at is None:  # the track's text repeats (a copy of the first): make this one unique
+        data["tracks"][k]["points"] = [[-3.25, 7.5], [-3.25, 9.5]]
+        text = json.dumps(data, separators=(",", ":"))
+        head = json.dumps(data["tracks"][k], separators=(",", ":"))
+        at = text.index(head)
+    text = text[:at + len(head) - 1] + again + text[at + len(head) - 1:]
+    error = load_broken(tmp_path, text)
+    assert error.place == f"tracks[{k}]", str(error)
+    assert "'width' appears more than once" in error.message
+
+
+@pytest.mark.parametrize("style", ["escaped quote in a net name", "space before a colon", "indented"])
+def test_files_the_quick_parse_passes_on_still_read(tmp_path: Path, style: str) -> None:
+    data = compact_board()
+    if style == "escaped quote in a net name":
+        old = data["nets"][0]["name"]
+        new = 'SENSE "A"'
+        data["nets"][0]["name"] = new
+        for item in data["tracks"] + data.get("arcs", []) + data.get("regions", []) + data.get("vias", []):
+            if item.get("net") == old:
+                item["net"] = new
+        text = json.dumps(data)
+    elif style == "space before a colon":
+        text = json.dumps(data, separators=(", ", " : "))
+    else:
+        text = json.dumps(data, indent=2)
+    path = tmp_path / "b.json"
+    path.write_text(text)
+    quick = board_json._read_fast(path.read_bytes(), str(path))
+    assert (quick is None) == (style != "indented")  # the indented file is quick, the others careful
+    compact = tmp_path / "c.json"
+    compact.write_text(json.dumps(data, separators=(",", ":")))
+    assert_same_board(load_board(path), load_board(compact))
+
+
+def test_the_quick_parse_accepts_exactly_the_tracks_the_schema_accepts() -> None:
+    # the oracle: the jsonschema library on the shipped schema; msgspec's typed tracks (_QuickTrack) plus the
+    # quick check of the rest must say yes exactly when it does
+    validator = jsonschema.Draft202012Validator(board_schema())
+    base = four()
+    template = base["tracks"][0]
+    values = [None, True, False, 0, -1, 0.5, 2, 1e-9, "", "x", "L1", [], [1], [1, 2], [1, 2, 3], ["1", 2],
+              [True, 1], [[1, 2]], [[1, 2], [3, 4]], [[1, 2], [3]], [[1, 2], [3, True]], [[1, 2], [3, "4"]],
+              [[1, 2], [3, 4], [5, 6]], {}, {"a": 1}]
+    rng = random.Random(17)
+    keys = list(template) + ["extra", "at"]
+    agree = valid = 0
+    for n in range(2500):
+        obj = copy.deepcopy(template)
+        for _ in range(rng.randint(0 if n < 5 else 1, 3)):
+            key = rng.choice(keys)
+            if rng.random() < 0.2:
+                obj.pop(key, None)
+            else:
+                obj[key] = copy.deepcopy(rng.choice(values))
+        board = copy.deepcopy(base)
+        board["tracks"] = board["tracks"] + [obj]
+        expected = validator.is_valid(board)
+        parsed = board_json._quick_parse(json.dumps(board).encode())
+        got = parsed is not None and board_json._valid_fast(parsed[0])
+        assert got == expected, obj
+        agree += 1
+        valid += expected
+    assert 100 < valid < agree - 500  # both answers occur often

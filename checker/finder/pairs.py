@@ -56,7 +56,6 @@ b) and do not depend on grid, chunk size or thread count.
 
 from __future__ import annotations
 
-import os
 from collections import deque
 from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass
@@ -64,7 +63,9 @@ from typing import Callable, ClassVar, Iterator, Sequence
 
 import numpy as np
 
+from ..cores import workers_for
 from ..model import NO_NET, Pieces
+from ..progress import Counter
 from .index import CHUNK_PAIRS, Boxes, Grid, overlapping_pairs, sort_order
 
 #: Crossing pairs whose plan-view overlap is at most this (mm^2) count as
@@ -322,20 +323,29 @@ def _map_chunks(chunks: Iterator[tuple[np.ndarray, np.ndarray]], workers: int | 
     GIL inside its array loops) while the main thread produces the next
     ones; at most two chunks per worker are in flight, to bound memory."""
     if workers is None:
-        workers = min(MAX_WORKERS, os.cpu_count() or 1)
+        workers = workers_for(MAX_WORKERS)  # 1 inside another map's worker
     if workers < 1:
         raise ValueError(f"workers must be >= 1, got {workers}")
+    measured = Counter("candidate piece pairs measured:")
     if workers == 1:
-        return [measure(ia, ib) for ia, ib in chunks]
-    out: list[tuple[np.ndarray, ...]] = []
-    pending: deque[Future] = deque()
+        out = []
+        for ia, ib in chunks:
+            out.append(measure(ia, ib))
+            measured.add(int(ia.size))
+        return out
+    out = []
+    pending: deque[tuple[Future, int]] = deque()
     with ThreadPoolExecutor(max_workers=workers) as pool:
         for ia, ib in chunks:
-            pending.append(pool.submit(measure, ia, ib))
+            pending.append((pool.submit(measure, ia, ib), int(ia.size)))
             if len(pending) >= 2 * workers:
-                out.append(pending.popleft().result())
+                future, size = pending.popleft()
+                out.append(future.result())
+                measured.add(size)
         while pending:
-            out.append(pending.popleft().result())
+            future, size = pending.popleft()
+            out.append(future.result())
+            measured.add(size)
     return out
 
 

@@ -24,11 +24,10 @@ pair at most; the grid used is kept in ``grid_mm`` for the report.
 
 from __future__ import annotations
 
-import os
-from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
 
+from ..cores import SOLVE_THREADS, ordered_map
 from ..model import Stackup
 from ..stackup import effective_er, separation_mm
 from .broadside import broadside_section
@@ -76,9 +75,7 @@ def _extrapolated(cs: CrossSection) -> np.ndarray:
 
 def _solve_many(sections: list[CrossSection]) -> list[np.ndarray]:
     """Maxwell matrices (F/m), two solves at a time, in input order."""
-    workers = max(1, min(2, os.cpu_count() or 1))
-    with ThreadPoolExecutor(max_workers=workers) as pool:
-        return list(pool.map(_extrapolated, sections))
+    return ordered_map(_extrapolated, sections, most=SOLVE_THREADS)
 
 
 class _Exact:

@@ -166,16 +166,16 @@ solid and wider than the coupled region.
 from __future__ import annotations
 
 import math
-import os
 import threading
 import time
 from collections import OrderedDict
-from concurrent.futures import ThreadPoolExecutor
 
 import numpy as np
 from scipy.constants import epsilon_0
 
+from ..cores import SOLVE_THREADS, ordered_map
 from ..model import Stackup
+from ..progress import Counter
 from ..stackup import effective_er, separation_mm
 from .fieldsolve import GROUND, Block, CapacitanceResult, Conductor, CrossSection, Slab
 from .solvecache import cached_solve
@@ -316,9 +316,15 @@ def solve_shared(sections: list[CrossSection], resolution: float,
             else:
                 todo.setdefault(i if key is None else key, i)
     first = sorted(todo.values())
-    workers = max(1, min(2, os.cpu_count() or 1))
-    with ThreadPoolExecutor(max_workers=workers) as pool:
-        solved = dict(zip(first, pool.map(lambda i: cached_solve(sections[i], resolution, richardson=richardson), first)))
+    # at most two solves at once (each holds its sparse factorisation), on the cores a check may use
+    done = Counter("field solves", len(first))
+
+    def solve(i: int) -> CapacitanceResult:
+        result = cached_solve(sections[i], resolution, richardson=richardson)
+        done.add()
+        return result
+
+    solved = dict(zip(first, ordered_map(solve, first, most=SOLVE_THREADS)))
     in_key = {i: _reorder(solved[i], np.array(canon[i][1], np.int64), to_key=True)
               for i in first if keys[i] is not None}
     with _shared_lock:
