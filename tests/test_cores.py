@@ -112,3 +112,17 @@ def test_report_on_two_cores_is_the_report_on_one(tmp_path, package):
     assert one["findings"] == two["findings"]
     assert one["net_pairs"] == two["net_pairs"]
     assert one == two
+
+
+def test_batch_shares_the_cores_out_among_its_worker_processes(monkeypatch):
+    import argparse
+
+    from checker.batch import _cores_per_check
+
+    monkeypatch.setenv(cores.CORES_ENV, "4")
+    args = argparse.Namespace(jobs=2, cores=None, scheduler=None)
+    assert _cores_per_check(args, boards=5) == 2  # 4 cores, 2 workers
+    assert _cores_per_check(args, boards=1) == 4  # one board: no second worker, every core
+    assert _cores_per_check(argparse.Namespace(jobs=8, cores=None, scheduler=None), boards=9) == 1
+    assert _cores_per_check(argparse.Namespace(jobs=2, cores=3, scheduler=None), boards=5) == 3  # as given
+    assert _cores_per_check(argparse.Namespace(jobs=2, cores=None, scheduler="tcp://x:1"), boards=5) == 1
