@@ -219,7 +219,7 @@ def overlapping_pairs(
     cell_mm: float | None = None,
     chunk_pairs: int = CHUNK_PAIRS,
 ) -> Iterator[tuple[np.ndarray, np.ndarray]]:
-    """Yield ``(ia, ib)`` int64 arrays of overlapping box pairs, in chunks.
+    """Yield ``(ia, ib)`` int32 arrays of overlapping box pairs, in chunks.
 
     With ``boxes_b`` given: every (i in a, j in b) whose closed boxes overlap,
     each exactly once. With ``boxes_b=None``: every unordered pair i != j of
@@ -271,8 +271,9 @@ def _chunk(ea: _Entries, eb: _Entries, ba: Boxes, bb: Boxes, first: np.ndarray,
     starts = np.cumsum(c) - c
     pos = np.arange(total, dtype=np.int64)
     pos += np.repeat(first[e0:e1] - starts, c)
-    ia = np.repeat(ea.item[e0:e1], c).astype(np.int64)
-    ib = eb.item[pos].astype(np.int64)
+    # int32 (the entries' own type) while most candidates are still to be dropped by the box test
+    ia = np.repeat(ea.item[e0:e1], c)
+    ib = eb.item[pos]
     del pos
     keep = ((ba.xmin[ia] <= bb.xmax[ib]) & (bb.xmin[ib] <= ba.xmax[ia])
             & (ba.ymin[ia] <= bb.ymax[ib]) & (bb.ymin[ib] <= ba.ymax[ia]))

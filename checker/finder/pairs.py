@@ -120,7 +120,7 @@ class PairTable:
 
     @classmethod
     def empty(cls, kind: str, layer_a: int, layer_b: int) -> "PairTable":
-        i = np.zeros(0, dtype=np.int64)
+        i = np.zeros(0, dtype=np.int32)
         f = np.zeros(0, dtype=np.float64)
         return cls(kind, layer_a, layer_b, i, i.copy(), f, np.zeros(0, dtype=bool),
                    *(f.copy() for _ in range(6)))
@@ -172,7 +172,7 @@ class _Layer:
         width = pieces.width[idx].astype(np.float64)
         if not (np.isfinite(length).all() and np.isfinite(width).all() and (width >= 0).all()):
             raise ValueError(f"pieces on layer {layer} need finite coordinates and widths >= 0")
-        self.idx = idx.astype(np.int64)
+        self.idx = idx.astype(np.int32)  # piece indices: a board holds fewer than 2**31 pieces
         self.net = pieces.net[idx]
         self.cx = 0.5 * (x1 + x2)
         self.cy = 0.5 * (y1 + y2)
@@ -241,7 +241,7 @@ def find_broadside(pieces: Pieces, layer_a: int, layer_b: int, search_mm: float,
     # One search in board axes: splitting by orientation class (as find_edge
     # does) was measured slower here, since most broadside pairs are
     # crossings of different classes and each class pair needs its own grid.
-    jobs = [(np.arange(len(la)), np.arange(len(lb)), 0.0)]
+    jobs = [(np.arange(len(la), dtype=np.int32), np.arange(len(lb), dtype=np.int32), 0.0)]
     chunks = _Counted(_job_chunks(la, lb, jobs, False, cell_mm, chunk_pairs))
     parts = _map_chunks(chunks, workers, lambda ia, ib: _measure(
         la, lb, ia, ib, search_mm, parallel_angle_deg, crossings=True))
@@ -268,14 +268,14 @@ def find_edge(pieces: Pieces, layer: int, search_mm: float,
         # within a class, and across neighbouring classes only between pieces
         # within parallel_angle_deg of the border between them
         margin = CLASS_DEG / 2 - parallel_angle_deg - ANGLE_TOL_DEG
-        jobs = [(np.flatnonzero(la.cls == i), None, CLASS_DEG * i) for i in range(N_CLASSES)]
+        jobs = [(np.flatnonzero(la.cls == i).astype(np.int32), None, CLASS_DEG * i) for i in range(N_CLASSES)]
         for i in range(N_CLASSES):
             j = (i + 1) % N_CLASSES
-            up = np.flatnonzero((la.cls == i) & (la.off >= margin))
-            down = np.flatnonzero((la.cls == j) & (la.off <= -margin))
+            up = np.flatnonzero((la.cls == i) & (la.off >= margin)).astype(np.int32)
+            down = np.flatnonzero((la.cls == j) & (la.off <= -margin)).astype(np.int32)
             jobs.append((up, down, CLASS_DEG * (i + 0.5)))
     else:
-        jobs = [(np.arange(len(la)), None, 0.0)]
+        jobs = [(np.arange(len(la), dtype=np.int32), None, 0.0)]
     chunks = _Counted(_job_chunks(la, la, jobs, True, cell_mm, chunk_pairs))
     parts = _map_chunks(chunks, workers, lambda ia, ib: _measure(
         la, la, ia, ib, search_mm, parallel_angle_deg, crossings=False))
@@ -363,7 +363,7 @@ def _assemble(kind: str, layer_a: int, layer_b: int, la: _Layer, lb: _Layer,
             p[k] = None
         return col
 
-    ra, rb = la.rank[column(0)], lb.rank[column(1)]  # ranks follow global index order
+    ra, rb = la.rank[column(0)], lb.rank[column(1)]  # ranks (int64) follow global index order
     if kind == "edge":
         ra, rb = np.minimum(ra, rb), np.maximum(ra, rb)
     order = sort_order(ra * len(lb) + rb)
@@ -396,7 +396,7 @@ def _measure(la: _Layer, lb: _Layer, ia: np.ndarray, ib: np.ndarray, search_mm: 
         out.append(_crossing(la, lb, ia[c], ib[c], angle[c], uxa[c], uya[c], uxb[c], uyb[c],
                              dot[c], cross[c]))
     if not out:
-        e = np.zeros(0, np.int64)
+        e = np.zeros(0, np.int32)
         f = np.zeros(0)
         return (e, e, f, np.zeros(0, bool), f, f, f, f, f, f)
     if len(out) == 1:
