@@ -218,6 +218,7 @@ def _check(board_paths: list[str], args: argparse.Namespace) -> int:
     from .report import terminal
     from .review import build_review, load_baseline, load_waivers, today
     from .ruleset import default_ruleset, load_ruleset
+    from .analysis import analysis_steps
     from .runner import check_board
 
     refuse_shared_outputs([("--out", args.out), ("--svg", args.svg), ("--html", args.html), ("--junit", args.junit)])
@@ -250,8 +251,9 @@ def _check(board_paths: list[str], args: argparse.Namespace) -> int:
                 result = check_board(board, ruleset, progress=advance, accurate=args.accurate,
                                      what_if=args.what_if)
     else:  # plain lines (CI logs): a long check says where it is every few seconds
-        stage = progress.Stage("checking", unit="steps", scale=1)
-        at = ["checking", 0]
+        stage = progress.Stage("checking", unit="steps", scale=1,
+                               total=analysis_steps(board, ruleset) + len(ruleset.rules))
+        at = ["preparing", 0]
 
         def lines(what: str, done: int, total: int) -> None:
             at[:] = [what, done]

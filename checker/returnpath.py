@@ -65,6 +65,7 @@ from scipy.sparse.csgraph import connected_components
 
 from .cores import ordered_map
 from .model import NO_NET, Board, Stackup
+from .progress import Counter
 from .shielding import TILE_VERTICES, ReferenceCopper, cover_tiles, piece_polygons
 from .stackup import separation_mm
 
@@ -158,12 +159,19 @@ def return_gaps(board: Board, ref: ReferenceCopper) -> ReturnGaps:
     by_layer = {int(k): reference_layers_of(board.stackup, has_ref, int(k)) for k in layers}
     jobs = [(layer, k) for layer, targets in by_layer.items() for k in targets]
 
+    counted = Counter("traces over their reference copper: layer pairs", len(jobs))
+
     def over(k: int) -> dict[tuple[int, int], dict | None]:
         # one reference layer's work in one thread: its prepared copper and tree are not shared
         cut = cover_tiles(ref.cover[k], TILE_VERTICES)
         tree = shapely.STRtree(cut)
-        return {(layer, k): _stretches(board, ref, np.flatnonzero(live & (p.layer == layer)), layer, k, cut, tree)
-                for layer, kk in jobs if kk == k}
+        out = {}
+        for layer, kk in jobs:
+            if kk == k:
+                out[(layer, k)] = _stretches(board, ref, np.flatnonzero(live & (p.layer == layer)), layer, k, cut,
+                                             tree)
+                counted.add()
+        return out
 
     done: dict[tuple[int, int], dict | None] = {}
     for part in ordered_map(over, sorted({k for _, k in jobs})):

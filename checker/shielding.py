@@ -71,6 +71,7 @@ import shapely
 from .cores import ordered_map, split_map
 from .model import NO_NET, Board, CopperLayer, Pieces, Stackup
 from .occupancy import Occupancy
+from .progress import Counter
 from .stackup import separation_mm
 
 #: Nets taken as AC ground when the rule file names none (glob patterns,
@@ -277,7 +278,15 @@ def reference_copper(board: Board, patterns) -> ReferenceCopper:
         x0, y0, x1, y1 = board.bounds()
         area = max((x1 - x0) * (y1 - y0), 1e-12)
 
+    done = Counter("reference copper: layers", n_layers)
+
     def layer_cover(k: int) -> tuple[object, float, tuple[str, ...]]:
+        try:
+            return _layer_cover(k)
+        finally:
+            done.add()
+
+    def _layer_cover(k: int) -> tuple[object, float, tuple[str, ...]]:
         on = p.layer == k
         ref_idx = np.flatnonzero(on & piece_ref)
         regions = [r for r in board.regions if r.layer == k]

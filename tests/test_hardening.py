@@ -11,6 +11,7 @@ permits implementations to limit range; YAML nesting).
 from __future__ import annotations
 
 import json
+import re
 import shutil
 import time
 from pathlib import Path
@@ -377,6 +378,28 @@ def test_a_long_check_prints_plain_progress_lines_when_not_on_a_terminal(capsys,
     first, last = lines[0], lines[-1]
     total = int(first.split(" of ")[1].split()[0])
     assert first.startswith("couplint: checking: 0 of ") and f"of {total} steps" in last
+
+
+def test_progress_lines_say_how_far_a_step_has_got(capsys, monkeypatch, tmp_path) -> None:
+    # inside a step: the field solves done (of how many), the candidate pairs measured, the reference
+    # copper's layers, the JSON report's parts; the demo's solves go to an empty cache so they run
+    monkeypatch.setattr(progress, "QUIET_SECONDS", 0.0)
+    monkeypatch.setattr(progress, "EVERY_SECONDS", 0.0)
+    monkeypatch.setenv("COUPLINT_CACHE_DIR", str(tmp_path / "cache"))
+    from collections import OrderedDict
+
+    from checker.physics import broadside
+
+    monkeypatch.setattr(broadside, "_shared", OrderedDict())  # nothing solved earlier in this process
+    code, _, err = run(capsys, "demo", "--format", "json", "--out", tmp_path / "r.json")
+    assert code == 1
+    lines = err.splitlines()
+    solves = [ln for ln in lines if ": field solves " in ln]
+    assert solves and all(re.search(r"field solves [0-9,]+ of [0-9,]+\)$", ln) for ln in solves), solves[:3]
+    assert any("candidate piece pairs measured: " in ln for ln in lines)
+    assert any("reference copper: layers " in ln for ln in lines)
+    assert any(ln.startswith("couplint: writing the JSON report: ") for ln in lines)
+    assert all("\x1b" not in ln for ln in lines)
 
 
 @pytest.mark.parametrize("text, tag", [("version: !!float\n", "!!float"), ("!!bool\n", "!!bool"),

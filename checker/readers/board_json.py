@@ -49,7 +49,7 @@ import numpy as np
 import shapely
 from shapely.geometry.polygon import orient
 
-from .. import limits
+from .. import limits, progress
 from ..bounds import (
     COPPER_THICKNESS,
     DIELECTRIC_THICKNESS,
@@ -121,10 +121,12 @@ def load_board(path: str | os.PathLike[str]) -> Board:
         raise BoardError(file, None, "is a folder, not a board file") from None
     except OSError as exc:
         raise BoardError(file, None, f"cannot read the file: {exc.strerror or exc}") from None
+    stage = progress.Stage(f"reading {os.path.basename(file)}", total=len(raw))
     with _collector_paused():
-        board = _read_fast(raw, file)
+        board = _read_fast(raw, file, stage)
         if board is not None:
             return board
+        stage.at(len(raw), "reading it again the careful way, to say what is wrong")
         try:
             text = raw.decode("utf-8-sig")
         except UnicodeDecodeError as exc:
@@ -135,7 +137,7 @@ def load_board(path: str | os.PathLike[str]) -> Board:
         return _read(data, file, suspect=duplicates)
 
 
-def _read_fast(raw: bytes, file: str) -> Board | None:
+def _read_fast(raw: bytes, file: str, stage: progress.Stage | None = None) -> Board | None:
     """The board of a well-formed file, read the quick way, or None when
     anything is off (then the careful path reads the file again and words
     the problem). msgspec decodes the text and checks the tracks against
@@ -163,6 +165,8 @@ def _read_fast(raw: bytes, file: str) -> Board | None:
     keys = len(data) + (tracks is not None) + len(_QuickTrack.__struct_fields__) * len(tracks or ())
     if not _no_repeated_keys(body, data, keys):
         return None
+    if stage is not None:
+        stage.at(len(raw), f"parsed and checked; building {len(tracks or ()):,} tracks")
     return _Builder(data, file, tracks or []).build()
 
 

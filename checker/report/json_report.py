@@ -16,7 +16,7 @@ from typing import Iterator, TextIO
 
 import numpy as np
 
-from .. import __version__
+from .. import __version__, progress
 from ..review import review_dict, waiver_mark
 from ..runner import Result
 from . import CAUTION
@@ -347,7 +347,9 @@ def write(result: Result, out: TextIO, pairs: int | None = DEFAULT_PAIRS) -> Non
     streamed in chunks. ``pairs``: how many net pairs to list besides those
     with a finding (:func:`pair_order`; None: all)."""
     out = _EscapingControls(out)  # type: ignore[assignment]
+    stage = progress.Stage("writing the JSON report", unit="parts", scale=1, total=4)
     report = build_report(result)
+    stage.at(1, "findings")
     listed = int(pair_order(result, pairs).size)
     note = {
         "listed": listed, "coupled": len(result.analysis.net_pairs),
@@ -366,9 +368,11 @@ def write(result: Result, out: TextIO, pairs: int | None = DEFAULT_PAIRS) -> Non
     out.write(before)
     out.write("[")
     first = True
+    stage.at(2, f"net pairs (of {listed:,})")
     for lines in net_pair_lines(result, limit=pairs):
         out.write(("\n    " if first else ",\n    ") + ",\n    ".join(lines))
         first = False
+        stage.at(3, f"net pairs (of {listed:,})")
     out.write("]" if first else "\n  ]")
     out.write(after)
     out.write("\n")
