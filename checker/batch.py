@@ -25,10 +25,12 @@ from __future__ import annotations
 import argparse
 import datetime
 import glob
+import hashlib
 import math
 import os
 import sys
 import time
+from collections import Counter
 from dataclasses import asdict, dataclass, field
 from typing import Callable, Iterable, Iterator
 
@@ -42,7 +44,9 @@ from .report.visible import visible
 EXIT_PASS, EXIT_FAIL = 0, 1
 
 FAIL_ON = ("warning", "error", "new")
-VERDICTS = ("pass", "pass with waivers", "fail", "error")
+VERDICTS = ("pass", "pass with waivers", "pass with known findings", "fail", "error")
+#: The verdicts that exit 0.
+PASSING = ("pass", "pass with waivers", "pass with known findings")
 
 #: Fields of :class:`BoardOutcome` that go into the summary JSON, in order.
 #: ``seconds`` is left out on purpose so the file is byte-stable for CI diffs.
@@ -123,10 +127,10 @@ def _check_one(path: str, rules: str | None, fail_on: str, waivers: str | None, 
         from .readers import load_board
         from .readers.fab.package import is_package
         from .report import json_report, junit
-        from .ruleset import default_ruleset, load_ruleset
+        from .ruleset import ruleset_named
         from .runner import check_board
 
-        ruleset = load_ruleset(rules) if rules else default_ruleset()
+        ruleset = ruleset_named(rules)
         if is_package([path]):
             from .readers.fab.assemble import load_package
 
@@ -214,8 +218,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                              f"(default {DEFAULT_PAIRS}), or 'all'")
     parser.add_argument("--stackup", metavar="FILE",
                         help="stackup YAML for fabrication packages that have no Gerber job file")
-    parser.add_argument("--rules", metavar="FILE",
-                        help="rule file (YAML); default: the shipped 'default' rule set")
+    parser.add_argument("--rules", metavar="FILE|NAME",
+                        help="rule file (YAML), or the name of a shipped rule set (e.g. 'default'); default: the "
+                             "shipped 'default' rule set")
     parser.add_argument("--out-dir", required=True, metavar="DIR",
                         help="folder for the per-board JSON reports (<board file stem>.json; "
                              "created if missing)")
@@ -323,7 +328,7 @@ def run(args: argparse.Namespace) -> int:
     for o in ordered:
         if o.error is not None:
             print(f"couplint: error: {visible(o.error, keep_lines=True)}", file=sys.stderr)
-    return EXIT_PASS if all(o.verdict in ("pass", "pass with waivers") for o in ordered) else EXIT_FAIL
+    return EXIT_PASS if all(o.verdict in PASSING for o in ordered) else EXIT_FAIL
 
 
 # --------------------------------------------------------------------------- targets and names
@@ -410,29 +415,33 @@ def _json_in(folder: str) -> list[str]:
 
 
 def report_names(boards: list[str]) -> dict[str, str]:
-    """Report file name for each board: ``<stem>.json``; boards whose stems
-    collide (ignoring case, for case-insensitive filesystems) are taken in
-    path order, the first keeps ``<stem>.json`` and the others get
-    ``<stem>-2.json``, ``<stem>-3.json``, ... skipping any name already in
-    use. Depends only on the list of paths."""
+    """Report file name for each board: ``<stem>.json``. Boards whose stems
+    collide (ignoring case, for case-insensitive filesystems) are all named
+    with their folder as well, ``<folder>--<stem>.json``, and where even
+    that collides, with the first 8 hex digits of the SHA-256 of the path as
+    given, ``<stem>-<hash>.json``. A board's name so depends only on its own
+    path and the stems of the others, never on the order of the batch: the
+    same board keeps its report name from one batch to the next, which
+    ``--baseline-dir`` relies on."""
     stems = {b: board_stem(b) for b in boards}
-    counts: dict[str, int] = {}
-    for s in stems.values():
-        counts[s.casefold()] = counts.get(s.casefold(), 0) + 1
-    taken = {s.casefold() for s in stems.values() if counts[s.casefold()] == 1}
-    names = {}
-    for b in sorted(boards):
-        stem = stems[b]
-        if counts[stem.casefold()] == 1:
-            names[b] = stem + ".json"
-            continue
-        candidate, n = stem, 1
-        while candidate.casefold() in taken:
-            n += 1
-            candidate = f"{stem}-{n}"
-        taken.add(candidate.casefold())
-        names[b] = candidate + ".json"
-    return names
+    counts = Counter(s.casefold() for s in stems.values())
+    names = {b: stems[b] for b in boards if counts[stems[b].casefold()] == 1}
+    crowded = [b for b in boards if b not in names]
+    with_folder = {b: f"{_folder_name(b)}--{stems[b]}" for b in crowded}
+    again = Counter(n.casefold() for n in list(with_folder.values()) + list(names.values()))
+    for b in crowded:
+        if again[with_folder[b].casefold()] == 1:
+            names[b] = with_folder[b]
+        else:
+            digest = hashlib.sha256(os.path.normpath(b).encode("utf-8", "surrogateescape")).hexdigest()[:8]
+            names[b] = f"{stems[b]}-{digest}"
+    return {b: names[b] + ".json" for b in boards}
+
+
+def _folder_name(path: str) -> str:
+    """The name of the folder that holds ``path`` (``.`` resolved to its real name)."""
+    parent = os.path.dirname(os.path.normpath(path)) or "."
+    return os.path.basename(os.path.abspath(parent)) or "root"
 
 
 def _baselines(baseline_dir: str | None, report_paths: dict[str, str]) -> dict[str, str]:
@@ -464,9 +473,9 @@ def _check_outputs(boards: list[str], other_inputs: list[str | None], report_pat
 
 
 def _load_ruleset(rules: str | None):
-    from .ruleset import default_ruleset, load_ruleset
+    from .ruleset import ruleset_named
 
-    return load_ruleset(rules) if rules else default_ruleset()
+    return ruleset_named(rules)
 
 
 def _write(path: str, emit: Callable) -> None:
@@ -627,7 +636,8 @@ def junit_xml(outcomes: list[BoardOutcome], rule_names: list[str]) -> str:
         for o in sorted(outcomes, key=lambda o: o.path))
 
 
-VERDICT_STYLE = {"pass": "green", "pass with waivers": "cyan", "fail": "bold red", "error": "bold magenta"}
+VERDICT_STYLE = {"pass": "green", "pass with waivers": "cyan", "pass with known findings": "yellow", "fail": "bold red",
+                 "error": "bold magenta"}
 
 
 def print_table(outcomes: list[BoardOutcome], totals: dict, console=None) -> None:
@@ -657,3 +667,10 @@ def print_table(outcomes: list[BoardOutcome], totals: dict, console=None) -> Non
     n = totals["boards"]
     console.print(f"{n} board{'s' if n != 1 else ''}: {', '.join(parts)}; {totals['findings']} findings, "
                   f"{totals['failing']} failing", highlight=False, markup=False)
+    renamed = [o for o in sorted(outcomes, key=lambda o: o.path)
+               if o.report_path and os.path.basename(o.report_path) != board_stem(o.path) + ".json"]
+    if renamed:
+        shown = ", ".join(f"{o.path} -> {os.path.basename(o.report_path)}" for o in renamed[:6])
+        more = f" and {len(renamed) - 6} more" if len(renamed) > 6 else ""
+        console.print(f"boards of the same name are filed with their folder (or their path's hash): {shown}{more}",
+                      highlight=False, markup=False)

@@ -75,8 +75,9 @@ def _parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
     def output_options(p: argparse.ArgumentParser) -> None:
-        p.add_argument("--rules", metavar="FILE",
-                       help="rule file (YAML); default: the shipped 'default' rule set")
+        p.add_argument("--rules", metavar="FILE|NAME",
+                       help="rule file (YAML), or the name of a shipped rule set (e.g. 'default'); default: the "
+                            "shipped 'default' rule set")
         p.add_argument("--format", choices=("text", "json"), default="text",
                        help="text table (default) or the JSON report")
         p.add_argument("--out", metavar="FILE", help="write the report to FILE instead of stdout")
@@ -132,12 +133,16 @@ def _parser() -> argparse.ArgumentParser:
     waive = sub.add_parser(
         "waive", help="append a waiver for one finding id to a waiver file",
         description="Append a waiver for the finding ID to the waiver file (created if missing). The id is "
-                    "checked for its format (12 hex digits, as 'couplint check' prints in [brackets]) but "
-                    "need not appear in any report. The file is validated first, an id already waived is "
-                    "refused, and everything already in the file is kept byte for byte.")
+                    "checked for its format (12 hex digits, as 'couplint check' prints in [brackets]) and, "
+                    "with --report, against the findings of that JSON report, so a mistyped id is refused. "
+                    "The file is validated first, an id already waived is refused, and everything already "
+                    "in the file is kept byte for byte.")
     waive.add_argument("id", metavar="ID", help="finding id (12 hex digits)")
     waive.add_argument("--reason", required=True, help="why the finding is acceptable")
     waive.add_argument("--author", help="who accepts it (default: the user name from the environment)")
+    waive.add_argument("--report", metavar="REPORT.json",
+                       help="a JSON report of the board ('couplint check --format json'): the id must be one of "
+                            "its findings")
     waive.add_argument("--expires", metavar="YYYY-MM-DD",
                        help="last day the waiver applies (default: it does not expire)")
     waive.add_argument("--waivers", metavar="FILE", default=DEFAULT_WAIVER_FILE,
@@ -217,17 +222,19 @@ def _load(board_paths: list[str], args: argparse.Namespace):
 def _check(board_paths: list[str], args: argparse.Namespace) -> int:
     from .report import terminal
     from .review import build_review, load_baseline, load_waivers, today
-    from .ruleset import default_ruleset, load_ruleset
     from .analysis import analysis_steps
+    from .ruleset import ruleset_named
     from .runner import check_board
 
     refuse_shared_outputs([("--out", args.out), ("--svg", args.svg), ("--html", args.html), ("--junit", args.junit)])
     outputs = [p for p in (args.out, args.svg, args.html, args.junit) if p]
-    inputs = list(board_paths) + [p for p in (args.rules, args.waivers, args.baseline, getattr(args, "stackup", None),
+    # --rules names a file, or a shipped rule set (--rules default), which is no input file of this run
+    rules_file = args.rules if args.rules and os.path.exists(args.rules) else None
+    inputs = list(board_paths) + [p for p in (rules_file, args.waivers, args.baseline, getattr(args, "stackup", None),
                                                 getattr(args, "netlist", None)) if p]
     for out in outputs:
         refuse_overwriting_inputs(out, inputs)
-    ruleset = load_ruleset(args.rules) if args.rules else default_ruleset()
+    ruleset = ruleset_named(args.rules)
     board = _load(board_paths, args)
     # every input is read and validated before the (possibly long) check
     waivers = load_waivers(args.waivers) if args.waivers else None
@@ -278,7 +285,7 @@ def _check(board_paths: list[str], args: argparse.Namespace) -> int:
         if not console.is_terminal:  # piped or captured: room for the whole table
             console = Console(width=max(console.width, 132))
         emit = lambda handle: terminal.render(result, console)  # noqa: E731
-    _write_deliverables(result, args, _files_of(inputs) + ([] if args.rules else [result.analysis.ruleset.path]))
+    _write_deliverables(result, args, _files_of(inputs) + ([] if rules_file else [result.analysis.ruleset.path]))
     if args.out:
         write_atomically(args.out, emit)
     else:
@@ -330,11 +337,30 @@ def _waive(args: argparse.Namespace) -> int:
             expires = parse_date(args.expires)
         except ValueError as exc:
             raise UsageError(f"--expires: {exc}") from None
+    finding = None
+    if args.report is not None:
+        finding = _finding_in_report(args.report, args.id.strip())
     author = args.author if args.author is not None else _user_name()
     waiver = append_waiver(args.waivers, args.id, args.reason, author, expires=expires)
     until = f", until {waiver.expires}" if waiver.expires else ""
-    print(f"waived {waiver.id} in {waiver.source} ({waiver.author}, {waiver.date}{until})")
+    what = ""
+    if finding is not None:
+        what = f": {finding.get('rule')} {finding.get('aggressor')} -> {finding.get('victim')}"
+    print(visible(f"waived {waiver.id}{what} in {waiver.source} ({waiver.author}, {waiver.date}{until})"))
     return EXIT_CLEAN
+
+
+def _finding_in_report(report: str, finding_id: str) -> dict:
+    """The finding ``finding_id`` of the JSON report ``report``; a usage
+    error naming the report when it has no such finding."""
+    from .review import load_baseline
+
+    findings = load_baseline(report).findings  # the baseline reader words a bad report
+    for f in findings:
+        if f.get("id") == finding_id:
+            return f
+    raise UsageError(f"{report}: no finding with the id {finding_id} in this report ({len(findings)} findings); "
+                     "check the id against the report of the board you mean")
 
 
 def _user_name() -> str:

@@ -176,9 +176,14 @@ class Review:
         return out
 
     def verdict(self, findings: list[Finding], fail_on: str = "warning") -> str:
-        """``fail``, ``pass with waivers`` or ``pass``."""
+        """``fail``, ``pass with known findings`` (``--fail-on new``: nothing
+        new fails, but unwaived findings of warning or worse that the
+        baseline already had remain), ``pass with waivers`` or ``pass``.
+        Every verdict but ``fail`` exits 0."""
         if self.failing(findings, fail_on):
             return "fail"
+        if fail_on == "new" and self.failing(findings, "warning"):
+            return "pass with known findings"
         if any(f.id in self.waived for f in findings):
             return "pass with waivers"
         return "pass"

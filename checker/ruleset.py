@@ -320,6 +320,23 @@ def default_ruleset() -> RuleSet:
     return load_ruleset(shipped_ruleset_path("default"))
 
 
+def ruleset_named(given: str | os.PathLike[str] | None) -> RuleSet:
+    """The rule set ``--rules`` names: a rule file, else a shipped rule set
+    of that name (``--rules default``), else the shipped ``default`` when
+    nothing is given. A name that is neither an existing file nor a shipped
+    set is one error naming both possibilities."""
+    if given is None or given == "":
+        return default_ruleset()
+    text = os.fspath(given)
+    path = pathlib.Path(text)
+    if not path.exists() and NAME_PATTERN.match(text) and _find_shipped(text) is not None:
+        return load_ruleset(_find_shipped(text))
+    if not path.exists():
+        shipped = ", ".join(shipped_ruleset_names()) or "none"
+        raise RuleError(text, None, f"no such file, and no shipped rule set of that name (shipped: {shipped})")
+    return load_ruleset(path)
+
+
 def shipped_ruleset_path(name: str) -> pathlib.Path:
     """The file of the shipped rule set ``name``.
 

@@ -296,3 +296,51 @@ def test_control_characters_in_names_never_reach_the_terminal_or_the_page_raw(ca
     assert "CLK_A\\x1b]0;pwned\\x07\\x1b[2J" in out
     page = html_path.read_text()
     assert "\x1b" not in page and "\x07" not in page and "CLK_A\\x1b]0;pwned" in page
+
+
+def test_rules_option_takes_a_shipped_rule_set_by_name(tmp_path, capsys):
+    # `--rules default` (the shipped set, as the shipped rule file's header says) is the run without --rules
+    out_named, out_default = tmp_path / "named.json", tmp_path / "default.json"
+    assert main(["demo", "--rules", "default", "--format", "json", "--out", str(out_named)]) == 1
+    assert main(["demo", "--format", "json", "--out", str(out_default)]) == 1
+    named, default = json.loads(out_named.read_text()), json.loads(out_default.read_text())
+    assert named["findings"] == default["findings"] and named["ruleset"]["sha256"] == default["ruleset"]["sha256"]
+    assert main(["demo", "--rules", "no-such-set"]) == 2
+    err = capsys.readouterr().err
+    assert "no-such-set: no such file, and no shipped rule set of that name (shipped: default" in err
+
+
+def test_a_lone_fabrication_file_is_named_in_the_error(tmp_path, capsys, monkeypatch):
+    # given as one file in the current folder, the package is that file, not "."
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "g.gbr").write_bytes(b"garbage\x00\x01 not gerber")
+    assert main(["check", "g.gbr"]) == 2
+    line = capsys.readouterr().err.strip()
+    assert line.startswith("couplint: error: g.gbr: "), line
+
+
+@pytest.mark.parametrize("width", [80, 100])
+def test_a_narrow_terminal_gets_rule_codes_and_a_legend_not_broken_names(width):
+    import io
+
+    from rich.console import Console
+
+    from checker.readers import load_board
+    from checker.report import terminal
+    from checker.review import build_review
+    from checker.ruleset import default_ruleset
+    from checker.runner import check_board
+
+    result = check_board(load_board(demo_board_path()), default_ruleset())
+    result.review = build_review(result.findings, None, None)
+    buffer = io.StringIO()
+    terminal.render(result, Console(file=buffer, width=width, color_system=None))
+    text = buffer.getvalue()
+    rules = list(dict.fromkeys(f.rule for f in result.findings))
+    assert text.count("\nrules: ") == 1
+    table, rest = text.split("\nrules: ")
+    legend = " ".join(rest.split("\n  1. [")[0].split())  # wrapped at spaces over lines as needed
+    assert legend == ", ".join(f"R{i} {r}" for i, r in enumerate(rules, 1))
+    assert max(len(ln) for ln in table.splitlines()) <= width
+    for rule in rules:  # no rule name, whole or in pieces, inside the table
+        assert rule[:8] not in table

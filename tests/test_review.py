@@ -354,7 +354,7 @@ def test_waive_help_text(capsys):
     code = main(["waive", "--help"])
     out = capsys.readouterr().out
     assert code == 0
-    assert "need not appear in any report" in " ".join(out.split())
+    assert "with --report, against the findings of that JSON report, so a mistyped id is refused" in " ".join(out.split())
 
 
 # --------------------------------------------------------------------------
@@ -512,9 +512,10 @@ def test_baseline_classifies_new_unchanged_fixed(tmp_path, capsys, demo_report):
 def test_fail_on_new(tmp_path, capsys, demo_report):
     base_path, base = demo_report
     rules = changed_rules(tmp_path)
-    # the same board and rules as the baseline: nothing new, so it passes
+    # the same board and rules as the baseline: nothing new, so it passes, and the verdict says that known
+    # findings of warning or worse remain (not "pass" nor "pass with waivers": nothing is waived)
     code, report = check_json(capsys, "--baseline", str(base_path), "--fail-on", "new")
-    assert code == 0 and report["summary"]["verdict"] == "pass" and report["summary"]["new"] == 0
+    assert code == 0 and report["summary"]["verdict"] == "pass with known findings" and report["summary"]["new"] == 0
     # one new finding fails it ...
     code, report = check_json(capsys, "--rules", str(rules), "--baseline", str(base_path), "--fail-on", "new")
     assert code == 1 and report["summary"]["failing"] == 1
@@ -525,8 +526,8 @@ def test_fail_on_new(tmp_path, capsys, demo_report):
                        "--waivers", str(waivers))
     assert code == 0
     out = flat(out)
-    assert (f"verdict: pass with waivers (1 waived; {len(base['findings']) - 1} unchanged since the baseline, "
-            "not failing") in out
+    assert (f"verdict: pass with known findings (1 waived; {len(base['findings']) - 1} unchanged since the "
+            "baseline, not failing") in out
     # the default policy still fails on the unchanged findings
     assert run(capsys, "demo", "--rules", str(rules), "--baseline", str(base_path), "--waivers", str(waivers))[0] == 1
     # without a baseline every finding is new
@@ -623,3 +624,33 @@ def test_docs_example_is_a_valid_waiver_file(capsys, demo_report, tmp_path):
     assert len(rv.load_waivers(path).waivers) == 2
     _, report = check_json(capsys, "--waivers", str(path))
     assert report["summary"]["waived"] == 2 and report["review"]["unused"] == []
+
+
+def test_waive_checks_the_id_against_the_report_given(tmp_path, capsys, demo_report):
+    report_path, demo_report = demo_report
+    waivers = tmp_path / "waivers.yaml"
+    known = demo_report["findings"][0]["id"]
+    unknown = "0123456789ab" if known != "0123456789ab" else "ba9876543210"
+    code, out, err = run(capsys, "waive", unknown, "--reason", "typo", "--author", "x", "--waivers", str(waivers),
+                         "--report", str(report_path))
+    assert code == 2 and out == "" and not waivers.exists()  # nothing written for an id no finding has
+    assert_one_error(err, str(report_path), f"no finding with the id {unknown} in this report")
+    code, out, err = run(capsys, "waive", known, "--reason", "Accepted.", "--author", "x", "--waivers", str(waivers),
+                         "--report", str(report_path))
+    assert code == 0, err
+    first = demo_report["findings"][0]
+    assert f"waived {known}: {first['rule']} {first['aggressor']} -> {first['victim']}" in out
+    code, out, err = run(capsys, "waive", known, "--reason", "x", "--author", "x", "--waivers", str(waivers),
+                         "--report", str(tmp_path / "missing.json"))
+    assert code == 2 and "missing.json: no such file" in err
+
+
+def test_the_html_banner_says_known_findings_remain_with_fail_on_new(tmp_path, capsys, demo_report):
+    base_path, base = demo_report
+    html = tmp_path / "signoff.html"
+    code, _, _ = run(capsys, "demo", "--baseline", str(base_path), "--fail-on", "new", "--html", str(html))
+    assert code == 0  # the banner and the exit status agree: a pass, with what remains said
+    text = html.read_text(encoding="utf-8")
+    assert "PASS WITH KNOWN FINDINGS" in text and "PASS WITH WAIVERS" not in text
+    errors_and_warnings = sum(f["severity"] in ("error", "warning") for f in base["findings"])
+    assert f"{errors_and_warnings} of {len(base['findings'])} findings of warning or worse" in text

@@ -52,7 +52,8 @@ POLICY = {
            "findings already in the baseline are listed but do not fail it.",
 }
 
-VERDICT_TITLE = {"pass": "PASS", "pass with waivers": "PASS WITH WAIVERS", "fail": "FAIL"}
+VERDICT_TITLE = {"pass": "PASS", "pass with waivers": "PASS WITH WAIVERS",
+                 "pass with known findings": "PASS WITH KNOWN FINDINGS", "fail": "FAIL"}
 
 
 def _e(value: object) -> str:
@@ -256,6 +257,10 @@ def _verdict(result: Result) -> str:
     waived = [f for f in findings if f.id in result.review.waived]
     if verdict == "fail":
         detail = f"{len(failing)} of {len(findings)} findings fail the policy."
+    elif verdict == "pass with known findings":
+        known = result.review.failing(findings, "warning")
+        detail = (f"No new finding fails the policy; {len(known)} of {len(findings)} findings of warning or worse, "
+                  "not waived, were already in the baseline and remain.")
     elif verdict == "pass with waivers":
         detail = (f"No finding fails the policy; {len(waived)} of {len(findings)} findings "
                   f"pass only because they are waived.")
@@ -264,7 +269,8 @@ def _verdict(result: Result) -> str:
                   f"not fail under it.")
     else:
         detail = "No findings."
-    css = {"pass": "v-pass", "pass with waivers": "v-waived", "fail": "v-fail"}.get(verdict, "v-fail")
+    css = {"pass": "v-pass", "pass with waivers": "v-waived", "pass with known findings": "v-waived",
+           "fail": "v-fail"}.get(verdict, "v-fail")
     policy = POLICY.get(result.fail_on, f"--fail-on {result.fail_on}")
     return (
         f'<section class="banner {css}" id="verdict">\n'

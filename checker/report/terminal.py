@@ -14,7 +14,12 @@ from .json_report import summary
 
 SEVERITY_STYLE = {"error": "bold red", "warning": "yellow"}
 STATUS_STYLE = {"new": "bold", "unchanged": "dim"}
-VERDICT_STYLE = {"pass": "bold green", "pass with waivers": "green", "fail": "bold red"}
+VERDICT_STYLE = {"pass": "bold green", "pass with waivers": "green", "pass with known findings": "yellow",
+                 "fail": "bold red"}
+#: Below this many columns the findings table names rules by short codes
+#: (R1, R2, ...) with a legend under it: the longest rule name and the
+#: other columns then fit without breaking a name mid-word.
+WIDE_TABLE_COLUMNS = 120
 
 
 def _value(value: float, unit: str) -> str:
@@ -60,6 +65,10 @@ def render(result: Result, console: Console) -> None:
         if with_baseline:
             table.add_column("status")
         table.add_column("severity")
+        # a narrow terminal gets short rule codes and a legend, never a rule name broken mid-word
+        rules = list(dict.fromkeys(f.rule for f in result.findings))
+        abbreviate = console.width < WIDE_TABLE_COLUMNS
+        code = {r: f"R{i}" for i, r in enumerate(rules, 1)} if abbreviate else {r: r for r in rules}
         table.add_column("rule", overflow="fold")
         table.add_column("aggressor -> victim", overflow="fold")
         table.add_column("layers", overflow="fold")
@@ -69,11 +78,14 @@ def render(result: Result, console: Console) -> None:
             limit = _value(f.limit, f.unit) if f.unit in ("mm", "pF", "mV") else f"{f.limit:g} ({f.unit})"
             status = review.status.get(f.id, "new")
             cells = [str(i)] + ([f"[{STATUS_STYLE[status]}]{status}[/]"] if with_baseline else []) + [
-                _severity(f, f.id in review.waived), f.rule, escape(visible(f"{f.aggressor} -> {f.victim}")), escape(visible("/".join(f.layers))),
+                _severity(f, f.id in review.waived), code[f.rule], escape(visible(f"{f.aggressor} -> {f.victim}")),
+                escape(visible("/".join(f.layers))),
                 f"{_value(f.value, f.unit)} / {limit}", f"{f.at[0]:.2f}, {f.at[1]:.2f}",
             ]
             table.add_row(*cells, style="dim" if f.id in review.waived else None)
         console.print(table)
+        if abbreviate:
+            console.print("rules: " + ", ".join(f"{code[r]} {r}" for r in rules), highlight=False, markup=False)
         for i, f in enumerate(result.findings, 1):
             console.print(visible(f"{i:>3}. [{f.id}] {f.message}"), highlight=False, markup=False)
             if f.coupling_path:

@@ -240,7 +240,9 @@ def _members(paths: list[str]) -> tuple[list[Member], str, str]:
         if not os.path.exists(p):
             raise FabError(p, None, "no such file")
         members.append(_file_member(Path(p), budget))
-    return _within_cap(members, budget), first.parent.resolve().name or first.stem, str(first.parent)
+    # the package is the files given: messages name them (their folder may be "." and say nothing)
+    shown = ", ".join(paths[:3]) + (f" and {len(paths) - 3} more" if len(paths) > 3 else "")
+    return _within_cap(members, budget), first.parent.resolve().name or first.stem, shown
 
 
 def _within_cap(members: list[Member], budget: PackageBudget) -> list[Member]:
