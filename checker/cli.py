@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import argparse
 import os
+import tempfile
 import sys
 from importlib import resources
 from pathlib import Path
@@ -149,7 +150,36 @@ def _parser() -> argparse.ArgumentParser:
                        help=f"waiver file (default: {DEFAULT_WAIVER_FILE} in the current folder)")
     kinds = sub.add_parser("kinds", help="describe the rule kinds a rule file can use")
     kinds.add_argument("kind", nargs="?", help="one kind to describe in full")
+
+    classes = sub.add_parser(
+        "classes", help="list the nets each net class catches on a board, and the nets no class catches "
+                        "that are named like clocks, switching nodes or analog inputs")
+    _survey_options(classes)
+    init = sub.add_parser(
+        "init", help="write a commented starter rule file for a board: the net classes with what their "
+                     "patterns catch on it, values marked illustrative")
+    _survey_options(init)
+    init.add_argument("--out", metavar="FILE", default=STARTER_FILE,
+                      help=f"the rule file to write (default: {STARTER_FILE}; an existing file is kept "
+                           "unless --force)")
+    init.add_argument("--force", action="store_true", help="replace FILE if it exists")
     return parser
+
+
+#: Where ``couplint init`` writes by default.
+STARTER_FILE = "couplint-rules.yaml"
+
+
+def _survey_options(p: argparse.ArgumentParser) -> None:
+    p.add_argument("board", nargs="+", metavar="BOARD",
+                   help="board geometry: one neutral JSON file, or a fabrication package (folder, .zip or files)")
+    p.add_argument("--rules", metavar="FILE|NAME",
+                   help="the rule set whose net classes to use (a file or a shipped set's name; default: "
+                        "the shipped 'default' set)")
+    p.add_argument("--stackup", metavar="FILE", help="stackup YAML for a fabrication package")
+    p.add_argument("--netlist", metavar="FILE", help="IPC-D-356 netlist for copper without TO.N attributes")
+    p.add_argument("--layer", metavar="FILE=L<n>[,ROLE]", action="append", default=[],
+                   help="say what a Gerber file of the package is (as for check)")
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -195,6 +225,8 @@ def _dispatch(args: argparse.Namespace) -> int:
         return _kinds(args.kind)
     if args.command == "waive":
         return _waive(args)
+    if args.command in ("classes", "init"):
+        return _survey(args)
     board_paths = [str(demo_board_path())] if args.command == "demo" else args.board
     return _check(board_paths, args)
 
@@ -361,6 +393,49 @@ def _finding_in_report(report: str, finding_id: str) -> dict:
             return f
     raise UsageError(f"{report}: no finding with the id {finding_id} in this report ({len(findings)} findings); "
                      "check the id against the report of the board you mean")
+
+
+def _survey(args: argparse.Namespace) -> int:
+    """``couplint classes`` and ``couplint init`` (:mod:`checker.netsurvey`)."""
+    from .netsurvey import starter_rules, survey, survey_lines
+    from .ruleset import load_ruleset, ruleset_named
+
+    if args.command == "init":
+        refuse_overwriting_inputs(args.out, list(args.board) + [p for p in (args.rules, args.stackup, args.netlist)
+                                                                if p and os.path.exists(p)])
+        folder = os.path.dirname(os.path.abspath(args.out))
+        if not os.path.isdir(folder):
+            raise UsageError(f"{args.out}: the folder {os.path.dirname(args.out) or '.'} does not exist")
+        if os.path.exists(args.out) and not args.force:
+            raise UsageError(f"{args.out}: the file exists; couplint init keeps it (give --force to replace it, "
+                             "or --out FILE)")
+    ruleset = ruleset_named(args.rules)
+    found = survey(_load(args.board, args), ruleset)
+    if args.command == "classes":
+        for line in survey_lines(found):
+            print(visible(line))
+        return EXIT_CLEAN
+    base = args.rules if args.rules and not os.path.exists(args.rules) else "default"
+    if args.rules and os.path.exists(args.rules):
+        base = os.path.relpath(os.path.abspath(args.rules), os.path.dirname(os.path.abspath(args.out)))
+    text = starter_rules(found, base)
+    with tempfile.TemporaryDirectory() as tmp:  # what is written must load: checked before it is written
+        trial = os.path.join(tmp, "trial.yaml")
+        with open(trial, "w", encoding="utf-8") as handle:
+            handle.write(text.replace(f"extends: {base}", f"extends: {_absolute_base(base, args.out)}"))
+        load_ruleset(trial)
+    write_atomically(args.out, lambda handle: handle.write(text))
+    print(visible(f"wrote {args.out}: {len(found.catches)} net classes for {found.board_name}; "
+                  f"{sum(len(v) for v in found.hinted.values())} net(s) named like an aggressor or a victim "
+                  "are listed there commented out; set the illustrative values for your design"))
+    return EXIT_CLEAN
+
+
+def _absolute_base(base: str, out: str) -> str:
+    """``base`` as the trial file (in another folder) must name it."""
+    if "/" in base or base.endswith(".yaml") or base.startswith("."):
+        return os.path.join(os.path.dirname(os.path.abspath(out)), base)
+    return base
 
 
 def _user_name() -> str:

@@ -1,10 +1,13 @@
 """The one table of units. Convert once, at the edge.
 
 Inside couplint, geometry is in millimetres and physics in SI units (F, V,
-ohm, Hz, s). A quantity in a rule file is a string ``"<number> <unit>"`` (or a
-bare number, read in the quantity's default unit); ``parse_quantity`` turns it
-into the internal unit and rejects unknown units with a message that lists
-the accepted ones.
+ohm, Hz, s). A quantity in a YAML file (rules, stackup) is a string
+``"<number> <unit>"``: ``10 mV``, ``100 kohm``, ``35 um``. A bare number is
+refused wherever a unit is needed (``max_noise: 10`` could be 10 V or
+10 mV: the quiet reading is the dangerous one); only a plain ratio, and 0,
+which is 0 in every unit, go without. ``parse_quantity`` turns a quantity
+into the internal unit and rejects a missing or unknown unit with a message
+that lists the accepted ones.
 """
 
 from __future__ import annotations
@@ -27,7 +30,7 @@ UNITS: dict[str, dict[str, float]] = {
     "ratio": {"": 1.0},
 }
 
-#: The unit a bare number is read in, per kind (what a user would expect).
+#: The unit a quantity is shown in, per kind (messages, examples).
 DEFAULT_UNIT: dict[str, str] = {
     "length": "mm",
     "capacitance": "pF",
@@ -53,8 +56,12 @@ def parse_quantity(value: object, kind: str) -> float:
     0.254
     >>> parse_quantity("100 kohm", "resistance")
     100000.0
-    >>> parse_quantity(2, "length")
-    2.0
+    >>> parse_quantity(0.5, "ratio")
+    0.5
+    >>> parse_quantity(10, "voltage")
+    Traceback (most recent call last):
+    ...
+    checker.units.UnitError: a voltage needs its unit: write '10 V' or '10 mV' (accepted: V, mV)
     """
     table = UNITS[kind]
     # as written, shortened (repr of a 5 000-digit integer is refused by Python itself)
@@ -62,14 +69,19 @@ def parse_quantity(value: object, kind: str) -> float:
     if isinstance(value, bool):
         raise UnitError(f"expected a {kind}, got {shown}")
     if isinstance(value, (int, float)):
-        number, unit = _float(value, kind, shown), DEFAULT_UNIT[kind]
+        number, unit, written = _float(value, kind, shown), None, shorten(f"{value:g}", 30)
     elif isinstance(value, str):
         m = _QUANTITY.match(value)
         if not m:
             raise UnitError(f"expected a {kind} like '{_example(kind)}', got {shown}")
-        number, unit = _float(m.group(1), kind, shown), m.group(2) or DEFAULT_UNIT[kind]
+        number, unit, written = _float(m.group(1), kind, shown), m.group(2) or None, shorten(m.group(1), 30)
     else:
         raise UnitError(f"expected a {kind} like '{_example(kind)}', got {shown}")
+    if unit is None:
+        if kind == "ratio" or number == 0:
+            unit = DEFAULT_UNIT[kind]
+        else:
+            raise UnitError(needs_unit(kind, written))
     if unit not in table:
         accepted = ", ".join(u for u in table if u) or "no unit"
         raise UnitError(f"unknown {kind} unit {shorten(unit, 20)!r} (accepted: {accepted})")
@@ -87,6 +99,13 @@ def _float(text: int | float | str, kind: str, shown: str) -> float:
         return float(text)
     except OverflowError:
         raise UnitError(f"{kind} far too large, got {shown}") from None
+
+
+def needs_unit(kind: str, written: str) -> str:
+    """The message for a bare number where a ``kind`` needs its unit."""
+    units = [u for u in UNITS[kind] if u]
+    first_two = " or ".join(f"'{written} {u}'" for u in units[:2])
+    return f"a {kind} needs its unit: write {first_two} (accepted: {', '.join(units)})"
 
 
 def _example(kind: str) -> str:

@@ -142,7 +142,7 @@ def test_quantities_convert_to_internal_units(tmp_path):
             rise_time: 200 ps
           slow:
             nets: ["S*"]
-            swing: 5
+            swing: 5 V
             frequency: 2 GHz
           victim:
             nets: ["V*"]
@@ -154,12 +154,12 @@ def test_quantities_convert_to_internal_units(tmp_path):
             max_length: 0.1 in
           - name: budget
             kind: capacitance-budget
-            max_c12: 0.5
+            max_c12: 0.5 pF
           - name: table
             kind: parallel-length
             table:
               - {gap: 4 mil, max_length: 200 mil}
-              - {gap: 0.5, max_length: 20}
+              - {gap: 0.5 mm, max_length: 20 mm}
         """)
     rs = load_ruleset(path)
     assert rs.settings.broadside_search_mm == pytest.approx(0.254)
@@ -167,14 +167,14 @@ def test_quantities_convert_to_internal_units(tmp_path):
     assert rs.settings.bandwidth_factor == 0.5
     fast, slow, victim = rs.classes
     assert fast.swing_v == pytest.approx(0.5) and fast.rise_time_s == pytest.approx(200e-12)
-    assert slow.swing_v == 5.0 and slow.frequency_hz == 2e9  # a bare number is read in V
+    assert slow.swing_v == 5.0 and slow.frequency_hz == 2e9
     assert victim.resistance_ohm == 1e5
     assert victim.node_capacitance_f == pytest.approx(250e-15)
     assert fast.node_capacitance_f == 0.0  # default
     rules = {r.name: r for r in rs.rules}
     assert rules["cross"].options["max_length"] == pytest.approx(2.54)
     assert rules["cross"].options["min_angle"] == 60.0  # default filled in
-    assert rules["budget"].options["max_c12"] == pytest.approx(0.5e-12)  # bare number read in pF
+    assert rules["budget"].options["max_c12"] == pytest.approx(0.5e-12)
     table = rules["table"].options["table"]
     assert table[0]["gap"] == pytest.approx(0.1016) and table[0]["max_length"] == pytest.approx(5.08)
     assert table[1] == {"gap": 0.5, "max_length": 20.0}
@@ -650,3 +650,30 @@ def test_impossible_date_value_is_a_rule_error(tmp_path):
     path.write_text("version: 1\nrules:\n  - {name: x, kind: noise-budget, max_noise: 1 mV, description: 2026-13-01}\n")
     with pytest.raises(RuleError, match="dated.yaml"):
         load_ruleset(path)
+
+
+
+@pytest.mark.parametrize("key, line, kind, words", [
+    ("settings.edge_search", "settings:\n  edge_search: 1\n", "length", "'1 mm' or '1 um' (accepted: mm, um, mil, in)"),
+    ("net_classes.victim.resistance", "net_classes:\n  victim:\n    nets: [V*]\n    resistance: 100\n",
+     "resistance", "'100 ohm' or '100 kohm'"),
+    ("net_classes.clk.swing", "net_classes:\n  clk:\n    nets: [C*]\n    swing: '3.3'\n", "voltage",
+     "'3.3 V' or '3.3 mV'"),
+    ("rules[0].max_noise", "rules:\n  - {name: n, kind: noise-budget, max_noise: 10}\n", "voltage", "'10 V' or '10 mV'"),
+])
+def test_a_bare_number_where_a_unit_is_needed_is_refused(tmp_path, key, line, kind, words):
+    # max_noise: 10 once meant 10 V (every victim passed): a dimensioned value needs its unit
+    path = tmp_path / "r.yaml"
+    path.write_text("version: 1\n" + line, encoding="utf-8")
+    with pytest.raises(RuleError) as info:
+        load_ruleset(path)
+    assert info.value.file == str(path) and key in str(info.value.place)
+    assert f"a {kind} needs its unit: write {words}" in info.value.message
+
+
+def test_a_ratio_and_zero_need_no_unit(tmp_path):
+    path = tmp_path / "r.yaml"
+    path.write_text("version: 1\nsettings:\n  bandwidth_factor: 0.5\n  edge_search: 0.3 mm\n"
+                    "net_classes:\n  v:\n    nets: [V*]\n    node_capacitance: 0\n", encoding="utf-8")
+    rs = load_ruleset(path)
+    assert rs.settings.bandwidth_factor == 0.5 and rs.classes[0].node_capacitance_f == 0.0

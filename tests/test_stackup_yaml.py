@@ -175,3 +175,40 @@ def test_missing_file(tmp_path: Path) -> None:
         load_stackup_yaml(tmp_path / "none.yaml")
     with pytest.raises(FabError, match="is a folder"):
         load_stackup_yaml(tmp_path)
+
+
+def test_thicknesses_with_their_units_need_no_units_key() -> None:
+    # one quantity syntax with the rule files: "35 um", "0.2 mm", "1.4 mil" (1 mil = 0.0254 mm exactly)
+    job = read("stackup:\n"
+               "  - {copper: TOP, role: signal, thickness: 35 um}\n"
+               "  - {dielectric: core, thickness: 0.2 mm, er: 4.2}\n"
+               "  - {copper: BOT, role: signal, thickness: 1.4 mil}\n")
+    top, bot = job.stackup.layers
+    assert top.thickness_mm == pytest.approx(0.035, rel=1e-12) and bot.thickness_mm == pytest.approx(0.03556, rel=1e-12)
+    assert job.stackup.dielectrics[0].thickness_mm == pytest.approx(0.2, rel=1e-12)
+
+
+def test_a_units_key_gives_bare_numbers_their_unit_and_quantities_keep_theirs() -> None:
+    job = read("units: mil\nstackup:\n"
+               "  - {copper: TOP, role: signal, thickness: 1.4}\n"
+               "  - {dielectric: core, thickness: 0.2 mm, er: 4.2}\n"
+               "  - {copper: BOT, role: signal, thickness: 35 um}\n")
+    top, bot = job.stackup.layers
+    assert top.thickness_mm == pytest.approx(1.4 * 0.0254, rel=1e-12)
+    assert job.stackup.dielectrics[0].thickness_mm == pytest.approx(0.2, rel=1e-12)
+    assert bot.thickness_mm == pytest.approx(0.035, rel=1e-12)
+
+
+@pytest.mark.parametrize("value, words", [
+    ("0.035", "a length needs its unit: write '0.035 mm' or '0.035 um' (accepted: mm, um, mil, in); or give the "
+              "unit of every bare number with a top-level 'units:' key"),
+    ("35 furlongs", "unknown length unit 'furlongs' (accepted: mm, um, mil, in)"),
+    ("35 pF", "unknown length unit 'pF'"),
+])
+def test_a_thickness_without_a_usable_unit_is_refused_at_its_line(value: str, words: str) -> None:
+    with pytest.raises(FabError) as info:
+        read("stackup:\n"
+             "  - {copper: TOP, role: signal, thickness: 35 um}\n"
+             "  - {dielectric: core, thickness: 0.2 mm, er: 4.2}\n"
+             f"  - {{copper: BOT, role: signal, thickness: {value}}}\n")
+    assert info.value.place == "stackup[2].thickness (line 4)" and words in info.value.message

@@ -16,20 +16,21 @@ loader reads it) with
   loss_tangent}`` and optional solder masks ``{mask, thickness, er,
   loss_tangent}`` first / last, top to bottom, alternating copper and
   dielectric;
-* ``units`` (optional): ``mm`` (default), ``mil``, ``um`` or ``in``, the
-  unit of every thickness, as in the board format;
+* ``units`` (optional): ``mm``, ``mil``, ``um`` or ``in``, the unit of
+  every thickness written as a bare number, as in the board format;
+  without it every thickness needs its unit (``thickness: 35 um``), as
+  every quantity of a rule file does (:mod:`checker.units`);
 * ``description`` (optional): free text for people, ignored.
 
 Any other top-level key is refused. Numbers follow YAML 1.1: ``0.001``
 and ``1.0e-3`` are numbers, but ``1e-3`` (no dot) and ``1.0e3`` (no sign
 in the exponent) are strings, refused as not numbers. Example::
 
-    units: mm
     stackup:
-      - {mask: top-mask, thickness: 0.015, er: 3.8}
-      - {copper: TOP, role: signal, thickness: 0.035}
-      - {dielectric: prepreg, thickness: 0.2, er: 4.2}
-      - {copper: GND, role: plane, thickness: 0.035}
+      - {mask: top-mask, thickness: 15 um, er: 3.8}
+      - {copper: TOP, role: signal, thickness: 35 um}
+      - {dielectric: prepreg, thickness: 0.2 mm, er: 4.2}
+      - {copper: GND, role: plane, thickness: 35 um}
 
 The list is checked by the board JSON door itself (its schema and its
 stackup rules), so both doors accept and refuse the same stackups with
@@ -50,6 +51,7 @@ import yaml
 
 from ...errors import BoardError, FabError
 from ...model import Stackup
+from ...units import UNITS, UnitError, needs_unit, parse_quantity
 from ...yamldoc import YamlProblem, compose_document, construct
 from ...yamlkeys import first_repeated_key
 from .. import board_json
@@ -143,10 +145,41 @@ def _validate(data: Any, node: yaml.Node, name: str) -> Stackup:
     if "stackup" not in data:
         fail(None, "missing required key 'stackup' (the list of copper, dielectric and mask entries)")
     given = {k: data[k] for k in ("units", "stackup") if k in data}
+    if isinstance(data["stackup"], list):
+        given["stackup"] = _thicknesses_in_mm(data["stackup"], data.get("units"), fail)
+        if isinstance(data.get("units"), str) and data["units"] in UNITS["length"]:
+            given["units"] = "mm"  # every thickness is in mm now
     try:
         return board_json.read_stackup_dict(given, name)
     except BoardError as exc:
         fail(exc.place, exc.message)
+
+
+def _thicknesses_in_mm(entries: list, units: Any, fail) -> list:
+    """The entries with every thickness in mm: a quantity (``35 um``,
+    ``0.2 mm``, ``1.4 mil``) as written, a bare number in the file's
+    ``units`` when the file has that key; a bare number in a file without
+    ``units`` is refused (a thickness needs its unit). Anything else is left
+    for the board door to refuse with its own words."""
+    factor = UNITS["length"].get(units) if isinstance(units, str) else None
+    if units is not None and factor is None:
+        return entries  # a bad units value: the board door names it
+    out = []
+    for i, entry in enumerate(entries):
+        value = entry.get("thickness") if isinstance(entry, dict) else None
+        place = f"stackup[{i}].thickness"
+        if isinstance(value, str):
+            try:
+                entry = {**entry, "thickness": parse_quantity(value, "length")}
+            except UnitError as exc:
+                fail(place, str(exc))
+        elif isinstance(value, (int, float)) and not isinstance(value, bool):
+            if factor is None:
+                fail(place, f"{needs_unit('length', f'{value:g}')}; or give the unit of every bare number "
+                            "with a top-level 'units:' key")
+            entry = {**entry, "thickness": value * factor}
+        out.append(entry)
+    return out
 
 
 def _line_of(root: yaml.Node, place: str | None) -> int:
