@@ -15,22 +15,44 @@ import numpy as np
 
 from .finder.pairs import PairTable, find_broadside, find_edge
 from .finder.runs import run_labels
-from .guards import (MAX_THIRD_NET_SOLVES, GuardedRows, SolveBudget, Guards, concat_guards, find_guard_pieces, grounding,
-                     guard_chains, guard_factors)
+from .guards import (
+    MAX_THIRD_NET_SOLVES,
+    GuardedRows,
+    Guards,
+    SolveBudget,
+    concat_guards,
+    find_guard_pieces,
+    grounding,
+    guard_chains,
+    guard_factors,
+)
 from .islands import Island, by_conductor, find_islands, island_links, relays
 from .model import NO_NET, Board, Pieces
 from .netrelays import net_relay_rows
 from .ownruns import own_mutual_pf
 from .physics import crosstalk
-from .physics.broadside import (FAR_OFFSET_STEP, FAR_TABLE_MARGIN, FAR_TABLE_RESOLUTION, FAR_WIDTH_KNOTS,
-                                BroadsideModel, broadside_c12_pf)
 from .physics.accurate import ExactBroadside, ExactEdge, ExactGround
+from .physics.broadside import (
+    FAR_OFFSET_STEP,
+    FAR_TABLE_MARGIN,
+    FAR_TABLE_RESOLUTION,
+    FAR_WIDTH_KNOTS,
+    BroadsideModel,
+    broadside_c12_pf,
+)
 from .physics.edge import EdgeModel, GroundModel, self_rise_per_m
 from .returnpath import ReturnGaps, return_gaps
 from .ruleset import NetClass, Rule, RuleSet
-from .shielding import (ReferenceCopper, effective_stackup, exposed_pieces, reference_copper, reference_mask,
-                        role_notes,
-                        search_band_mm, split_shielded)
+from .shielding import (
+    ReferenceCopper,
+    effective_stackup,
+    exposed_pieces,
+    reference_copper,
+    reference_mask,
+    role_notes,
+    search_band_mm,
+    split_shielded,
+)
 from .stackup import reference_of, separation_mm
 
 BROADSIDE, EDGE, RELAY = 0, 1, 2
@@ -680,7 +702,8 @@ def net_capacitance_to_ground_pf(board: Board, electrical: NetElectrical, notes:
         if on.size == 0:
             continue
         name = board.stackup.layers[int(layer)].name
-        model = ExactGround(board.stackup, int(layer)) if accurate else GroundModel(board.stackup, int(layer), p.width[on])
+        model = (ExactGround(board.stackup, int(layer)) if accurate
+                 else GroundModel(board.stackup, int(layer), p.width[on]))
         per_m = model.c_per_m(p.width[on])
         if reference_of(board.stackup, int(layer)).kind == "none":
             notes.append(f"layer {name} has no reference plane: its traces' capacitance to ground is to the "
@@ -745,8 +768,9 @@ def self_rise_pf(board: Board, c: Couplings, models: dict, victims: np.ndarray) 
         lo = np.where(c.layer_a[mine] == key[0], c.b[mine], c.a[mine]).astype(np.int64)
         scale = c.length_mm[mine] * 1e-3 * c.open_fraction[mine] * 1e12
         for own, upper_side in ((up, True), (lo, False)):
-            take(own, lambda pick, upper_side=upper_side: model.self_rise_per_m(
-                p.width[up[pick]], p.width[lo[pick]], c.offset_mm[mine][pick], upper_side) * scale[pick])
+            take(own, lambda pick, upper_side=upper_side, model=model, up=up, lo=lo, mine=mine, scale=scale:
+                 model.self_rise_per_m(p.width[up[pick]], p.width[lo[pick]], c.offset_mm[mine][pick],
+                                       upper_side) * scale[pick])
     for layer in np.unique(c.layer_a[rows]).tolist():
         model = models.get((EDGE, layer, layer))
         if not isinstance(model, EdgeModel):
@@ -755,7 +779,7 @@ def self_rise_pf(board: Board, c: Couplings, models: dict, victims: np.ndarray) 
         gap = np.maximum(c.gap_mm[mine], EDGE_GAP_FLOOR_MM)
         length_m = c.length_mm[mine] * 1e-3
         for own, other in ((c.a[mine], c.b[mine]), (c.b[mine], c.a[mine])):
-            take(own, lambda pick, own=own, other=other: self_rise_per_m(
+            take(own, lambda pick, own=own, other=other, model=model, gap=gap, length_m=length_m: self_rise_per_m(
                 model, p.width[own[pick]], p.width[other[pick]], gap[pick]) * length_m[pick] * 1e12)
     has = best > 0
     if has.any():
@@ -807,7 +831,8 @@ def aggregate_net_pairs(board: Board, c: Couplings, electrical: NetElectrical, c
     return pairs
 
 
-def _layer_masks(c: Couplings, inv: np.ndarray, m: int) -> tuple[tuple[tuple[int, int, int], ...], np.ndarray, np.ndarray]:
+def _layer_masks(c: Couplings, inv: np.ndarray,
+                 m: int) -> tuple[tuple[tuple[int, int, int], ...], np.ndarray, np.ndarray]:
     """The (kind, layer, layer) groups present, which of them each net pair
     couples on (bit masks), and each row's group."""
     lo, hi = np.minimum(c.layer_a, c.layer_b), np.maximum(c.layer_a, c.layer_b)

@@ -271,7 +271,8 @@ def run(args: argparse.Namespace) -> int:
     rule_names = [r.name for r in ruleset.rules]
     today = None
     if args.waivers:
-        from .review import load_waivers, today as review_today
+        from .review import load_waivers
+        from .review import today as review_today
 
         load_waivers(args.waivers)
         today = review_today()  # one date for every board, also on remote workers
@@ -304,8 +305,7 @@ def run(args: argparse.Namespace) -> int:
         except OSError as exc:
             raise UsageError(f"{out_dir}: cannot create the output folder: {exc.strerror or exc}") from None
         if err.is_terminal:  # a progress bar on stderr; never in pipes or CI logs
-            from rich.progress import (BarColumn, MofNCompleteColumn, Progress, TextColumn,
-                                       TimeElapsedColumn)
+            from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
             with Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
                           TimeElapsedColumn(), console=err, transient=True) as bar:

@@ -9,8 +9,8 @@ from __future__ import annotations
 
 import argparse
 import os
-import tempfile
 import sys
+import tempfile
 from importlib import resources
 from pathlib import Path
 
@@ -18,15 +18,15 @@ from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
 from . import __version__, batch, cores, limits, progress
-from .report import json_report
 from .atomic import (
+    Stopped,
     refuse_overwriting_inputs,
     refuse_shared_outputs,
-    Stopped,
     removing_temporaries_on_signals,
     write_atomically,
 )
 from .errors import CouplintError, UsageError, bounded
+from .report import json_report
 from .report.visible import visible
 from .review import DEFAULT_WAIVER_FILE, FAIL_ON, TODAY_ENV
 
@@ -252,9 +252,9 @@ def _load(board_paths: list[str], args: argparse.Namespace):
 
 
 def _check(board_paths: list[str], args: argparse.Namespace) -> int:
+    from .analysis import analysis_steps
     from .report import terminal
     from .review import build_review, load_baseline, load_waivers, today
-    from .analysis import analysis_steps
     from .ruleset import ruleset_named
     from .runner import check_board
 

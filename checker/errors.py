@@ -9,7 +9,6 @@ from __future__ import annotations
 
 from .describe import shorten
 
-
 #: Longest file name or place (JSON path, key path) a message shows, and
 #: longest line of a message; longer ones keep their head and tail.
 PLACE_CHARS = 160

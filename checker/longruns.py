@@ -20,8 +20,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.constants import c as C0
 
-from .physics.broadside import broadside_section
 from .physics.accurate import ACCURATE_RESOLUTION
+from .physics.broadside import broadside_section
 from .physics.fieldsolve import FAST
 from .physics.tline import (
     Crosstalk,

@@ -42,11 +42,11 @@ from typing import Any
 
 import yaml
 
+from . import limits
 from .checks import REGISTRY
 from .checks.options import Option
 from .errors import RuleError
 from .shielding import DEFAULT_REFERENCE_NETS
-from . import limits
 from .units import DEFAULT_UNIT, UNITS, UnitError, parse_quantity
 from .yamldoc import YamlProblem, compose_document, construct
 from .yamlkeys import first_repeated_key
@@ -584,7 +584,8 @@ def _parse_classes(value: Any, file: str) -> dict[str, NetClass]:
             else:
                 values[attr] = opt.default
         if values["duty"] is not None and values["duty"] >= 1.0:
-            raise RuleError(file, _join(place, "duty"), f"must be < 1 (always high couples nothing), got {body['duty']}")
+            raise RuleError(file, _join(place, "duty"),
+                            f"must be < 1 (always high couples nothing), got {body['duty']}")
         if (values["filter_resistance_ohm"] is None) != (values["filter_capacitance_f"] is None):
             missing = "filter_capacitance" if values["filter_capacitance_f"] is None else "filter_resistance"
             raise RuleError(file, _join(place, missing),

@@ -24,9 +24,10 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
+from synth import make_pieces  # noqa: E402
+
 from checker.finder import find_broadside, find_edge, run_labels  # noqa: E402
 from checker.finder import index as finder_index  # noqa: E402
-from synth import make_pieces  # noqa: E402
 
 
 def _peak_mb() -> float:

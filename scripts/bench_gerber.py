@@ -139,7 +139,7 @@ def write_layer_set(directory: Path, seed: int) -> tuple[list[Path], int]:
                     lines.append(f"D{13 + k % 3}*\n%TO.N,NET{k % 400}*%\n%TO.P,U{k // 20},{k % 20 + 1}*%\n"
                                  f"X{_um(rng.uniform(2, 98))}Y{_um(rng.uniform(2, 78))}D03*\n")
                 lines.append("%TD*%\n%TA.AperFunction,Conductor*%\n%TO.N,GND*%\n")
-                for k in range(20):
+                for _k in range(20):
                     x, y = rng.uniform(0, 90), rng.uniform(0, 70)
                     lines.append(f"G36*\nX{_um(x)}Y{_um(y)}D02*\nX{_um(x + 8)}D01*\nY{_um(y + 8)}D01*\n"
                                  f"X{_um(x)}D01*\nY{_um(y)}D01*\nG37*\n")
@@ -324,7 +324,7 @@ def write_export_like(path: Path, seed: int, inch: bool = False, scale: float = 
         define("via", f"C,{w.size(d)}")
     for k in range(30):
         define("pad", f"C,{w.size(0.5 + 0.05 * k)}")
-    for k in range(60):
+    for _k in range(60):
         define("pad", f"R,{w.size(rng.uniform(0.3, 2.5))}X{w.size(rng.uniform(0.3, 2.5))}")
     for k in range(40):
         a, b = rng.uniform(0.4, 2.5), rng.uniform(0.3, 1.2)
@@ -338,9 +338,10 @@ def write_export_like(path: Path, seed: int, inch: bool = False, scale: float = 
             px, py = sx * (wd / 2 - r), sy * (ht / 2 - r)
             corners += [px * math.cos(t) - py * math.sin(t), px * math.sin(t) + py * math.cos(t)]
         define("pad", "RoundRect," + "X".join(w.size(v) for v in [r] + corners))
-    for k in range(30):
-        define("pad", f"RotRect,{w.size(rng.uniform(0.3, 2))}X{w.size(rng.uniform(0.3, 2))}X{rng.choice((30, 45, 60, 120))}")
-    for k in range(20):
+    for _k in range(30):
+        define("pad", f"RotRect,{w.size(rng.uniform(0.3, 2))}X{w.size(rng.uniform(0.3, 2))}"
+               f"X{rng.choice((30, 45, 60, 120))}")
+    for _k in range(20):
         length, dia = rng.uniform(1.0, 2.5), rng.uniform(0.3, 0.9)
         t = math.radians(rng.choice((30, 45, 135)))
         off = (length - dia) / 2
@@ -357,7 +358,7 @@ def write_export_like(path: Path, seed: int, inch: bool = False, scale: float = 
     board_w, board_h = 160.0 * math.sqrt(scale), 100.0 * math.sqrt(scale)  # the same density at any scale
     # ---- pours (G36/G37) with arcs and cut-in holes
     pour_centres = []
-    for k in range(n(8)):
+    for _k in range(n(8)):
         cx, cy = rng.uniform(25, board_w - 25), rng.uniform(20, board_h - 20)
         rx, ry = rng.uniform(10, 22), rng.uniform(8, 18)
         pour_centres.append((cx, cy, rx, ry))
@@ -381,7 +382,7 @@ def write_export_like(path: Path, seed: int, inch: bool = False, scale: float = 
             current = d
         w.op(x, y, 3)
     w(f"D{apertures['clear_track'][0]}*\n")
-    for k in range(n(600)):
+    for _k in range(n(600)):
         x, y = rng.uniform(5, board_w - 5), rng.uniform(5, board_h - 5)
         w.op(x, y, 2)
         for _ in range(3):
@@ -408,7 +409,7 @@ def write_export_like(path: Path, seed: int, inch: bool = False, scale: float = 
             x, y = nx_, ny_
     # ---- pads: flashes, aperture switching often
     pads = apertures["pad"]
-    for k in range(n(600)):
+    for _k in range(n(600)):
         d = rng.choice(pads)
         w(f"D{d}*\n")
         x, y = rng.uniform(3, board_w - 3), rng.uniform(3, board_h - 3)
@@ -452,7 +453,7 @@ def write_big_pour(path: Path, seed: int, scale: float = 1.0) -> int:
         cx, cy = 50 + 100 * (k % cols), 50 + 100 * (k // cols)
         _pour_contour(w, rng, cx + 20, cy, 20, 30, vertices=3000, holes=0, arc_every=9)
     w("D13*\n")
-    for k in range(75 * rows * cols):
+    for _k in range(75 * rows * cols):
         x, y = rng.uniform(5, side_x - 5), rng.uniform(5, side_y - 5)
         w.op(x, y, 2)
         for _ in range(5):

@@ -71,7 +71,8 @@ def main(argv: list[str] | None = None) -> None:
             pieces = len(board.pieces)
             del board
     peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
-    print(f"{args.n:,} tracks ({size_mb:.0f} MB, {pieces:,} pieces): load_board median {statistics.median(times):.2f} s "
+    print(f"{args.n:,} tracks ({size_mb:.0f} MB, {pieces:,} pieces): "
+          f"load_board median {statistics.median(times):.2f} s "
           f"(range {min(times):.2f}-{max(times):.2f} s over {args.runs} runs), peak RSS {peak:,.0f} MB")
 
 

@@ -84,7 +84,8 @@ def child(n: int, seed: int, rules_path: str) -> dict:
     with tempfile.TemporaryFile("w") as fh:
         json.dump(build_report(result), fh)
     import checker
-    return {"checker": str(Path(checker.__file__).parent), "seconds": time.perf_counter() - t0, "cpu_seconds": time.process_time() - c0,
+    return {"checker": str(Path(checker.__file__).parent), "seconds": time.perf_counter() - t0,
+            "cpu_seconds": time.process_time() - c0,
             "findings": len(result.findings), "pairs": int(len(result.analysis.couplings)),
             "peak_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024}
 

@@ -41,7 +41,8 @@ def main() -> None:
     for name, res in (("FAST", FAST), ("FINE", FINE)):
         r, dt = best_of(two_trace, res)
         err = abs(-r.maxwell[0, 1] / -fine[0, 1] - 1)
-        print(f"two traces, broadside   {name}: {dt * 1e3:7.1f} ms  C12 within {err * 100:.2f} % of resolution {2 * FINE:g}")
+        print(f"two traces, broadside   {name}: {dt * 1e3:7.1f} ms  "
+              f"C12 within {err * 100:.2f} % of resolution {2 * FINE:g}")
     a = 0.5
     cases = [
         ("coax b/a=5", CrossSection((Circle(0, 0, a, 0),), box=Circle(0, 0, 5 * a)),

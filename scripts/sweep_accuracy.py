@@ -279,7 +279,7 @@ def make_groups(kind: str, n_groups: int, n_queries: int, seed: int) -> list[Gro
             u = uq[g * n_queries + q]
             on_knot = q % 2 == 0
 
-            def pick(knots, uu):
+            def pick(knots, uu, on_knot=on_knot):
                 if on_knot:
                     return float(knots[min(int(uu * knots.size), knots.size - 1)])
                 return float(log_map(uu, knots[0], knots[-1]))

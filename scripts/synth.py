@@ -23,7 +23,12 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from checker.model import (  # noqa: E402
-    Board, CopperLayer, Dielectric, Net, Pieces, Stackup,
+    Board,
+    CopperLayer,
+    Dielectric,
+    Net,
+    Pieces,
+    Stackup,
 )
 
 COVERAGE = 0.20

@@ -41,7 +41,6 @@ def test_output_naming_an_input_is_refused(tmp_path):
 
 # --------------------------------------------------------------------------- signals and leftovers
 
-import os  # noqa: E402
 import signal  # noqa: E402
 import subprocess  # noqa: E402
 import sys  # noqa: E402

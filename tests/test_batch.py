@@ -11,7 +11,8 @@ from pathlib import Path
 import pytest
 
 from checker import batch
-from checker.cli import demo_board_path, main as cli_main
+from checker.cli import demo_board_path
+from checker.cli import main as cli_main
 from checker.errors import CouplintError
 from checker.report import junit
 
@@ -225,7 +226,8 @@ def test_same_stem_gets_distinct_report_names(tmp_path, monkeypatch, capsys):
     names = batch.report_names(["p/rev/b.json", "q/rev/b.json"])
     import hashlib
 
-    assert names == {p: f"b-{hashlib.sha256(p.encode()).hexdigest()[:8]}.json" for p in ("p/rev/b.json", "q/rev/b.json")}
+    assert names == {p: f"b-{hashlib.sha256(p.encode()).hexdigest()[:8]}.json"
+                     for p in ("p/rev/b.json", "q/rev/b.json")}
 
 
 def test_refuses_to_overwrite_inputs(boards, capsys):

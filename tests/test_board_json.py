@@ -16,8 +16,7 @@ import shapely
 
 from checker.errors import BoardError
 from checker.model import ARC_CHORD_TOLERANCE_MM, NO_NET, Board
-from checker.readers import load_board, read_board_dict
-from checker.readers import board_json
+from checker.readers import board_json, load_board, read_board_dict
 from checker.readers.board_json import (
     _fast_schema_check,
     arc_polyline,
@@ -284,7 +283,7 @@ def test_sources_and_ordinals() -> None:
     # unconnected copper
     assert p.net[of_source(board, "tracks[4]")].tolist() == [NO_NET]
     # every source's ordinals run 0, 1, 2 ... and its pieces chain end to start
-    for k, name in enumerate(board.sources):
+    for k, _name in enumerate(board.sources):
         rows = np.flatnonzero(p.source == k)
         np.testing.assert_array_equal(p.ordinal[rows], np.arange(len(rows)))
         np.testing.assert_array_equal(p.x2[rows[:-1]], p.x1[rows[1:]])
@@ -571,11 +570,13 @@ BAD = [
     ("loss-tangent-negative", put(["stackup", 1, "loss_tangent"], -0.01), "stackup[1].loss_tangent", ">= 0"),
     # solder mask entries (docs/board-format.md, "Solder mask")
     ("mask-in-the-middle", put(["stackup"], STACK2[:2] + [MASK] + STACK2[2:]), "stackup[2]", "only be the first"),
-    ("mask-before-dielectric", put(["stackup"], [MASK] + STACK2[1:]), "stackup[1]", "top solder mask is followed by copper"),
+    ("mask-before-dielectric", put(["stackup"], [MASK] + STACK2[1:]), "stackup[1]",
+     "top solder mask is followed by copper"),
     ("mask-after-dielectric", put(["stackup"], STACK2[:2] + [MASK]), "stackup[1]", "before the bottom solder mask"),
     ("mask-only", put(["stackup"], [MASK]), "stackup", "at least one copper layer besides"),
     ("mask-twice-on-top", put(["stackup"], [MASK, MASK] + STACK2), "stackup[1]", "only be the first"),
-    ("mask-thickness-zero", put(["stackup"], [dict(MASK, thickness=0)] + STACK2), "stackup[0].thickness", "must be > 0"),
+    ("mask-thickness-zero", put(["stackup"], [dict(MASK, thickness=0)] + STACK2), "stackup[0].thickness",
+     "must be > 0"),
     ("mask-er-below-1", put(["stackup"], STACK2 + [dict(MASK, er=0.5)]), "stackup[3].er", "must be >= 1"),
     ("mask-missing-er", put(["stackup"], [{"mask": "m", "thickness": 0.02}] + STACK2), "stackup[0]",
      "missing required key 'er'"),
@@ -603,7 +604,8 @@ BAD = [
      "regions[1].outline", "degenerate"),
     ("two-corner-region", put(["regions", 1, "outline"], [[8, -7], [10, -5], [8, -7]]),
      "regions[1].outline", "fewer than 3 distinct corners"),
-    ("region-two-points", put(["regions", 1, "outline"], [[8, -7], [10, -5]]), "regions[1].outline", "at least 3 corners"),
+    ("region-two-points", put(["regions", 1, "outline"], [[8, -7], [10, -5]]), "regions[1].outline",
+     "at least 3 corners"),
     ("hole-outside", put(["regions", 1, "holes", 0], [[17, -5], [19, -5], [19, -3], [17, -3]]),
      "regions[1].holes[0]", "outside"),
     ("self-intersecting-hole", put(["regions", 1, "holes", 0], [[12, -5], [14, -3], [14, -5], [12, -3]]),
@@ -677,7 +679,8 @@ FILE_CASES = [
     ("overflow", '{"format": "couplint-board", "version": 1, "stackup": [], "nets": [], "tracks": '
                  '[{"layer": "A", "net": null, "width": 1e999, "points": []}]}', "tracks[0].width", "finite"),
     ("duplicate-key", '{"format": "couplint-board", "version": 1, "stackup": [{"copper": "A", "copper": "B", '
-                      '"role": "signal", "thickness": 1}], "nets": []}', "stackup[0]", "'copper' appears more than once"),
+                      '"role": "signal", "thickness": 1}], "nets": []}', "stackup[0]",
+     "'copper' appears more than once"),
     ("deep", "[" * 50000 + "]" * 50000, None, "invalid JSON"),
     ("deep-valid-ish", '{"format": "couplint-board", "version": 1, "stackup": ' + "[" * 500 + "]" * 500 + "}",
      "stackup[0][0][0][0][0][0][0][0][0][0][0][0][0][0][0][0]", "nested"),

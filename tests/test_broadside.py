@@ -66,7 +66,8 @@ def six_layer() -> Stackup:
             CopperLayer("gnd2", "plane", 0.035),
             CopperLayer("bot", "signal", 0.035),
         ),
-        (Dielectric(0.1, 4.2), Dielectric(0.15, 4.4), Dielectric(0.25, 3.9), Dielectric(0.2, 4.4), Dielectric(0.1, 4.2)),
+        (Dielectric(0.1, 4.2), Dielectric(0.15, 4.4), Dielectric(0.25, 3.9), Dielectric(0.2, 4.4),
+         Dielectric(0.1, 4.2)),
     )
 
 

@@ -189,7 +189,8 @@ def test_capacitance_budget_compares_total(tmp_path):
 
 def test_noise_budget_matches_lumped_model(tmp_path):
     b = board([track("TOP", "CLK", [[0, 0], [10, 0]]), track("IN1", "SENSE", [[0, 0], [10, 0]])])
-    result = check_board(b, rules(tmp_path, "- {name: n, kind: noise-budget, aggressor: fast, victim: quiet, max_noise: 0.001 mV}\n"))
+    result = check_board(b, rules(tmp_path, "- {name: n, kind: noise-budget, aggressor: fast, victim: quiet, "
+                                            "max_noise: 0.001 mV}\n"))
     a = result.analysis
     c12 = float(a.net_pairs.c12_pf[0]) * 1e-12
     sense = a.board.net_index()["SENSE"]

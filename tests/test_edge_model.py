@@ -52,7 +52,8 @@ def approx(value, rel: float):
 def stripline(t: float = 0.0, h: float = 0.2, er: float = 4.0) -> Stackup:
     """plane / signal (copper t) / plane, h of dielectric each side: a
     centred stripline with b = 2h + t."""
-    return Stackup((CopperLayer("g1", "plane", 0.035), CopperLayer("s", "signal", t), CopperLayer("g2", "plane", 0.035)),
+    return Stackup((CopperLayer("g1", "plane", 0.035), CopperLayer("s", "signal", t),
+                    CopperLayer("g2", "plane", 0.035)),
                    (Dielectric(h, er), Dielectric(h, er)))
 
 

@@ -616,7 +616,8 @@ def test_in_the_wild_errors(text: str, line: int, message: str) -> None:
 # --------------------------------------------------------------------------- looks_like_drill
 
 GERBER = b"G04 invented*\n%FSLAX26Y26*%\n%MOMM*%\n%ADD10C,0.1*%\nD10*\nX0Y0D02*\nX100Y0D01*\nM02*\n"
-IPC356 = b"C  invented netlist\nP  JOB   BOARD\nP  UNITS CUST 1\n317GND       VIA   D0150PA00X 000100Y 000200X0300Y0000R000 S0\n999\n"
+IPC356 = (b"C  invented netlist\nP  JOB   BOARD\nP  UNITS CUST 1\n"
+          b"317GND       VIA   D0150PA00X 000100Y 000200X0300Y0000R000 S0\n999\n")
 
 
 @pytest.mark.parametrize(

@@ -17,16 +17,16 @@ import traceback
 from typing import Callable
 
 import pytest
+from test_excellon import METRIC_DECIMAL, ROUTED
+from test_ipc356 import SAMPLE_MM
+from test_jobfile import JOB
+from test_stackup_yaml import SAMPLE as STACKUP_YAML
 
 from checker.errors import FabError
 from checker.readers.fab.excellon import read_excellon
 from checker.readers.fab.ipc356 import read_ipc356
 from checker.readers.fab.jobfile import read_job
 from checker.readers.fab.stackup_yaml import read_stackup_yaml
-from test_excellon import METRIC_DECIMAL, ROUTED
-from test_ipc356 import SAMPLE_MM
-from test_jobfile import JOB
-from test_stackup_yaml import SAMPLE as STACKUP_YAML
 
 PER_READER = 1500
 

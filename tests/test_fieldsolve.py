@@ -39,7 +39,6 @@ c0: ``scipy.constants``.
 
 from __future__ import annotations
 
-
 import numpy as np
 import pytest
 import skrf
@@ -113,7 +112,8 @@ def test_parallel_plates_mutual_between_two_signal_plates():
     expected = EPS0 / (0.15 / 2.5 + 0.25 / 5.0)
     c12 = [
         solve(
-            CrossSection((Conductor(-w / 2, w / 2, 0.2, 0.2, 0), Conductor(-w / 2, w / 2, 0.6, 0.6, 1)), slabs, (0.0, 0.8)),
+            CrossSection((Conductor(-w / 2, w / 2, 0.2, 0.2, 0), Conductor(-w / 2, w / 2, 0.6, 0.6, 1)), slabs,
+                         (0.0, 0.8)),
             FAST,
         ).c12
         for w in (10.0, 20.0)

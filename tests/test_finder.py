@@ -238,7 +238,8 @@ def test_pair_reported_once_across_many_cells():
 def test_empty_input():
     for p in (Pieces.empty(), mk((0, 0, 1, 0, 0.2, 1, 0))):
         t = find_broadside(p, 0, 1, 0.5)
-        assert len(t) == 0 and t.kind == "broadside" and t.a.dtype == np.int32  # piece indices in int32 (the narrowest that holds them)
+        # piece indices in int32 (the narrowest that holds them)
+        assert len(t) == 0 and t.kind == "broadside" and t.a.dtype == np.int32
         assert len(find_edge(p, 0, 0.5)) == 0
     assert run_labels(Pieces.empty(), np.zeros(0, np.int64), np.zeros(0, np.int64)).size == 0
 

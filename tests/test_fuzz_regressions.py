@@ -149,7 +149,7 @@ def test_the_judge_catches_what_it_must(tmp_path):
 
     def warns(data, path):
         import warnings
-        warnings.warn("numbers overflowed", RuntimeWarning)
+        warnings.warn("numbers overflowed", RuntimeWarning, stacklevel=2)
 
     assert fuzz.classify(fuzz.Door("t", "test", ("x:y",), ".txt", 10, warns), b"", path).status == "crash"
 

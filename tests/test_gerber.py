@@ -31,13 +31,12 @@ import shapely
 import shapely.affinity
 
 from checker.errors import FabError
+from checker.model import ARC_CHORD_TOLERANCE_MM
 from checker.readers import read_board_dict
 from checker.readers.arcs import arc_polyline, chord_count
-from checker.readers.fab import gerber as gerber_module
 from checker.readers.fab.gerber import load_gerber, read_gerber
 from checker.readers.fab.gerber_apertures import disc, obround
 from checker.readers.fab.layer import NET_UNKNOWN
-from checker.model import ARC_CHORD_TOLERANCE_MM
 
 HEADER = "%FSLAX46Y46*%\n%MOMM*%\n"
 
@@ -566,7 +565,8 @@ def test_macro_vector_line_outline_polygon_and_circle_rotation():
     assert g.area == pytest.approx(1.0, rel=1e-12)
     t = math.radians(30)
     cx, cy = 4 / 3, 1 / 3  # the triangle's centroid before rotation
-    assert g.centroid.coords[0] == pytest.approx((cx * math.cos(t) - cy * math.sin(t), cx * math.sin(t) + cy * math.cos(t)))
+    assert g.centroid.coords[0] == pytest.approx((cx * math.cos(t) - cy * math.sin(t),
+                                                  cx * math.sin(t) + cy * math.cos(t)))
     # spec 4.5.1.7 polygon primitive: 8 vertices, diameter 8: area 4 x 4^2 sin(45 degrees)
     octagon = read("%AMPolygon*\n5,1,8,0,0,8,0*%\n%ADD10Polygon*%\nD10*\nX0Y0D03*\n")
     assert pads(octagon)[0].polygon.area == pytest.approx(4 * 16 * math.sin(math.pi / 4), rel=1e-12)
@@ -823,8 +823,9 @@ X5000000Y500000D01*
 
 
 def test_spec_polarity_example_against_exact_area():
-    # spec 4.10.4.6 (the example's text, read with format 26 instead of 25): big square (2.5..17.5)^2 dark, circle r 5 at (10,10) clear,
-    # square (7.5..12.5)^2 dark, circle r 2.5 at (14,10) clear. Exact area by inclusion-exclusion:
+    # spec 4.10.4.6 (the example's text, read with format 26 instead of 25): big square (2.5..17.5)^2 dark,
+    # circle r 5 at (10,10) clear, square (7.5..12.5)^2 dark, circle r 2.5 at (14,10) clear. Exact area by
+    # inclusion-exclusion:
     # 225 - 25 pi + 25 - area(small circle minus (big circle minus small square)).
     layer = read_raw(b"""%FSLAX26Y26*%
 %MOMM*%

@@ -50,7 +50,7 @@ def test_long_runs_in_every_spelling_read_as_written():
         lineno += 2
         points = [(x, y)]
         first = lineno
-        for k in range(int(rng.integers(1, 60))):
+        for _k in range(int(rng.integers(1, 60))):
             style = int(rng.integers(0, 10))
             nx = x + int(rng.integers(-2_000_000, 2_000_000))
             ny = y + int(rng.integers(-2_000_000, 2_000_000))
@@ -201,7 +201,7 @@ def test_region_vertices_in_the_common_spelling_read_bit_for_bit(negative_zero):
           [(side * 250_000 - k * 250_000, side * 250_000) for k in range(side)] + \
           [(0, side * 250_000 - k * 250_000) for k in range(side)]
     lines = [HEADER, "G36*\n", "X0Y0D02*\n"]
-    for k, (px, py) in enumerate(pts[1:] + pts[:1]):
+    for _k, (px, py) in enumerate(pts[1:] + pts[:1]):
         lines.append(f"X{'-0' if negative_zero and px == 0 else px}Y{py}D01*\n")
     lines.append("G37*\nM02*\n")
     (region,) = read_text("".join(lines)).shapes

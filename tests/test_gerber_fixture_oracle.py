@@ -40,9 +40,9 @@ from pathlib import Path
 
 import pytest
 import shapely
+from test_gerber import _gerbonara_primitive, assert_same_copper, copper_by_net
 
 from checker.readers.fab.gerber import load_gerber
-from test_gerber import _gerbonara_primitive, assert_same_copper, copper_by_net
 
 ROOT = Path(__file__).resolve().parents[1]
 FOUR_DIR = ROOT / "fixtures" / "fab" / "four_layer_mixed"
@@ -163,7 +163,7 @@ def test_fixture_copper_per_layer_and_net_matches_gerbonara(packages):
             compared["layer"] += 1
             # our reader's region nets are the TO.N in force at each dark G36 (oracle: the file text scan,
             # whose agreement with gerbonara's Region objects oracle_copper_by_net asserts)
-            names = lambda i: None if i < 0 else mine.net_names[i]  # noqa: E731
+            names = lambda i, mine=mine: None if i < 0 else mine.net_names[i]  # noqa: E731
             got = [names(s.net) for s in mine.shapes if s.kind == "region"]
             want = [net for net, dark in g36_nets(path.read_text()) if dark]
             assert got == want, what

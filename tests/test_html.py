@@ -234,7 +234,7 @@ def test_identity_hashes_and_stackup(demo, tmp_path):
     import checker
 
     assert f"couplint {checker.__version__}" in text
-    page = Page(text)
+    Page(text)
     stack = [" ".join(t.split()) for t in re.findall(r'<tr class="(?:copper|dielectric)">(.*?)</tr>', text)]
     assert len(stack) == 7  # 4 copper layers, 3 dielectrics, top to bottom
     assert re.sub("<[^>]+>", " ", stack[1]).split() == ["prepreg-1", "dielectric", "0.2", "mm", "4.2", "0.02"]

@@ -44,7 +44,7 @@ from checker.runner import check_board
 
 ROOT = pathlib.Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT / "scripts"))
-from write_ipc2581 import FIXTURES, ipc2581_text
+from write_ipc2581 import FIXTURES, ipc2581_text  # noqa: E402 (scripts/ goes on sys.path first)
 
 #: IPC-2581 fixture -> (the Gerber package of the same board, its JSON source)
 PAIRS = {
@@ -214,11 +214,12 @@ def test_micron_export_reads_the_same(tmp_path):
 SPECS = """
    <Spec name="S_CORE"><Dielectric type="DIELECTRIC_CONSTANT"><Property value="4.5"/></Dielectric>
      <Dielectric type="LOSS_TANGENT"><Property value="0.02"/></Dielectric></Spec>"""
-LAYERS = """
+LAYERS = ("""
    <Layer name="TOP" layerFunction="SIGNAL" side="TOP" polarity="POSITIVE"/>
    <Layer name="CORE" layerFunction="DIELCORE" side="INTERNAL" polarity="POSITIVE"/>
    <Layer name="BOT" layerFunction="PLANE" side="BOTTOM" polarity="POSITIVE"/>
-   <Layer name="DRILL" layerFunction="DRILL" side="ALL" polarity="POSITIVE"><Span fromLayer="TOP" toLayer="BOT"/></Layer>"""
+   <Layer name="DRILL" layerFunction="DRILL" side="ALL" polarity="POSITIVE">"""
+          '<Span fromLayer="TOP" toLayer="BOT"/></Layer>')
 STACKUP = """
    <Stackup name="S" overallThickness="1.57"><StackupGroup name="G">
     <StackupLayer layerOrGroupRef="TOP" thickness="0.035" sequence="1"/>
@@ -449,7 +450,8 @@ def test_component_pad_and_hole_are_not_a_via(tmp_path):
     Excellon hole without TA.AperFunction is."""
     dictionaries = """<DictionaryStandard units="MILLIMETER"><EntryStandard id="C"><Circle diameter="1.5"/>
       </EntryStandard></DictionaryStandard>"""
-    cpad = '<Set net="SIG" padUsage="TERMINATION"><Pad><Location x="9" y="1"/><StandardPrimitiveRef id="C"/></Pad></Set>'
+    cpad = ('<Set net="SIG" padUsage="TERMINATION"><Pad><Location x="9" y="1"/>'
+            '<StandardPrimitiveRef id="C"/></Pad></Set>')
     hole = '<Hole name="J1" diameter="0.9" platingStatus="PLATED" x="9" y="1"/>'
     board = load_ipc2581(ipc(tmp_path, LINE + cpad, bot=cpad, dictionaries=dictionaries,
                              drill=f'<Set net="SIG" padUsage="TERMINATION">{hole}</Set>'))

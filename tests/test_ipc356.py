@@ -21,7 +21,6 @@ import pytest
 
 from checker import limits
 from checker.errors import FabError
-from checker.readers.fab import ipc356
 from checker.readers.fab.ipc356 import load_ipc356, read_ipc356
 
 # Written out column by column (IPC-D-356A test record, from memory):
@@ -80,7 +79,7 @@ def gerbonara_points(text: str) -> list[tuple]:
         netlist = g.Netlist.from_string(text, filename="oracle.ipc")
     out = []
     for r in netlist.test_records:
-        mm = lambda v: None if v is None else MM.convert_from(r.unit, v)  # noqa: E731
+        mm = lambda v, r=r: None if v is None else MM.convert_from(r.unit, v)  # noqa: E731
         out.append((r.net_name, mm(r.x), mm(r.y), r.access_layer or None, mm(r.hole_dia), r.ref_des or "",
                     r.pin or "", r.is_plated))
     return out

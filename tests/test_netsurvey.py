@@ -66,7 +66,8 @@ def test_classes_command_prints_the_survey(tmp_path, capsys):
 
 @pytest.mark.parametrize("value, kind, text", [
     (3.3, "voltage", "3.3 V"), (0.01, "voltage", "10 mV"), (25e6, "frequency", "25 MHz"), (10.0, "frequency", "10 Hz"),
-    (5e-9, "time", "5 ns"), (2.5e-10, "time", "250 ps"), (1e5, "resistance", "100 kohm"), (4.7e6, "resistance", "4.7 Mohm"),
+    (5e-9, "time", "5 ns"), (2.5e-10, "time", "250 ps"), (1e5, "resistance", "100 kohm"),
+    (4.7e6, "resistance", "4.7 Mohm"),
     (1e-11, "capacitance", "10 pF"), (2.2e-9, "capacitance", "2.2 nF"), (0.5, "ratio", "0.5"),
 ])
 def test_format_quantity_writes_what_the_rule_reader_reads_back(value, kind, text):

@@ -12,8 +12,8 @@ import pytest
 
 from checker.analysis import analyse
 from checker.ownruns import own_mutual_pf
-from checker.physics.fieldsolve import Conductor, CrossSection, solve
 from checker.physics.edge import ground_section
+from checker.physics.fieldsolve import Conductor, CrossSection, solve
 from checker.readers.board_json import read_board_dict
 from checker.ruleset import default_ruleset
 

@@ -354,7 +354,8 @@ def test_waive_help_text(capsys):
     code = main(["waive", "--help"])
     out = capsys.readouterr().out
     assert code == 0
-    assert "with --report, against the findings of that JSON report, so a mistyped id is refused" in " ".join(out.split())
+    assert ("with --report, against the findings of that JSON report, so a mistyped id is refused"
+            in " ".join(out.split()))
 
 
 # --------------------------------------------------------------------------

@@ -659,7 +659,8 @@ def test_impossible_date_value_is_a_rule_error(tmp_path):
      "resistance", "'100 ohm' or '100 kohm'"),
     ("net_classes.clk.swing", "net_classes:\n  clk:\n    nets: [C*]\n    swing: '3.3'\n", "voltage",
      "'3.3 V' or '3.3 mV'"),
-    ("rules[0].max_noise", "rules:\n  - {name: n, kind: noise-budget, max_noise: 10}\n", "voltage", "'10 V' or '10 mV'"),
+    ("rules[0].max_noise", "rules:\n  - {name: n, kind: noise-budget, max_noise: 10}\n", "voltage",
+     "'10 V' or '10 mV'"),
 ])
 def test_a_bare_number_where_a_unit_is_needed_is_refused(tmp_path, key, line, kind, words):
     # max_noise: 10 once meant 10 V (every victim passed): a dimensioned value needs its unit

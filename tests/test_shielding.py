@@ -382,8 +382,9 @@ def test_self_crossing_copper_shapes_do_not_break_the_analysis():
     """A bow-tie region (self-crossing outline, as a careless exporter may
     write) on GND and one on no net: repaired, not an internal error; the
     no-net one is two floating islands (the bow tie's two triangles)."""
-    import shapely
     from dataclasses import replace
+
+    import shapely
 
     from checker.model import NO_NET, Region
 

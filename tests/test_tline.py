@@ -98,7 +98,8 @@ def six_layer() -> Stackup:
             CopperLayer("gnd2", "plane", 0.035),
             CopperLayer("bot", "signal", 0.035),
         ),
-        (Dielectric(0.1, 4.2), Dielectric(0.15, 4.4), Dielectric(0.25, 3.9), Dielectric(0.2, 4.4), Dielectric(0.1, 4.2)),
+        (Dielectric(0.1, 4.2), Dielectric(0.15, 4.4), Dielectric(0.25, 3.9), Dielectric(0.2, 4.4),
+         Dielectric(0.1, 4.2)),
     )
 
 
@@ -277,7 +278,7 @@ def test_single_microstrip_matches_hammerstad_jensen(w, h, t, er):
     assert m.z0 == approx(z0, 0.02)
     assert m.velocity == approx(v, 0.005)
     with pytest.raises(ValueError):
-        m.kb  # one line: no coupling
+        _ = m.kb  # one line: no coupling
 
 
 # ------------------------------------------------------- hand calculation

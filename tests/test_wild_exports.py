@@ -31,14 +31,14 @@ from pathlib import Path
 import numpy as np
 import pytest
 import shapely
+from test_gerber import assert_same_copper, copper_by_net
+from test_gerber_fixture_oracle import oracle_copper_by_net
 
 from checker.cli import main
 from checker.readers import load_board
 from checker.readers.fab import jobfile
 from checker.readers.fab.assemble import load_package
 from checker.readers.fab.gerber import load_gerber
-from test_gerber import assert_same_copper, copper_by_net
-from test_gerber_fixture_oracle import oracle_copper_by_net
 
 ROOT = Path(__file__).resolve().parents[1]
 TEN = ROOT / "fixtures" / "fab" / "wild-ten-layer"
@@ -137,7 +137,8 @@ def test_x2_package_with_inch_holes_off_their_pads_keeps_every_via_net(tmp_path)
         drill.write_text(inch_drill(drill.read_text(), keep_attributes=True))
     exact, moved = load_package([str(six)]), load_package([str(folder)])
     key = lambda b: sorted((round(x, 2), round(y, 2), int(f), int(t), b.nets[n].name if n >= 0 else None)  # noqa: E731
-                           for x, y, f, t, n in zip(b.vias.x, b.vias.y, b.vias.first_layer, b.vias.last_layer, b.vias.net))
+                           for x, y, f, t, n in zip(b.vias.x, b.vias.y, b.vias.first_layer, b.vias.last_layer,
+                                                    b.vias.net))
     assert key(moved) == key(exact) and len(key(exact)) == 29
     off = np.hypot(np.sort(moved.vias.x) - np.sort(exact.vias.x), np.sort(moved.vias.y) - np.sort(exact.vias.y))
     assert off.max() > 0.5e-3  # the holes did move off their pads
@@ -243,6 +244,7 @@ def test_outline_snap_joins_loose_ends_only_and_keeps_short_arc_steps():
     # true shape; the chords lose only ~1e-8 mm^2. Chaining the 4 um steps
     # together would collapse the corners (the bug this guards against).
     import math
+
     from checker.readers.fab.assemble import OUTLINE_SNAP_MM, _snap_points
     pts = []
     for cx, cy, a0 in ((49, 1, -math.pi / 2), (49, 29, 0.0), (1, 29, math.pi / 2), (1, 1, math.pi)):
@@ -270,7 +272,8 @@ def test_an_inferred_drill_format_is_checked_against_the_pads(tmp_path):
     hits = "\n".join(f"X{round(x * 1e4):08d}Y{round(y * 1e4):08d}" for x, y in zip(board.vias.x, board.vias.y))
     (folder / "ten-layer-wild.drl").write_text(f"M48\nMETRIC\nT1C0.300\n%\nT1\n{hits}\nM30\n")
     read = load_package([str(folder)], stackup=str(TEN_STACKUP))
-    mine = sorted((round(x, 4), round(y, 4), read.nets[n].name) for x, y, n in zip(read.vias.x, read.vias.y, read.vias.net))
+    mine = sorted((round(x, 4), round(y, 4), read.nets[n].name)
+                  for x, y, n in zip(read.vias.x, read.vias.y, read.vias.net))
     theirs = sorted((round(x, 4), round(y, 4), board.nets[n].name)
                     for x, y, n in zip(board.vias.x, board.vias.y, board.vias.net))
     assert mine == theirs

@@ -53,6 +53,8 @@ from write_fab import (  # noqa: E402
     cutin_contour,
     find_grids,
     rounding_mm,
+)
+from write_fab import (  # noqa: E402
     write_fab as write_package,
 )
 

@@ -15,8 +15,15 @@ from __future__ import annotations
 
 from types import ModuleType
 
-from . import (capacitance_budget, crossing_angle, guard_grounding, noise_budget, parallel_length, reference_gap,
-               spacing_ratio)
+from . import (
+               capacitance_budget,
+               crossing_angle,
+               guard_grounding,
+               noise_budget,
+               parallel_length,
+               reference_gap,
+               spacing_ratio,
+)
 
 REGISTRY: dict[str, ModuleType] = {
     module.KIND: module

@@ -44,7 +44,8 @@ def iter_runs(ctx, rows: np.ndarray, aggressor: np.ndarray) -> Iterator[Run]:
         yield Run(r, agg, victim)
 
 
-def run_place(ctx, rows: np.ndarray, worst: int) -> tuple[tuple[float, float, float, float], tuple[float, float], tuple[str, ...]]:
+def run_place(ctx, rows: np.ndarray,
+              worst: int) -> tuple[tuple[float, float, float, float], tuple[float, float], tuple[str, ...]]:
     """bbox of the coupled stretches of ``rows`` (mm), the spot of row
     ``worst``, and the names of the layers involved (stackup order)."""
     c = ctx.couplings

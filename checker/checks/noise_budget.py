@@ -69,8 +69,8 @@ OPTIONS = {
 
 def check(rule, ctx):
     """Yield a finding per victim whose summed coupled noise exceeds ``max_noise``."""
-    from .common import make_finding, path_text, run_place
     from ..longruns import long_run_crosstalk
+    from .common import make_finding, path_text, run_place
     from .whatif import SPACING_ANSWERS, extra_spacing_mm, shorten_text
 
     np_ = ctx.net_pairs
@@ -158,7 +158,8 @@ def check(rule, ctx):
                      else "the larger counts")
             how += "; electrically long: " + ", ".join(
                 f"{ctx.net_name(int(aggressors[i]))} over {r.crosstalk.coupled_length_m * 1e3:.1f} mm on "
-                f"{'/'.join(r.layers)} {terminated[i] * 1e3:.3g} mV with the victim's terminations (other runs lumped; matched "
+                f"{'/'.join(r.layers)} {terminated[i] * 1e3:.3g} mV with the victim's terminations "
+                f"(other runs lumped; matched "
                 f"ends would give NEXT {r.crosstalk.next_v * 1e3:.3g} mV, FEXT {r.crosstalk.fext_v * 1e3:.3g} mV), "
                 f"lumped {lumped[i] * 1e3:.3g} mV"
                 for i, r in long_here) + f" ({which})"

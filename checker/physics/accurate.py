@@ -24,7 +24,6 @@ pair at most; the grid used is kept in ``grid_mm`` for the report.
 
 from __future__ import annotations
 
-
 import numpy as np
 
 from ..cores import SOLVE_THREADS, ordered_map

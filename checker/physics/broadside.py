@@ -626,7 +626,8 @@ class BroadsideModel:
         """C12' in F/m for widths ``wa`` (upper), ``wb`` (lower) and lateral
         centre-to-centre ``offset``, all mm, broadcast together. The sign of
         the offset does not matter (mirror symmetry)."""
-        wa, wb, off = np.broadcast_arrays(np.asarray(wa, float), np.asarray(wb, float), np.abs(np.asarray(offset, float)))
+        wa, wb, off = np.broadcast_arrays(np.asarray(wa, float), np.asarray(wb, float),
+                                          np.abs(np.asarray(offset, float)))
         shape = off.shape
         wa, wb, off = wa.ravel(), wb.ravel(), off.ravel()
         return blend_width_knots(self.widths_a_knots, self.widths_b_knots, wa, wb,
@@ -647,7 +648,8 @@ class BroadsideModel:
         layers that are not neighbours; counted at ``edge.RISE_MARGIN``."""
         from .edge import RISE_MARGIN
 
-        wa, wb, off = np.broadcast_arrays(np.asarray(wa, float), np.asarray(wb, float), np.abs(np.asarray(offset, float)))
+        wa, wb, off = np.broadcast_arrays(np.asarray(wa, float), np.asarray(wb, float),
+                                          np.abs(np.asarray(offset, float)))
         shape = off.shape
         wa, wb, off = wa.ravel(), wb.ravel(), off.ravel()
         rise = self.rise_a if upper_side else self.rise_b

@@ -184,8 +184,7 @@ from scipy.interpolate import PchipInterpolator
 
 from ..model import Stackup
 from ..stackup import effective_er, separation_mm
-from .broadside import (_grounds, _layer_bands, blend_width_knots, mask_blocks, solve_shared, surroundings,
-                        width_knots)
+from .broadside import _grounds, _layer_bands, blend_width_knots, mask_blocks, solve_shared, surroundings, width_knots
 from .fieldsolve import Conductor, CrossSection
 
 #: Solver resolution of the tables; each value is the Richardson extrapolation

@@ -577,7 +577,8 @@ def _circle_clearances(
     if enclosure is not None:
         gaps = [enclosure.r - math.hypot(o.cx - enclosure.cx, o.cy - enclosure.cy) - o.r for o in circles]
         gaps += [
-            enclosure.r - max(math.hypot(x - enclosure.cx, y - enclosure.cy) for x in (o.x0, o.x1) for y in (o.y0, o.y1))
+            enclosure.r - max(math.hypot(x - enclosure.cx, y - enclosure.cy)
+                              for x in (o.x0, o.x1) for y in (o.y0, o.y1))
             for o in cs.conductors
             if isinstance(o, Conductor)
         ]
@@ -754,7 +755,8 @@ def _build(cs: CrossSection, resolution: float) -> _Grid:
             if c.net != GROUND:
                 clash = label[inside & (label != _FREE) & (label != c.net)]
                 if clash.size:
-                    what = "ground (a plane, the box or a ground conductor)" if clash[0] == GROUND else f"net {clash[0]}"
+                    what = ("ground (a plane, the box or a ground conductor)" if clash[0] == GROUND
+                            else f"net {clash[0]}")
                     raise SolveError(f"signal conductor {c} touches {what}")
             label[inside] = c.net
             continue
@@ -865,6 +867,7 @@ def _cut_edges(grid: _Grid, circles: list[Circle], enclosure: Circle | None) -> 
         cut.append(e)
         # walk the free stretches between solids
         left_end, left_t, reach = na, 0.0, -1.0
+        left_net = None
         if lab[na] != _FREE:
             left_end = None
         for t0, t1, net in solids:

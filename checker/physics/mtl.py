@@ -27,6 +27,7 @@ victim.
 from __future__ import annotations
 
 import numpy as np
+
 from .tline import LineMatrices
 
 

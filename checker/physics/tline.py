@@ -357,7 +357,8 @@ class Crosstalk:
             raise ValueError(f"model must be 'lumped' or 'transmission-line', got {self.model!r}")
 
 
-def transmission_line_crosstalk(m: LineMatrices, coupled_length_m: float, rise_time_s: float, swing_v: float) -> Crosstalk:
+def transmission_line_crosstalk(m: LineMatrices, coupled_length_m: float, rise_time_s: float,
+                                swing_v: float) -> Crosstalk:
     """Near- and far-end noise of a coupled run, weak coupling, matched ends.
 
     ``NEXT = Kb V1 min(1, len / Lsat)`` and ``FEXT = |kf| len / tr V1``

@@ -62,7 +62,6 @@ from ..bounds import (
 )
 from ..errors import BoardError
 from ..model import (
-    ARC_CHORD_TOLERANCE_MM,
     NO_NET,
     Board,
     CopperLayer,
@@ -235,7 +234,8 @@ _LONG_NUMBER = b"0" * 300
 
 def _no_repeated_keys(body: bytes, data: dict, keys: int) -> bool:
     """Whether no object of the schema-valid ``data`` (``keys`` keys at the
-    top level and in the tracks) repeated a key in ``body``, its text. Without an escaped quote in the text, every ``":``
+    top level and in the tracks) repeated a key in ``body``, its text.
+    Without an escaped quote in the text, every ``":``
     in it ends a key (a quote inside a string is always escaped) and, when
     no key has white space before its colon, every key ends so: the count
     of ``":`` is then the number of keys written, and equals the number of
@@ -575,7 +575,8 @@ def _check_header(data: dict, file: str) -> None:
     version = data.get("version")
     if isinstance(version, bool) or version != VERSION:
         got = "missing" if "version" not in data else f"got {describe_json_value(version)}"
-        raise BoardError(file, "version", f"must be {VERSION} ({got}; this couplint reads board format version {VERSION})")
+        raise BoardError(file, "version",
+                         f"must be {VERSION} ({got}; this couplint reads board format version {VERSION})")
 
 
 class _Later:
@@ -821,7 +822,8 @@ class _Builder:
     def lookup_names(self, kind: str, names: list, key: str, table: dict, find: Callable) -> np.ndarray:
         """The index of ``names[i]`` (item i's ``key``) in ``table`` for every
         i, as an array; on an unknown name, ``find``'s message for the first."""
-        out = np.fromiter(map(table.get, names, itertools.repeat(-9)), dtype=np.int64, count=len(names)).astype(np.int32)
+        out = np.fromiter(map(table.get, names, itertools.repeat(-9)), dtype=np.int64,
+                          count=len(names)).astype(np.int32)
         bad = np.flatnonzero(out == -9)
         if len(bad):
             i = int(bad[0])
@@ -948,7 +950,8 @@ class _Builder:
             xy[0], xy[-1] = p[0], p[2]  # exactly the file's end points
         n = len(xy) - 1
         self.columns.append([xy[:-1, 0], xy[:-1, 1], xy[1:, 0], xy[1:, 1],
-                             np.full(n, self.length(here + ("width",), a["width"], TRACE_WIDTH)), np.full(n, net), np.full(n, layer),
+                             np.full(n, self.length(here + ("width",), a["width"], TRACE_WIDTH)), np.full(n, net),
+                             np.full(n, layer),
                              np.full(n, len(self.sources)), np.arange(n)])
         self.sources.append(f"arcs[{i}]")
 

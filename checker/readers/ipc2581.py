@@ -231,7 +231,6 @@ from .fab.layer import (
 )
 from .fab.source import read_path
 
-
 #: Most trace points (ends of pieces) over all copper layers.
 MAX_TRACE_POINTS = 20_000_000
 
@@ -775,7 +774,8 @@ class _Reader:
         notes += [f"{self.name}: {what} ({count})" for what, count in self.readings.items()]
         if self.widened:
             notes.append(f"{self.name}: {self.widened} round-ended line(s) narrower than {MIN_TRACE_MM * 1000:g} um "
-                         f"read {MIN_TRACE_MM * 1000:g} um wide (the analysis' width resolution; more copper, not less)")
+                         f"read {MIN_TRACE_MM * 1000:g} um wide "
+                         f"(the analysis' width resolution; more copper, not less)")
         job_notes = tuple(f"{self.name}: {what} not given for {', '.join(where)}: {value} used ({ASSUMED_WORDS})"
                           for (what, value), where in self.assumed.items())
         job = JobStackup(path=self.name, stackup=stackup, copper_numbers=tuple(range(1, n + 1)),

@@ -9,9 +9,9 @@ from __future__ import annotations
 
 import argparse
 import io
+import json
 import re
 import secrets
-import json
 from typing import Iterator, TextIO
 
 import numpy as np

@@ -42,10 +42,10 @@ from xml.sax.saxutils import escape, quoteattr
 import numpy as np
 import shapely
 
-from .visible import xml_visible
 from ..checks import REGISTRY
 from ..findings import Finding
 from ..model import Board
+from .visible import xml_visible
 
 #: The Okabe-Ito palette (name -> sRGB hex), in the order of its publication.
 OKABE_ITO: dict[str, str] = {
@@ -556,7 +556,8 @@ def _context(analysis, shown: list[Finding], frame: _Frame) -> tuple[list[str], 
         mine = np.flatnonzero(p.source == g.source[k])
         d = "".join(f"M{a} {b}L{e} {h}" for a, b, e, h in zip(_fs(p.x1[mine]), _fs(p.y1[mine]), _fs(p.x2[mine]),
                                                                _fs(p.y2[mine]), strict=True))
-        dash = "" if g.state[k] == "stitched" else f' stroke-dasharray="{_f(frame.unit * 0.15)} {_f(frame.unit * 0.25)}"'
+        dash = ("" if g.state[k] == "stitched"
+                else f' stroke-dasharray="{_f(frame.unit * 0.15)} {_f(frame.unit * 0.25)}"')
         what = f"guard ({board.nets[int(g.net[k])].name}): {g.state[k]}, longest free stretch {g.max_gap_mm[k]:.3g} mm"
         out.append(f'<path d="{d}" {_context_style("guard", frame)}{dash} stroke-linecap="round" data-role="guard">'
                    f'<title>{_text(what)}</title></path>')
@@ -567,7 +568,8 @@ def _context(analysis, shown: list[Finding], frame: _Frame) -> tuple[list[str], 
             on = (v.net == g.net[k]) & (shapely.distance(line, shapely.points(v.x, v.y))
                                          <= p.width[mine].max() / 2 + v.pad / 2)
             for i in np.flatnonzero(on).tolist():
-                stitches.append(f'<circle cx="{_f(v.x[i])}" cy="{_f(v.y[i])}" r="{_f(max(v.pad[i] / 2, frame.unit * 0.2))}" '
+                stitches.append(f'<circle cx="{_f(v.x[i])}" cy="{_f(v.y[i])}" '
+                                f'r="{_f(max(v.pad[i] / 2, frame.unit * 0.2))}" '
                                 f'{_context_style("stitch", frame)} data-role="stitch"/>')
     if guards:
         kinds.append("guard")

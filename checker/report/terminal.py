@@ -9,8 +9,8 @@ from rich.table import Table
 
 from ..runner import Result
 from . import CAUTION
-from .visible import visible
 from .json_report import summary
+from .visible import visible
 
 SEVERITY_STYLE = {"error": "bold red", "warning": "yellow"}
 STATUS_STYLE = {"new": "bold", "unchanged": "dim"}
@@ -134,7 +134,8 @@ def _render_victims(result: Result, console: Console) -> None:
             mark = "ok  " if v.passes else "FAIL"
             more = f" and {v.aggressors - 1} more" if v.aggressors > 1 else ""
             raw = f"; {v.unfiltered_mv:.3g} mV unfiltered" if v.unfiltered_mv >= 0 else ""
-            console.print(visible(f"  {mark} {v.victim}: {v.noise_mv:.3g} mV ({v.model}; from {v.worst_aggressor}{more}{raw})"),
+            console.print(visible(f"  {mark} {v.victim}: {v.noise_mv:.3g} mV "
+                                  f"({v.model}; from {v.worst_aggressor}{more}{raw})"),
                           highlight=False, markup=False)
         if len(mine) > VICTIM_ROWS:
             console.print(f"  ... {len(mine) - VICTIM_ROWS} more victims in the JSON report (victim_noise)",
@@ -154,10 +155,12 @@ def _render_review(result: Result, console: Console) -> None:
         for w in review.expired:
             n = len(review.covers.get(w, []))
             would = f"would cover {n} finding{'s' if n != 1 else ''}" if n else "matches no finding either"
-            console.print(f"  [yellow]expired[/] {escape(visible(w.source))}: {escape(visible(w.describe()))}, expired {w.expires} "
+            console.print(f"  [yellow]expired[/] {escape(visible(w.source))}: {escape(visible(w.describe()))}, "
+                          f"expired {w.expires} "
                           f"({would}; not applied)", highlight=False)
         for w in review.unused:
-            console.print(f"  [yellow]unused[/]  {escape(visible(w.source))}: {escape(visible(w.describe()))} matches no finding "
+            console.print(f"  [yellow]unused[/]  {escape(visible(w.source))}: {escape(visible(w.describe()))} "
+                          f"matches no finding "
                           f"(fixed, or a wrong id or pattern?)", highlight=False)
     if review.baseline is not None and review.fixed:
         console.print(visible(f"fixed since the baseline {review.baseline}:"), highlight=False, markup=False)

@@ -52,9 +52,9 @@ from ...errors import FabError, UsageError
 from ...model import NO_NET, Board, Net, Pieces, Region, Stackup, Vias
 from .excellon import read_excellon
 from .gerber import read_gerber
+from .identify import number_copper
 from .ipc356 import read_ipc356
 from .jobfile import read_job
-from .identify import number_copper
 from .layer import NET_UNKNOWN, DrillFile, GerberLayer, JobStackup, Netlist
 from .package import Member, Sorted, collect, parse_layer_override
 from .stackup_yaml import load_stackup_yaml
@@ -128,7 +128,8 @@ def _from_ipc2581(found: Sorted, stackup: str | None, netlist: str | None, layer
         [m.name for m, _ in found.guessed] + [s.split(" (")[0] for s in found.skipped]
     notes = list(board.notes)
     if others:
-        notes.append(f"the board is read from the IPC-2581 file {first.name}; not read: {', '.join(sorted(set(others)))}")
+        notes.append(f"the board is read from the IPC-2581 file {first.name}; "
+                     f"not read: {', '.join(sorted(set(others)))}")
     return dataclasses.replace(board, name=found.name if len(found.read_as) > 1 else board.name,
                                notes=tuple(notes), files=((first.name, "IPC-2581 board", "content"),))
 
@@ -546,7 +547,7 @@ class _Builder:
         label_net = np.concatenate([np.concatenate([piece_nets[i], shape_nets[i]]) for i in range(len(self.layers))]
                                    + [np.full(len(holes["x"]), _UNKNOWN, dtype=np.int64)])
         names = self._component_names(label, label_net, offsets, hole0, holes, geoms_of)
-        for i, layer in enumerate(self.layers):
+        for i, _layer in enumerate(self.layers):
             p0, s0 = offsets[i]
             for arr, start in ((piece_nets[i], p0), (shape_nets[i], s0)):
                 unknown = np.flatnonzero(arr == _UNKNOWN)
@@ -707,7 +708,7 @@ class _Builder:
         nets = np.full(n, NO_NET, dtype=np.int64)
         if not n:
             return nets
-        for i, layer in enumerate(self.layers):  # a pad at the hole decides
+        for i, _layer in enumerate(self.layers):  # a pad at the hole decides
             at = self.pad_hole[i]
             k = np.flatnonzero(at >= 0)
             known = shape_nets[i][k] >= 0

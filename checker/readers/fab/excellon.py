@@ -159,7 +159,6 @@ from ...errors import FabError
 from .layer import DrillFile
 from .source import read_lines, read_path
 
-
 #: A coordinate or diameter beyond 10 m is taken as a units mistake.
 MAX_COORDINATE_MM = 10_000.0
 
@@ -213,7 +212,8 @@ _VAGUE_ZEROS = re.compile(r"\b(leading|trailing)\b", re.IGNORECASE)
 # looks_like_drill: the lines of a body, as the reader accepts them
 _LIKE_NUM = r"[+-]?[0-9]*\.?[0-9]*"
 _LIKE_TOOL = re.compile(rf"T[0-9]{{1,6}}(?:[A-Z]{_LIKE_NUM})*")
-_LIKE_HIT = re.compile(rf"(?:G0[0-3])?(?=[XY])(?:X{_LIKE_NUM})?(?:Y{_LIKE_NUM})?(?:G85(?:X{_LIKE_NUM})?(?:Y{_LIKE_NUM})?)?")
+_LIKE_HIT = re.compile(rf"(?:G0[0-3])?(?=[XY])(?:X{_LIKE_NUM})?(?:Y{_LIKE_NUM})?"
+                       rf"(?:G85(?:X{_LIKE_NUM})?(?:Y{_LIKE_NUM})?)?")
 _LIKE_REPEAT = re.compile(rf"R[0-9]{{1,9}}(?:X{_LIKE_NUM})?(?:Y{_LIKE_NUM})?")
 _LIKE_UNITS = re.compile(r"(?:METRIC|INCH)(?:,[A-Z0-9.]*)*")
 _LIKE_WORDS = {"%", "M71", "M72", "G90", "G05", "G00", "G01", "M15", "M16", "M17"}

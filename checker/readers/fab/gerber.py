@@ -97,8 +97,17 @@ from shapely.errors import GEOSException
 from ... import limits
 from ...errors import FabError
 from ..board_json import MAX_COORDINATE_MM
-from .gerber_apertures import (EMPTY, ApertureError, apply_matrix, disc, is_identity, stadium, standard_aperture,
-                               swept_outline, transform_matrix)
+from .gerber_apertures import (
+    EMPTY,
+    ApertureError,
+    apply_matrix,
+    disc,
+    is_identity,
+    stadium,
+    standard_aperture,
+    swept_outline,
+    transform_matrix,
+)
 from .gerber_arcs import ArcError, arc_circle, arc_points
 from .gerber_attributes import AttributeSyntaxError, attribute_in_comment, parse_attribute
 from .gerber_commands import CommandSplitter, SplitError, show_command
@@ -755,7 +764,8 @@ class _GerberReader:
                                     self._refresh()
                                     if self.version == version:
                                         continue
-                                    self.cx, self.cy, self.stroke_open, self.last_operation = cx, cy, stroke_open, last_op
+                                    self.cx, self.cy, self.stroke_open, self.last_operation = (
+                                        cx, cy, stroke_open, last_op)
                                     self.interpolation = mode
                                     break  # the fast-path state changed: reload it all
                 else:
@@ -1511,7 +1521,8 @@ class _GerberReader:
         if (st.parent.point_count() + copies * body.point_count() > self.max_points
                 or len(st.parent.shapes) + copies * (len(body.shapes) + len(body.clears)) > self.max_shapes):
             raise self.error(st.line, f"the step and repeat opened here makes {copies} copies: more objects "
-                             f"than the caps allow (--limit draws=N and --limit shapes=N raise them if the input is genuine)")
+                             f"than the caps allow (--limit draws=N and --limit shapes=N raise them "
+                             f"if the input is genuine)")
         # copies go first along Y, then along X (4.12)
         for ix in range(nx):
             for iy in range(ny):

@@ -66,7 +66,6 @@ from ...errors import FabError
 from .layer import Netlist, NetPoint
 from .source import read_lines, read_path
 
-
 #: A coordinate farther than this (10 m) is taken as a units mistake.
 MAX_COORDINATE_MM = 10_000.0
 

@@ -93,7 +93,6 @@ from ..board_json import describe_json_value, format_path
 from .layer import JobStackup
 from .source import read_path, read_text
 
-
 #: A length over 10 m is taken as a units mistake.
 MAX_LENGTH_MM = 10_000.0
 
@@ -318,7 +317,8 @@ class _Job:
         if "LayerNumber" in specs:
             value = specs["LayerNumber"]
             if isinstance(value, bool) or not isinstance(value, int) or not 1 <= value <= 1000:
-                self.fail(here + ("LayerNumber",), f"must be a whole number 1 to 1000, got {describe_json_value(value)}")
+                self.fail(here + ("LayerNumber",),
+                          f"must be a whole number 1 to 1000, got {describe_json_value(value)}")
             layers = value
         thickness = self.length(here + ("BoardThickness",), specs["BoardThickness"]) if "BoardThickness" in specs \
             else None
