@@ -107,8 +107,23 @@ def flip_of(root) -> tuple[ET.Element, float]:
 
 
 def path_points(d: str) -> list[tuple[float, float]]:
-    nums = [float(v) for v in re.findall(r"-?\d+(?:\.\d+)?", d)]
-    return list(zip(nums[0::2], nums[1::2], strict=True))
+    """The points of SVG path data made of M, L, l (relative: steps from the
+    point before, repeated pairs continuing the command) and Z, as absolute
+    coordinates (SVG 1.1, 8.3 path data)."""
+    tokens = re.findall(r"[MLlZz]|-?\d+(?:\.\d+)?", d)
+    points: list[tuple[float, float]] = []
+    command, i = None, 0
+    while i < len(tokens):
+        if tokens[i] in "MLlZz":
+            command = tokens[i]
+            i += 1
+            continue
+        x, y = float(tokens[i]), float(tokens[i + 1])
+        i += 2
+        if command == "l":
+            x, y = points[-1][0] + x, points[-1][1] + y
+        points.append((round(x, 9), round(y, 9)))
+    return points
 
 
 # --- structure -------------------------------------------------------------
@@ -566,3 +581,32 @@ def test_palette_is_okabe_ito():
     assert svg.OKABE_ITO == {
         "black": "#000000", "orange": "#E69F00", "sky blue": "#56B4E9", "bluish green": "#009E73",
         "yellow": "#F0E442", "blue": "#0072B2", "vermillion": "#D55E00", "reddish purple": "#CC79A7"}
+
+
+def test_pours_are_drawn_to_a_quarter_pixel_with_far_fewer_corners(tmp_path):
+    # a pour with a finely sampled round hole (2 000 corners): drawn over the whole board at 960 px, its
+    # outline keeps only the corners that matter at that scale, and every corner drawn lies within a
+    # quarter pixel of the true outline (Douglas-Peucker's bound; the distances measured with shapely)
+    import math
+
+    import shapely
+
+    n = 2000
+    hole = [[20 + 5 * math.cos(2 * math.pi * k / n), 20 + 5 * math.sin(2 * math.pi * k / n)] for k in range(n)]
+    outline = [[0, 0], [40, 0], [40, 40], [0, 40]]
+    b = make_board([track("TOP", "CLK", [[1, 1], [39, 1]])],
+                   regions=[{"layer": "IN1", "net": "GND", "outline": outline, "holes": [hole]}],
+                   nets=["CLK", "GND"], outline=outline)
+    root = parse(render_svg(check_board(b, spacing_rules(tmp_path)), layers=("IN1",), width_px=960))
+    (g,) = [g for g in root.iter(NS + "g") if g.get("data-role") == "regions"]
+    d = g.find(NS + "path").get("d")
+    rings = [path_points(part) for part in re.findall(r"M[^M]*", d)]
+    assert len(rings) == 2
+    drawn_hole = rings[1]
+    assert 8 <= len(drawn_hole) < 200  # was 2 000 corners
+    _, _, width_mm, _ = viewbox(root)
+    quarter_px = 0.25 * width_mm / 960
+    drawn_ring = shapely.LinearRing(drawn_hole)
+    worst = max(drawn_ring.distance(shapely.Point(p)) for p in hole)  # every true corner near the drawn outline
+    assert worst <= quarter_px + 1e-3  # + the 1 um rounding of the coordinates written
+    assert worst > 0.2 * quarter_px  # the tolerance was used, not a far finer one

@@ -87,6 +87,9 @@ HALO = 0.25
 
 #: Copper is never drawn thinner than this many output pixels.
 MIN_COPPER_PX = 0.8
+#: Pours and planes are drawn to within this many output pixels of their
+#: outline (Douglas-Peucker): a quarter pixel is invisible.
+REGION_TOLERANCE_PX = 0.25
 
 _FONT = "DejaVu Sans, Verdana, Arial, sans-serif"
 
@@ -363,6 +366,10 @@ def _regions(board: Board, drawn: list[int], frame: _Frame) -> list[str]:
     out: list[str] = []
     box = shapely.box(frame.vx0, frame.vy0, frame.vx1, frame.vy1)
     min_w = MIN_COPPER_PX * frame.px()
+    # a pour's outline to a quarter of a pixel: the same picture, without the thousands of vertices of
+    # antipads and thermal reliefs no screen or print shows (the whole-board overview of a six-layer
+    # export: 10.9 MB of pours before)
+    tolerance = REGION_TOLERANCE_PX * frame.px()
     for k in reversed(drawn):
         layer = board.stackup.layers[k]
         colour = LAYER_COLOURS[k % len(LAYER_COLOURS)]
@@ -376,7 +383,7 @@ def _regions(board: Board, drawn: list[int], frame: _Frame) -> list[str]:
                 shape = shapely.clip_by_rect(shape, frame.vx0, frame.vy0, frame.vx1, frame.vy1)
             elif not shape.intersects(box):
                 continue
-            d = _polygon_path(shape)
+            d = _polygon_path(shapely.simplify(shape, tolerance, preserve_topology=False))
             if d:
                 paths.append(f'<path d="{d}" fill="{colour}" fill-opacity="{opacity}" fill-rule="evenodd" '
                              f'stroke="{colour}" stroke-opacity="{min(1.0, opacity * 3):.2f}" '
@@ -409,8 +416,11 @@ def _traces(board: Board, drawn: list[int], frame: _Frame) -> list[str]:
         q = np.rint(p.width[on] * 1000).astype(np.int64)
         for wq in np.unique(q).tolist():
             sel = on[q == wq]
-            x1, y1, x2, y2 = _fs(p.x1[sel]), _fs(p.y1[sel]), _fs(p.x2[sel]), _fs(p.y2[sel])
-            d = "".join(f"M{a} {b}L{c} {e}" for a, b, c, e in zip(x1, y1, x2, y2, strict=True))
+            # each piece: its start, then the step to its end (whole um: exact, and shorter)
+            q1x, q1y = np.rint(p.x1[sel] * 1000), np.rint(p.y1[sel] * 1000)
+            x1, y1 = _fs(q1x / 1000), _fs(q1y / 1000)
+            dx, dy = _fs((np.rint(p.x2[sel] * 1000) - q1x) / 1000), _fs((np.rint(p.y2[sel] * 1000) - q1y) / 1000)
+            d = "".join(f"M{a} {b}l{c} {e}" for a, b, c, e in zip(x1, y1, dx, dy, strict=True))
             out.append(f'<path d="{d}" fill="none" stroke="{colour}" stroke-opacity="{COPPER_OPACITY}" '
                        f'stroke-width="{_f(max(wq / 1000, min_w))}" stroke-linecap="round" '
                        f'stroke-linejoin="round"/>')
@@ -419,13 +429,19 @@ def _traces(board: Board, drawn: list[int], frame: _Frame) -> list[str]:
 
 
 def _ring(coords) -> str:
+    """A closed subpath: the first corner absolute, the others as steps
+    from the one before (``l``), all in whole um, so the steps add up
+    exactly to the corners :func:`_fs` would write, in fewer characters."""
     xy = np.asarray(coords, dtype=np.float64)
     if xy.shape[0] < 3:
         return ""
     if np.array_equal(xy[0], xy[-1]):
         xy = xy[:-1]
-    xs, ys = _fs(xy[:, 0]), _fs(xy[:, 1])
-    return "M" + "L".join(f"{a} {b}" for a, b in zip(xs, ys, strict=True)) + "Z"
+    q = np.rint(xy * 1000)  # whole um
+    step = np.diff(q, axis=0)
+    head = _fs(q[0] / 1000)
+    dx, dy = _fs(step[:, 0] / 1000), _fs(step[:, 1] / 1000)
+    return f"M{head[0]} {head[1]}l" + " ".join(f"{a} {b}" for a, b in zip(dx, dy, strict=True)) + "Z"
 
 
 def _polygon_path(shape) -> str:
