@@ -26,6 +26,7 @@ from .atomic import (
     write_atomically,
 )
 from .errors import CouplintError, UsageError, bounded
+from .report import html as html_report
 from .report import json_report
 from .report.visible import visible
 from .review import DEFAULT_WAIVER_FILE, FAIL_ON, TODAY_ENV
@@ -58,6 +59,18 @@ def cores_option(p: argparse.ArgumentParser, each: str = "a check") -> None:
     p.add_argument("--cores", metavar="N", type=_cores_arg, default=None,
                    help=f"processor cores {each} may use (default: ${cores.CORES_ENV}, else all this process may "
                         f"run on, at most {cores.MAX_CORES}); the report is the same for any N")
+
+
+def _cards_arg(text: str) -> int | None:
+    if text.strip().lower() == "all":
+        return None
+    try:
+        n = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"a whole number or 'all', got {text[:40]!r}") from None
+    if n < 0:
+        raise argparse.ArgumentTypeError(f"at least 0, got {n}")
+    return n
 
 
 def _cores_arg(text: str) -> int:
@@ -98,6 +111,10 @@ def _parser() -> argparse.ArgumentParser:
         p.add_argument("--svg-dir", metavar="DIR",
                        help="also write one overlay per layer group with findings into DIR (created if missing)")
         p.add_argument("--html", metavar="FILE", help="also write the self-contained HTML sign-off report")
+        p.add_argument("--cards", metavar="N|all", type=_cards_arg, default=html_report.DEFAULT_CARDS,
+                       help=f"findings, worst first, that get a card with a close-up in the HTML report "
+                            f"(default {html_report.DEFAULT_CARDS}; every finding is in its index table either "
+                            "way), or 'all'")
         p.add_argument("--junit", metavar="FILE", help="also write JUnit XML (one test case per rule)")
         p.add_argument("--what-if", action="store_true",
                        help="for budget findings, also work out the extra spacing that would meet the budget "
@@ -350,7 +367,7 @@ def _write_deliverables(result, args: argparse.Namespace, inputs: list[str]) -> 
         for group, text in svg.svg_per_layer_group(result).items():
             write_atomically(folder / f"{group}.svg", lambda handle, text=text: handle.write(text))
     if args.html:
-        page = html.render_html(result, inputs=inputs)
+        page = html.render_html(result, inputs=inputs, cards=getattr(args, "cards", html.DEFAULT_CARDS))
         write_atomically(args.html, lambda handle: handle.write(page))
     if args.junit:
         xml = junit.junit_for_result(result)

@@ -541,3 +541,20 @@ def test_browser_prints_a_pdf(demo_page, tmp_path):
     assert data.startswith(b"%PDF-") and b"%%EOF" in data[-1024:]
     pages = len(re.findall(rb"/Type\s*/Page(?![s\w])", data))
     assert pages >= 3, pages  # identity and summary, the overlay, ten finding cards
+
+
+def test_cards_for_the_worst_findings_and_every_finding_in_the_index(demo):
+    text = render_html(demo, inputs=[], generated=FIXED_DATE, cards=3)
+    findings = demo.findings
+    carded = re.findall(r'<article class="card[^"]*" id="f-([0-9a-f]{12})"', text)
+    assert carded == [f.id for f in findings[:3]]  # the worst three, in order
+    rows = re.findall(r'<tr id="i-([0-9a-f]{12})">', text)
+    assert rows == [f.id for f in findings]  # every finding has its row
+    for f in findings[3:]:  # no link to a card that is not there
+        assert f'href="#f-{f.id}"' not in text
+    for f in findings:  # the groupings link every finding's row, once per grouping
+        assert text.count(f'href="#i-{f.id}"') == 2
+    assert f"Cards with a close-up for the 3 worst findings (worst first); the other {len(findings) - 3} are" in text
+    everything = render_html(demo, inputs=[], generated=FIXED_DATE, cards=None)
+    assert len(re.findall(r'<article class="card', everything)) == len(findings)
+    assert "Cards with a close-up for the" not in everything

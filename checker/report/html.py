@@ -56,22 +56,31 @@ VERDICT_TITLE = {"pass": "PASS", "pass with waivers": "PASS WITH WAIVERS",
                  "pass with known findings": "PASS WITH KNOWN FINDINGS", "fail": "FAIL"}
 
 
+#: Findings, worst first, that get a card with a close-up by default (``--cards``).
+DEFAULT_CARDS = 200
+
+
 def _e(value: object) -> str:
     """Text (or an attribute value) made safe for HTML: control characters
     shown as backslash-x escapes (a page must not carry ESC, BEL or NUL), then escaped."""
     return html.escape(visible(str(value)), quote=True)
 
 
-def render_html(result: Result, *, inputs: list[str], generated: str | None = None) -> str:
+def render_html(result: Result, *, inputs: list[str], generated: str | None = None,
+                cards: int | None = DEFAULT_CARDS) -> str:
     """The sign-off report of ``result`` as one HTML document.
 
     ``inputs``: the files the run read (board, rule file, waiver file,
     baseline), listed with their size and SHA-256. ``generated``: the date
-    and time to print; by default :func:`generated_now`.
+    and time to print; by default :func:`generated_now`. ``cards``: how
+    many findings, worst first, get a card with a close-up (None: all);
+    every finding is in the index table, which is also shown grouped by
+    rule and by victim net.
     """
     when = generated if generated is not None else generated_now()
     numbers = finding_number(result)
     ctx = _Context(result, numbers, render_svg)
+    ctx.carded = {f.id for f in (result.findings if cards is None else result.findings[:cards])}
     board = result.analysis.board
     parts = [
         _head(board.name),
@@ -81,6 +90,7 @@ def render_html(result: Result, *, inputs: list[str], generated: str | None = No
         _identity(result, inputs, when),
         _rule_summary(result),
         _findings_index(ctx),
+        _grouped_index(ctx),
         _victims(result),
         _net_pairs(result),
         _overlay(ctx),
@@ -185,6 +195,8 @@ class _Context:
         self.failing = {f.id for f in result.failing()}
         self.waived = result.review.waived
         self.by_id = {f.id: f for f in result.findings}
+        #: the findings that get a card (render_html's ``cards``)
+        self.carded = set(self.by_id)
         self._svg_count = 0
 
     def number(self, finding_id: str) -> str:
@@ -443,13 +455,43 @@ def _findings_index(ctx: _Context) -> str:
         base = ctx.result.review.status.get(f.id)
         if base:
             words = f"{words}; {base}"
+        number = (f'<a href="#f-{_e(f.id)}">{_e(ctx.number(f.id))}</a>' if f.id in ctx.carded
+                  else f'{_e(ctx.number(f.id))} <span class="fine">{_e(f.id)}</span>')
         out.append(
-            f'<tr><td><a href="#f-{_e(f.id)}">{_e(ctx.number(f.id))}</a></td>'
+            f'<tr id="i-{_e(f.id)}"><td>{number}</td>'
             f'<td><span class="sev sev-{_e(f.severity)}">{_e(f.severity)}</span></td>'
             f"<td>{_e(f.rule)}</td><td>{_e(f.aggressor)} \u2192 {_e(f.victim)}</td>"
             f'<td>{_e("/".join(f.layers))}</td><td class="r">{_e(_quantity(f.value, f.unit))}</td>'
             f'<td class="r">{_e(_limit(f))}</td><td class="{css}">{_e(words)}</td></tr>\n')
     out.append("</tbody>\n</table>\n</section>\n")
+    return "".join(out)
+
+
+def _grouped_index(ctx: _Context) -> str:
+    """The index again, grouped by rule and by victim net: for each group,
+    its count, its worst finding and the numbers of all its findings (links
+    to their rows), worst first. Pre-sorted, so no script is needed."""
+    findings = ctx.result.findings
+    if not findings:
+        return ""
+    out = ['<section id="groups">\n<h2>Findings by rule and by victim net</h2>\n']
+    for title, key in (("By rule", lambda f: f.rule), ("By victim net", lambda f: f.victim)):
+        groups: dict[str, list] = {}
+        for f in findings:  # findings come worst first, so each group does too
+            groups.setdefault(key(f), []).append(f)
+        order = sorted(groups, key=lambda k: (-len(groups[k]), k))
+        out.append(f"<details><summary>{_e(title)} ({len(groups)})</summary>\n"
+                   '<table class="grid"><thead><tr><th>Group</th><th class="r">Findings</th>'
+                   "<th>Worst</th><th>All, worst first</th></tr></thead>\n<tbody>\n")
+        for name in order:
+            members = groups[name]
+            worst = members[0]
+            links = " ".join(f'<a href="#i-{_e(f.id)}">{_e(ctx.number(f.id))}</a>' for f in members)
+            out.append(f"<tr><td>{_e(name)}</td><td class=\"r\">{len(members)}</td>"
+                       f"<td>{_e(ctx.number(worst.id))} {_e(_quantity(worst.value, worst.unit))}</td>"
+                       f"<td>{links}</td></tr>\n")
+        out.append("</tbody></table>\n</details>\n")
+    out.append("</section>\n")
     return "".join(out)
 
 
@@ -590,7 +632,12 @@ def _cards(ctx: _Context) -> str:
     if not findings:
         out.append("<p>No findings.</p>\n</section>\n")
         return "".join(out)
-    for f in findings:
+    shown = [f for f in findings if f.id in ctx.carded]
+    if len(shown) < len(findings):
+        out.append(f'<p class="fine">Cards with a close-up for the {len(shown)} worst findings (worst first); '
+                   f'the other {len(findings) - len(shown)} are in the table <a href="#index">Findings at a '
+                   "glance</a> and its groupings (<code>--cards all</code> gives every finding a card).</p>\n")
+    for f in shown:
         out.append(_card(ctx, f))
     out.append("</section>\n")
     return "".join(out)
