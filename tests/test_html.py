@@ -26,7 +26,14 @@ from checker.errors import InputError, UsageError
 from checker.readers import load_board
 from checker.readers.board_json import read_board_dict
 from checker.report import json_report
-from checker.report.html import TOP_PAIRS, generated_now, picture_view, render_html, worst_net_pairs
+from checker.report.html import (
+    CLOSE_UP_MAX_MM,
+    TOP_PAIRS,
+    generated_now,
+    picture_view,
+    render_html,
+    worst_net_pairs,
+)
 from checker.review import Review, Waiver
 from checker.ruleset import default_ruleset, load_ruleset
 from checker.runner import check_board
@@ -307,9 +314,16 @@ def test_ids_are_unique_and_pictures_are_cropped_to_their_finding(demo):
         assert svg, f.id
         x, y, w, h = map(float, svg.group(1).split())
         vx0, vy0, vx1, vy1 = picture_view(f.bbox)
-        # the picture frames the grown box (y is flipped, so compare extents)
+        if max(vx1 - vx0, vy1 - vy0) > CLOSE_UP_MAX_MM:
+            # a finding wider than a close-up: a square of that size centred on its worst spot, said so
+            vx0, vy0 = f.at[0] - CLOSE_UP_MAX_MM / 2, f.at[1] - CLOSE_UP_MAX_MM / 2
+            vx1, vy1 = f.at[0] + CLOSE_UP_MAX_MM / 2, f.at[1] + CLOSE_UP_MAX_MM / 2
+            assert f"The worst spot, {CLOSE_UP_MAX_MM:g} mm across" in card
+        else:
+            assert vx0 <= f.bbox[0] - 2 and vx1 >= f.bbox[2] + 2
+            assert "The worst spot" not in card
+        # the picture frames the view (y is flipped, so compare extents)
         assert x <= vx0 + 1e-3 and x + w >= vx1 - 1e-3 and h >= vy1 - vy0 - 1e-3
-        assert vx0 <= f.bbox[0] - 2 and vx1 >= f.bbox[2] + 2
         # only this finding is called out in its own picture
         called = set(re.findall(r'id="p\d+-f-([0-9a-f]{12})"', card))
         assert called == {f.id}

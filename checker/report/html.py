@@ -58,6 +58,8 @@ VERDICT_TITLE = {"pass": "PASS", "pass with waivers": "PASS WITH WAIVERS",
 
 #: Findings, worst first, that get a card with a close-up by default (``--cards``).
 DEFAULT_CARDS = 200
+#: Widest close-up (mm): a finding larger than this is pictured at its worst spot.
+CLOSE_UP_MAX_MM = 20.0
 
 
 def _e(value: object) -> str:
@@ -672,7 +674,16 @@ def _card(ctx: _Context, f) -> str:
         waiver = ('<div class="waiver"><p class="wtitle">Waived</p><table class="kv compact">\n'
                   + "".join(f"<tr><th>{_e(k)}</th><td>{_e(v)}</td></tr>\n" for k, v in _waiver_rows(w))
                   + "</table></div>\n")
-    picture = ctx.svg(view=picture_view(f.bbox), only=f.id, width_px=480)
+    view = picture_view(f.bbox)
+    caption = ""
+    if max(view[2] - view[0], view[3] - view[1]) > CLOSE_UP_MAX_MM:
+        # a finding spread over much of the board (a net pair coupled in many places): the close-up
+        # frames its worst spot; the overview shows the rest
+        half = CLOSE_UP_MAX_MM / 2
+        view = (f.at[0] - half, f.at[1] - half, f.at[0] + half, f.at[1] + half)
+        caption = (f'<figcaption class="fine">The worst spot, {CLOSE_UP_MAX_MM:g} mm across; the finding '
+                   "extends beyond it (see Extent and the board overlay).</figcaption>")
+    picture = ctx.svg(view=view, only=f.id, width_px=480)
     return (
         f'<article class="card card-{css[3:]}" id="f-{_e(f.id)}" data-finding-id="{_e(f.id)}">\n'
         f'<header><span class="num">{_e(ctx.number(f.id))}</span> '
@@ -682,7 +693,7 @@ def _card(ctx: _Context, f) -> str:
         f'<p class="message">{_e(f.message)}</p>\n'
         '<div class="card-body">\n'
         f'<div class="facts"><table class="kv compact">\n{table}</table>\n{waiver}</div>\n'
-        f'<figure class="pic">{picture}</figure>\n'
+        f'<figure class="pic">{picture}{caption}</figure>\n'
         "</div>\n</article>\n"
     )
 

@@ -707,17 +707,27 @@ def _stretch(analysis, f: Finding, rows: np.ndarray, frame: _Frame, faint: bool,
     show_bbox = True
     if rows.size:
         xs, ys, ext = _row_quads(analysis, rows, HALO * frame.unit)
-        sx, sy = _fs(xs.ravel()), _fs(ys.ravel())
-        d = "".join(f"M{sx[i]} {sy[i]}L{sx[i + 1]} {sy[i + 1]}L{sx[i + 2]} {sy[i + 2]}L{sx[i + 3]} {sy[i + 3]}Z"
-                    for i in range(0, len(sx), 4))
-        parts.append(f'<path d="{d}" fill="{colour}" fill-opacity="{fill_alpha}" stroke="{colour}" '
-                     f'stroke-opacity="{alpha}" stroke-width="{_f(frame.stroke(0.8))}"{dash} '
-                     f'stroke-linejoin="round" data-role="stretch"/>')
+        # only the bands that meet the framed area: a close-up of one spot of a net pair coupled all over
+        # the board draws that spot's bands, not the board's (a card of a large board: 2.5 MB before)
+        xs, ys = np.asarray(xs).reshape(-1, 4), np.asarray(ys).reshape(-1, 4)
+        seen = ((xs.max(axis=1) >= frame.vx0) & (xs.min(axis=1) <= frame.vx1)
+                & (ys.max(axis=1) >= frame.vy0) & (ys.min(axis=1) <= frame.vy1))
+        xs, ys = xs[seen], ys[seen]
+        # each band: its first corner, then the steps to the other three (whole um, as in _ring)
+        qx, qy = np.rint(xs * 1000), np.rint(ys * 1000)
+        hx, hy = _fs(qx[:, 0] / 1000), _fs(qy[:, 0] / 1000)
+        steps = [(_fs((qx[:, k] - qx[:, k - 1]) / 1000), _fs((qy[:, k] - qy[:, k - 1]) / 1000)) for k in (1, 2, 3)]
+        (ax, ay), (bx, by), (cx, cy) = steps
+        d = "".join(f"M{hx[i]} {hy[i]}l{ax[i]} {ay[i]} {bx[i]} {by[i]} {cx[i]} {cy[i]}Z" for i in range(len(hx)))
+        if d:
+            parts.append(f'<path d="{d}" fill="{colour}" fill-opacity="{fill_alpha}" stroke="{colour}" '
+                         f'stroke-opacity="{alpha}" stroke-width="{_f(frame.stroke(0.8))}"{dash} '
+                         f'stroke-linejoin="round" data-role="stretch"/>')
         # the bbox was grown on both axes by half the wider piece; the bands are
         # turned with the pieces, so allow that much before drawing it as well
         slack = max((0.5 + HALO) * frame.unit, float(np.max(analysis.board.pieces.width[analysis.couplings.a[rows]])))
         show_bbox = (x0 < ext[0] - slack or y0 < ext[1] - slack or x1 > ext[2] + slack or y1 > ext[3] + slack)
-    if show_bbox:
+    if show_bbox and not (faint and frame.cropped):  # a close-up frames its own finding, not the others'
         parts.append(f'<rect x="{_f(x0)}" y="{_f(y0)}" width="{_f(max(x1 - x0, 0))}" height="{_f(max(y1 - y0, 0))}" '
                      f'fill="none" stroke="{colour}" stroke-opacity="{alpha}" stroke-width="{_f(frame.stroke(0.6))}" '
                      f'stroke-dasharray="{_f(frame.unit * 0.3)} {_f(frame.unit * 0.2)}" data-role="extent"/>')
