@@ -200,6 +200,7 @@ class _Context:
         #: the findings that get a card (render_html's ``cards``)
         self.carded = set(self.by_id)
         self._svg_count = 0
+        self._reuse: dict = {}  # work the close-ups share (render_svg's ``reuse``)
 
     def number(self, finding_id: str) -> str:
         n = self.numbers.get(finding_id)
@@ -218,7 +219,7 @@ class _Context:
         made unique in the page (several pictures in one document must not
         share a clip path or a marker by accident)."""
         self._svg_count += 1
-        return _inline_svg(self.render_svg(self.result, **kwargs), f"p{self._svg_count}-")
+        return _inline_svg(self.render_svg(self.result, reuse=self._reuse, **kwargs), f"p{self._svg_count}-")
 
 
 _PROLOG = re.compile(r"^\s*(<\?xml[^>]*\?>\s*)?(<!DOCTYPE[^>]*>\s*)?", re.IGNORECASE)

@@ -123,7 +123,7 @@ def svg_per_layer_group(result) -> dict[str, str]:
 
 def render_svg(result, *, layers: tuple[str, ...] | None = None,
                view: tuple[float, float, float, float] | None = None,
-               only: str | None = None, width_px: int = 960) -> str:
+               only: str | None = None, width_px: int = 960, reuse: dict | None = None) -> str:
     """The annotated overlay of ``result`` as SVG text.
 
     ``layers``: copper layer names to draw (default: every layer some
@@ -134,7 +134,9 @@ def render_svg(result, *, layers: tuple[str, ...] | None = None,
     ``only`` = a finding id: only that finding gets a callout and a strong
     mark; the other findings' stretches are drawn faintly, unnumbered.
     ``width_px``: the width attribute of the picture (its height follows the
-    aspect ratio); it also sets the thinnest copper drawn.
+    aspect ratio); it also sets the thinnest copper drawn. ``reuse``: a dict
+    the caller keeps across pictures of the same ``result`` (the sign-off
+    report's close-ups), so work over the whole board is done once.
 
     Raises ``ValueError`` for an unknown layer name or finding id, an empty
     or non-finite ``view``, or a ``width_px`` below 16.
@@ -166,8 +168,14 @@ def render_svg(result, *, layers: tuple[str, ...] | None = None,
         shown.append(f)
     callouts = [f for f in shown if only is None or f.id == only]
 
-    rows_of = _RowFinder(analysis)
-    context, context_kinds = _context(analysis, shown, frame)
+    if reuse is not None and reuse.get("analysis") is analysis:
+        rows_of = reuse["rows"]
+    else:
+        rows_of = _RowFinder(analysis)
+        if reuse is not None:
+            reuse.update(analysis=analysis, rows=rows_of)
+    # what explains the findings called out (a close-up explains its own finding, not the faint others)
+    context, context_kinds = _context(analysis, callouts, frame)
     legend = _Legend(frame, board, drawn, callouts, waived, context_kinds)
     frame.set_band(legend.height)
 
