@@ -61,18 +61,6 @@ def cores_option(p: argparse.ArgumentParser, each: str = "a check") -> None:
                         f"run on, at most {cores.MAX_CORES}); the report is the same for any N")
 
 
-def _cards_arg(text: str) -> int | None:
-    if text.strip().lower() == "all":
-        return None
-    try:
-        n = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"a whole number or 'all', got {text[:40]!r}") from None
-    if n < 0:
-        raise argparse.ArgumentTypeError(f"at least 0, got {n}")
-    return n
-
-
 def _cores_arg(text: str) -> int:
     try:
         return cores.parse_cores(text)
@@ -111,7 +99,8 @@ def _parser() -> argparse.ArgumentParser:
         p.add_argument("--svg-dir", metavar="DIR",
                        help="also write one overlay per layer group with findings into DIR (created if missing)")
         p.add_argument("--html", metavar="FILE", help="also write the self-contained HTML sign-off report")
-        p.add_argument("--cards", metavar="N|all", type=_cards_arg, default=html_report.DEFAULT_CARDS,
+        # --cards takes what --pairs takes: a whole number, or 'all'
+        p.add_argument("--cards", metavar="N|all", type=json_report.parse_pairs, default=html_report.DEFAULT_CARDS,
                        help=f"findings, worst first, that get a card with a close-up in the HTML report "
                             f"(default {html_report.DEFAULT_CARDS}; every finding is in its index table either "
                             "way), or 'all'")
@@ -436,23 +425,19 @@ def _survey(args: argparse.Namespace) -> int:
     if args.rules and os.path.exists(args.rules):
         base = os.path.relpath(os.path.abspath(args.rules), os.path.dirname(os.path.abspath(args.out)))
     text = starter_rules(found, base)
-    with tempfile.TemporaryDirectory() as tmp:  # what is written must load: checked before it is written
-        trial = os.path.join(tmp, "trial.yaml")
-        with open(trial, "w", encoding="utf-8") as handle:
-            handle.write(text.replace(f"extends: {base}", f"extends: {_absolute_base(base, args.out)}"))
-        load_ruleset(trial)
+    # what is written must load: checked first in a file beside it, so `extends` resolves the same way
+    with tempfile.NamedTemporaryFile("w", encoding="utf-8", suffix=".yaml", prefix=".couplint-init-",
+                                     dir=os.path.dirname(os.path.abspath(args.out)), delete=False) as trial:
+        trial.write(text)
+    try:
+        load_ruleset(trial.name)
+    finally:
+        os.unlink(trial.name)
     write_atomically(args.out, lambda handle: handle.write(text))
     print(visible(f"wrote {args.out}: {len(found.catches)} net classes for {found.board_name}; "
                   f"{sum(len(v) for v in found.hinted.values())} net(s) named like an aggressor or a victim "
                   "are listed there commented out; set the illustrative values for your design"))
     return EXIT_CLEAN
-
-
-def _absolute_base(base: str, out: str) -> str:
-    """``base`` as the trial file (in another folder) must name it."""
-    if "/" in base or base.endswith(".yaml") or base.startswith("."):
-        return os.path.join(os.path.dirname(os.path.abspath(out)), base)
-    return base
 
 
 def _user_name() -> str:

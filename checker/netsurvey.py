@@ -20,7 +20,7 @@ import re
 from dataclasses import dataclass, field
 
 from .model import Board
-from .ruleset import NetClass, RuleSet, _compile_pattern
+from .ruleset import NetClass, RuleSet, compile_pattern
 from .shielding import reference_mask
 from .units import UNITS
 
@@ -78,8 +78,8 @@ def survey(board: Board, ruleset: RuleSet) -> Survey:
     for c in ruleset.classes:
         by_pattern = {}
         for pattern in c.patterns:
-            test = _compile_pattern(pattern)
-            found = sorted(n for n in names if (test.search(n) if pattern.startswith("re:") else test.match(n)))
+            test = compile_pattern(pattern).search  # as NetClass.matches tests each pattern
+            found = sorted(filter(test, names))
             by_pattern[pattern] = found
             caught.update(found)
         catches.append(ClassCatch(c, by_pattern))

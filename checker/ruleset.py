@@ -188,7 +188,7 @@ class NetClass:
     _compiled: tuple[re.Pattern[str], ...] = field(init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
-        object.__setattr__(self, "_compiled", tuple(_compile_pattern(p) for p in self.patterns))
+        object.__setattr__(self, "_compiled", tuple(compile_pattern(p) for p in self.patterns))
 
     def matches(self, net_name: str) -> bool:
         """True when ``net_name`` matches any of the class's patterns."""
@@ -611,7 +611,7 @@ def _parse_patterns(value: Any, file: str, place: str) -> tuple[str, ...]:
         if not pattern or pattern == REGEX_PREFIX:
             raise RuleError(file, here, "empty pattern")
         try:
-            _compile_pattern(pattern)
+            compile_pattern(pattern)
         except re.error as e:
             raise RuleError(file, here, f"bad regular expression {pattern[len(REGEX_PREFIX):]!r}: {e}") from None
         patterns.append(pattern)
@@ -790,10 +790,18 @@ def _check_name(name: Any, file: str, place: str, what: str) -> None:
                                      f"lowercase letters, digits and '-')")
 
 
-def _compile_pattern(pattern: str) -> re.Pattern[str]:
+def compile_pattern(pattern: str) -> re.Pattern[str]:
+    """A net-name pattern as an expression to ``search`` with: after
+    ``re:`` the regular expression as written; otherwise the glob, anchored
+    at both ends so it matches the whole name, as ``fnmatch.fnmatchcase``
+    does (``fnmatch.translate`` anchors only the end).
+
+    >>> bool(compile_pattern("AIN*").search("AIN1")), bool(compile_pattern("AIN*").search("XAIN1"))
+    (True, False)
+    """
     if pattern.startswith(REGEX_PREFIX):
         return re.compile(pattern[len(REGEX_PREFIX):])
-    return re.compile(fnmatch.translate(pattern))
+    return re.compile(r"\A" + fnmatch.translate(pattern))
 
 
 # --------------------------------------------------------------------------

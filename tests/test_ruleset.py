@@ -678,3 +678,19 @@ def test_a_ratio_and_zero_need_no_unit(tmp_path):
                     "net_classes:\n  v:\n    nets: [V*]\n    node_capacitance: 0\n", encoding="utf-8")
     rs = load_ruleset(path)
     assert rs.settings.bandwidth_factor == 0.5 and rs.classes[0].node_capacitance_f == 0.0
+
+
+def test_a_glob_matches_the_whole_net_name_as_fnmatchcase_does():
+    # the reference: fnmatch.fnmatchcase (a glob is matched against the whole name). A glob used to be
+    # searched anywhere in the name, so "AIN*" caught "XAIN1" and "SW_*" caught "BUCK_SW_A"
+    import fnmatch
+
+    from checker.ruleset import NetClass
+
+    patterns = ["AIN*", "SW_*", "*_SW", "*CLK*", "THERM?", "[AB]IN[0-9]", "GND"]
+    names = ["AIN1", "XAIN1", "SW_BUCK", "BUCK_SW_A", "BUCK_SW", "CLK", "SYS_CLK_1", "THERM1", "THERM12",
+             "AIN7", "BIN3", "CIN3", "GND", "AGND", "GND_1"]
+    for pattern in patterns:
+        c = NetClass("c", (pattern,), None, None, None, 1.0)
+        for name in names:
+            assert c.matches(name) == fnmatch.fnmatchcase(name, pattern), (pattern, name)
