@@ -40,6 +40,7 @@ from .atomic import Stopped, refuse_overwriting_inputs, write_atomically
 from .errors import CouplintError, UsageError, bounded
 from .report.json_report import DEFAULT_PAIRS, parse_pairs
 from .report.visible import visible
+from .selection import Selection, apply_selection
 
 EXIT_PASS, EXIT_FAIL = 0, 1
 
@@ -103,7 +104,8 @@ class BoardOutcome:
 def check_one(path: str, rules: str | None, fail_on: str = "warning", waivers: str | None = None,
               baseline: str | None = None, today: datetime.date | None = None,
               stackup: str | None = None, caps: limits.Limits | None = None,
-              pairs: int | None = DEFAULT_PAIRS, cores: int | None = None) -> BoardOutcome:
+              pairs: int | None = DEFAULT_PAIRS, cores: int | None = None,
+              only: tuple[str, ...] = ()) -> BoardOutcome:
     """Check one board file; runs in a worker. Never raises: a board that
     cannot be loaded or checked comes back with ``verdict="error"`` and the
     message in ``error``.
@@ -114,13 +116,15 @@ def check_one(path: str, rules: str | None, fail_on: str = "warning", waivers: s
     ``stackup``: a stackup YAML for fabrication packages without a job file;
     ``caps``: the resource caps (``--limit``; default: :mod:`checker.limits`'s);
     ``pairs``: net pairs the JSON report lists besides those a finding names;
-    ``cores``: processor cores the check may use (:mod:`checker.cores`)."""
+    ``cores``: processor cores the check may use (:mod:`checker.cores`);
+    ``only``: the ``--only`` terms (:mod:`checker.selection`)."""
     with limits.using(caps), core_count.using(cores):
-        return _check_one(path, rules, fail_on, waivers, baseline, today, stackup, pairs)
+        return _check_one(path, rules, fail_on, waivers, baseline, today, stackup, pairs, only)
 
 
 def _check_one(path: str, rules: str | None, fail_on: str, waivers: str | None, baseline: str | None,
-               today: datetime.date | None, stackup: str | None, pairs: int | None) -> BoardOutcome:
+               today: datetime.date | None, stackup: str | None, pairs: int | None,
+               only: tuple[str, ...] = ()) -> BoardOutcome:
     start = time.perf_counter()
     name = board_stem(path)
     try:
@@ -150,6 +154,7 @@ def _check_one(path: str, rules: str | None, fail_on: str, waivers: str | None, 
             from .review import build_review
 
             result.review = build_review(result.findings, waiver_file, baseline_report, on=today)
+        apply_selection(result, Selection.parse(list(only)))
         failing, waived = junit.result_findings(result)
         by_rule = json_report.summary(result)["findings_by_rule"]
         return BoardOutcome(
@@ -241,6 +246,9 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                              "findings never fail")
     parser.add_argument("--waivers", metavar="FILE",
                         help="one waiver file (YAML, docs/waivers.md) applied to every board")
+    parser.add_argument("--only", metavar="KEY=PATTERN", action="append", default=[],
+                        help="report only findings whose rule (name or kind), severity, net or layer matches, "
+                             "as for 'couplint check'; each board's verdict covers the findings selected")
     parser.add_argument("--baseline-dir", metavar="DIR",
                         help="the --out-dir of an earlier batch: each board is compared with its report "
                              "there (same file name); a board without one has only new findings")
@@ -269,6 +277,9 @@ def run(args: argparse.Namespace) -> int:
     # bad rule or waiver files stop the batch here, once, before any board is checked
     ruleset = _load_ruleset(args.rules)
     rule_names = [r.name for r in ruleset.rules]
+    selection = Selection.parse(args.only)
+    if selection is not None:  # nets and layers differ from board to board: only rules are checked here
+        selection.validate([(r.name, r.kind) for r in ruleset.rules])
     today = None
     if args.waivers:
         from .review import load_waivers
@@ -278,7 +289,7 @@ def run(args: argparse.Namespace) -> int:
         today = review_today()  # one date for every board, also on remote workers
     options = {"rules": args.rules, "fail_on": args.fail_on, "waivers": args.waivers, "today": today,
                "stackup": args.stackup, "caps": limits.current(), "pairs": args.pairs,
-               "cores": _cores_per_check(args, len(boards))}
+               "cores": _cores_per_check(args, len(boards)), "only": tuple(args.only)}
     if args.scheduler:
         source = _dask_outcomes(boards, baselines, options, args.scheduler, args.connect_timeout)
     else:
@@ -319,12 +330,15 @@ def run(args: argparse.Namespace) -> int:
 
     ordered = [outcomes[b] for b in boards]
     summary = summary_dict(ordered, rules=args.rules, sha256=ruleset.sha256, fail_on=args.fail_on,
-                           waivers=args.waivers, baseline_dir=args.baseline_dir)
+                           waivers=args.waivers, baseline_dir=args.baseline_dir, only=tuple(args.only))
     if args.summary_json:
         _write(args.summary_json, lambda handle: handle.write(summary_json(summary)))
     if args.junit:
         _write(args.junit, lambda handle: handle.write(junit_xml(ordered, rule_names)))
     print_table(ordered, summary["totals"])
+    if selection is not None:
+        print(f"only {selection.describe()}: findings outside it are neither counted nor reported; each "
+              "verdict covers the findings selected")
     for o in ordered:
         if o.error is not None:
             print(f"couplint: error: {visible(o.error, keep_lines=True)}", file=sys.stderr)
@@ -601,8 +615,9 @@ def _check_address(address: str) -> None:
 # --------------------------------------------------------------------------- outputs
 
 def summary_dict(outcomes: list[BoardOutcome], *, rules: str | None, sha256: str, fail_on: str,
-                 waivers: str | None = None, baseline_dir: str | None = None) -> dict:
-    """The summary JSON's content: tool version, rule set, boards by path, totals."""
+                 waivers: str | None = None, baseline_dir: str | None = None, only: tuple[str, ...] = ()) -> dict:
+    """The summary JSON's content: tool version, rule set, boards by path,
+    totals (and the ``--only`` terms, when given)."""
     totals = {"boards": len(outcomes)}
     for v in VERDICTS:
         totals[v] = sum(o.verdict == v for o in outcomes)
@@ -616,6 +631,7 @@ def summary_dict(outcomes: list[BoardOutcome], *, rules: str | None, sha256: str
         "fail_on": fail_on,
         "waivers": waivers,
         "baseline_dir": baseline_dir,
+        **({"only": list(only)} if only else {}),
         "boards": [o.summary() for o in sorted(outcomes, key=lambda o: o.path)],
         "totals": totals,
     }

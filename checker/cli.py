@@ -30,6 +30,7 @@ from .report import html as html_report
 from .report import json_report
 from .report.visible import visible
 from .review import DEFAULT_WAIVER_FILE, FAIL_ON, TODAY_ENV
+from .selection import Selection, apply_selection
 
 EXIT_CLEAN, EXIT_FINDINGS, EXIT_BAD_INPUT, EXIT_INTERNAL = 0, 1, 2, 3
 
@@ -95,6 +96,11 @@ def _parser() -> argparse.ArgumentParser:
                        help="an earlier JSON report of this board: findings are marked new or unchanged, "
                             "and those gone since are listed as fixed")
 
+        p.add_argument("--only", metavar="KEY=PATTERN", action="append", default=[],
+                       help="report only findings whose rule (name or kind), severity, net (aggressor or victim) "
+                            "or layer matches, e.g. --only net=AIN* --only severity=error; globs or re:REGEX; "
+                            "repeat a key to widen, combine keys to narrow; every output and the exit status "
+                            "cover the findings selected")
         p.add_argument("--svg", metavar="FILE", help="also write the annotated overlay of every finding (SVG)")
         p.add_argument("--svg-dir", metavar="DIR",
                        help="also write one overlay per layer group with findings into DIR (created if missing)")
@@ -272,8 +278,12 @@ def _check(board_paths: list[str], args: argparse.Namespace) -> int:
                                                 getattr(args, "netlist", None)) if p]
     for out in outputs:
         refuse_overwriting_inputs(out, inputs)
+    selection = Selection.parse(args.only)
     ruleset = ruleset_named(args.rules)
     board = _load(board_paths, args)
+    if selection is not None:
+        selection.validate([(r.name, r.kind) for r in ruleset.rules], [n.name for n in board.nets],
+                           list(board.stackup.names))
     # every input is read and validated before the (possibly long) check
     waivers = load_waivers(args.waivers) if args.waivers else None
     baseline = load_baseline(args.baseline) if args.baseline else None
@@ -312,6 +322,7 @@ def _check(board_paths: list[str], args: argparse.Namespace) -> int:
             result = check_board(board, ruleset, progress=lines, accurate=args.accurate, what_if=args.what_if)
     result.fail_on = args.fail_on
     result.review = build_review(result.findings, waivers, baseline, on=day)
+    apply_selection(result, selection)
 
     if args.format == "json":
         emit = lambda handle: json_report.write(result, handle, args.pairs)  # noqa: E731

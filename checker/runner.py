@@ -12,6 +12,7 @@ from .findings import Finding, sort_findings
 from .model import Board
 from .review import Review
 from .ruleset import RuleSet
+from .selection import Selection
 
 
 class CheckCrash(CouplintError):
@@ -28,6 +29,9 @@ class Result:
     seconds: float
     review: Review = field(default_factory=Review)
     fail_on: str = "warning"
+    #: ``--only``: the selection the findings were narrowed to, and how many it hid
+    selection: Selection | None = None
+    unselected: int = 0
 
     def failing(self) -> list[Finding]:
         return self.review.failing(self.findings, self.fail_on)

@@ -27,6 +27,7 @@ import numpy as np
 from .. import __version__
 from ..errors import InputError, UsageError
 from ..runner import Result
+from ..selection import selection_note
 from . import CAUTION
 from .json_report import summary
 from .svg import finding_number, render_svg
@@ -287,12 +288,14 @@ def _verdict(result: Result) -> str:
     css = {"pass": "v-pass", "pass with waivers": "v-waived", "pass with known findings": "v-waived",
            "fail": "v-fail"}.get(verdict, "v-fail")
     policy = POLICY.get(result.fail_on, f"--fail-on {result.fail_on}")
+    note = selection_note(result)
     return (
         f'<section class="banner {css}" id="verdict">\n'
         f'<p class="verdict-word">{_e(VERDICT_TITLE.get(verdict, verdict.upper()))}</p>\n'
         f'<p class="verdict-detail">{_e(detail)}</p>\n'
         f'<p class="policy">Policy: {_e(policy)}</p>\n'
-        "</section>\n"
+        + (f'<p class="policy" id="selection">Selection: {_e(note)}.</p>\n' if note else "")
+        + "</section>\n"
     )
 
 

@@ -54,6 +54,9 @@ def summary(result: Result) -> dict:
         out["new"] = statuses.count("new")
         out["unchanged"] = statuses.count("unchanged")
         out["fixed"] = len(review.fixed)
+    selection = getattr(result, "selection", None)
+    if selection is not None:  # --only: what was asked for, and how many findings it hid
+        out["selection"] = {"only": [f"{k}={p}" for k, p in selection.terms], "hidden": result.unselected}
     return out
 
 

@@ -8,6 +8,7 @@ from rich.markup import escape
 from rich.table import Table
 
 from ..runner import Result
+from ..selection import selection_note
 from . import CAUTION
 from .json_report import summary
 from .visible import visible
@@ -115,6 +116,9 @@ def render(result: Result, console: Console) -> None:
         f"{a.mode} mode, {result.seconds:.2f} s",
         highlight=False,
     )
+    note = selection_note(result)
+    if note is not None:
+        console.print(visible(note), highlight=False, markup=False)
     console.print(f"[dim]{CAUTION}[/]", highlight=False)
     console.print(_verdict_line(result, s), highlight=False)
 
