@@ -45,6 +45,7 @@ import shapely
 from ..checks import REGISTRY
 from ..findings import Finding
 from ..model import Board
+from . import raster
 from .visible import xml_visible
 
 #: The Okabe-Ito palette (name -> sRGB hex), in the order of its publication.
@@ -90,6 +91,22 @@ MIN_COPPER_PX = 0.8
 #: Pours and planes are drawn to within this many output pixels of their
 #: outline (Douglas-Peucker): a quarter pixel is invisible.
 REGION_TOLERANCE_PX = 0.25
+#: Pictures whose pixel is at least this many mm round copper coordinates to
+#: 10 um instead of 1 um (a quarter pixel or less: the same picture, some 20 %
+#: fewer bytes)
+COARSE_GRID_PX_MM = 0.04
+#: Copper shapes of a close-up's two nets up to this area (mm^2) are pads
+#: and drawn at copper strength; larger ones are pours and stay light
+PAD_MAX_MM2 = 4.0
+#: A finding with more bands than this in the picture has them drawn as one
+#: merged outline (filled even-odd) instead of one quadrilateral each
+MERGE_BANDS_ABOVE = 12
+
+#: more callouts than this in one picture: findings whose spots share a
+#: cell of :data:`CLUSTER_CELL` text heights are drawn as one cluster marker
+#: (their count; its shape the worst severity), lone ones keep their callout
+CLUSTER_ABOVE = 60
+CLUSTER_CELL = 6.0
 
 _FONT = "DejaVu Sans, Verdana, Arial, sans-serif"
 
@@ -123,7 +140,8 @@ def svg_per_layer_group(result) -> dict[str, str]:
 
 def render_svg(result, *, layers: tuple[str, ...] | None = None,
                view: tuple[float, float, float, float] | None = None,
-               only: str | None = None, width_px: int = 960, reuse: dict | None = None) -> str:
+               only: str | None = None, width_px: int = 960, reuse: dict | None = None,
+               compact_legend: bool = False) -> str:
     """The annotated overlay of ``result`` as SVG text.
 
     ``layers``: copper layer names to draw (default: every layer some
@@ -137,6 +155,12 @@ def render_svg(result, *, layers: tuple[str, ...] | None = None,
     aspect ratio); it also sets the thinnest copper drawn. ``reuse``: a dict
     the caller keeps across pictures of the same ``result`` (the sign-off
     report's close-ups), so work over the whole board is done once.
+    ``compact_legend``: the legend names the layers and the scale only (the
+    sign-off report's cards, whose symbols the overview's legend explains).
+
+    A close-up (``only`` with a ``view``) also draws the vias in the view,
+    the pads and other small copper of the finding's two nets at copper
+    strength, and the two nets' names on their copper.
 
     Raises ``ValueError`` for an unknown layer name or finding id, an empty
     or non-finite ``view``, or a ``width_px`` below 16.
@@ -175,8 +199,10 @@ def render_svg(result, *, layers: tuple[str, ...] | None = None,
         if reuse is not None:
             reuse.update(analysis=analysis, rows=rows_of)
     # what explains the findings called out (a close-up explains its own finding, not the faint others)
-    context, context_kinds = _context(analysis, callouts, frame)
-    legend = _Legend(frame, board, drawn, callouts, waived, context_kinds)
+    context, context_kinds = _context(analysis, callouts, frame, rows_of)
+    legend = _Legend(frame, board, drawn, callouts, waived, context_kinds,
+                     clustered=only is None and len(callouts) > CLUSTER_ABOVE, compact=compact_legend)
+    target = next((f for f in callouts if f.id == only), None) if frame.cropped else None
     frame.set_band(legend.height)
 
     out: list[str] = []
@@ -191,20 +217,47 @@ def render_svg(result, *, layers: tuple[str, ...] | None = None,
     out.append(f'<g transform="matrix(1 0 0 -1 0 {_f(frame.flip)})">')
     # pours and planes, then the marked stretches (as a halo under the
     # traces, faint ones first), then the traces, upper layers last
-    out.extend(_regions(board, drawn, frame))
+    out.extend(_regions(board, drawn, frame, _nets_of(board, target)))
     out.extend(context)
-    marks = sorted(shown, key=lambda f: 0 if (only is not None and f.id != only) else 1)
-    for f in marks:
-        faint = only is not None and f.id != only
-        out.extend(_stretch(analysis, f, rows_of(f), frame, faint, f.id in waived))
-    out.extend(_traces(board, drawn, frame))
+    clustered = only is None and len(callouts) > CLUSTER_ABOVE
+    if clustered:  # thousands of findings: their stretches merged by look, not one group each
+        out.extend(_stretches_merged(analysis, shown, rows_of, frame, waived))
+    elif only is not None:  # a close-up: the other findings' bands faintly, then the finding's own
+        out.extend(_faint_bands(findings, {f.id for f in shown if f.id != only}, rows_of, frame, waived))
+        target = next(f for f in shown if f.id == only)
+        out.extend(_stretch(analysis, target, rows_of(target), frame, False, target.id in waived))
+    else:
+        for f in shown:
+            out.extend(_stretch(analysis, f, rows_of(f), frame, False, f.id in waived))
+    per_layer = _pieces_in_frame(board, drawn, frame)
+    if sum(int(on.size) for _, on in per_layer) > raster.RASTER_ABOVE:
+        # too many pieces for vectors (a 320 000-piece board: 12 MB of paths): one image of them, in SVG
+        # coordinates, between the flipped group's marks and its outline
+        out.append("</g>")
+        out.extend(_traces_image(board, per_layer, frame))
+        out.append(f'<g transform="matrix(1 0 0 -1 0 {_f(frame.flip)})">')
+    else:
+        out.extend(_traces(board, per_layer, frame))
+    if target is not None:
+        out.extend(_vias(board, drawn, frame))
     out.extend(_outline(board, frame))
     out.append("</g>")
-    # the worst findings get the first pick of places, and are drawn last (on top)
     placer = _Placer(frame)
-    places = [placer.place(f.at) for f in callouts]
-    for f, place in reversed(list(zip(callouts, places, strict=True))):
+    if target is not None:
+        labels, spots = _net_labels(board, target, per_layer, frame)
+        out.extend(labels)
+        for x, y, half in spots:  # the callout keeps clear of the labels
+            for k in range(-int(half / placer.cell), int(half / placer.cell) + 1):
+                placer.block(x + k * placer.cell, y)
+    # the worst findings get the first pick of places, and are drawn last (on top); on a crowded
+    # picture, findings close together first become clusters, which keep their places
+    singles, clusters = _clusters(callouts, frame) if clustered else (callouts, [])
+    cluster_places = [placer.place(c.at, first_free=True) for c in clusters]
+    places = [placer.place(f.at) for f in singles]
+    for f, place in reversed(list(zip(singles, places, strict=True))):
         out.extend(_callout(f, numbers[f.id], frame, place, placer.r, waived.get(f.id)))
+    for i, (c, place) in reversed(list(enumerate(zip(clusters, cluster_places, strict=True)))):
+        out.extend(_cluster_marker(c, i, numbers, waived, frame, place, placer.r))
     out.extend(legend.draw())
     out.append("</svg>")
     return "\n".join(out) + "\n"
@@ -217,6 +270,15 @@ def render_svg(result, *, layers: tuple[str, ...] | None = None,
 def _f(v: float) -> str:
     """A length in mm rounded to 1 um, without trailing zeros (never ``-0``)."""
     return f"{round(float(v) * 1000) / 1000 + 0.0:.3f}".rstrip("0").rstrip(".")
+
+
+def _gs(q: np.ndarray, per_mm: int) -> list[str]:
+    """Whole grid steps ``q`` (``per_mm`` of them per mm: 1000 or 100) as
+    mm without trailing zeros: exact, since a grid step has three or two
+    decimals."""
+    digits = 3 if per_mm == 1000 else 2
+    v = np.asarray(q, dtype=np.float64) / per_mm + 0.0
+    return [t.rstrip("0").rstrip(".") for t in map(f"{{:.{digits}f}}".format, v.tolist())]
 
 
 def _fs(a: np.ndarray) -> list[str]:
@@ -336,6 +398,13 @@ class _Frame:
         """One output pixel in mm."""
         return self.vw / self.width_px
 
+    @property
+    def per_mm(self) -> int:
+        """Grid steps per mm that copper and stretch coordinates are
+        rounded to: 1000 (um), or 100 (10 um) where a pixel is at least
+        :data:`COARSE_GRID_PX_MM`, so a step stays a quarter pixel or less."""
+        return 100 if self.px() >= COARSE_GRID_PX_MM else 1000
+
     def stroke(self, k: float = 1.0) -> float:
         """An annotation stroke width (mm): ``k`` times the basic one."""
         return 0.07 * self.unit * k
@@ -368,9 +437,19 @@ def _drawn_layers(board: Board, findings: list[Finding], layers) -> list[int]:
     return [k for k, n in enumerate(names) if n in wanted]
 
 
-def _regions(board: Board, drawn: list[int], frame: _Frame) -> list[str]:
+def _nets_of(board: Board, f: Finding | None) -> set[int]:
+    """Net indices of a finding's aggressor and victim (none for ``None``)."""
+    if f is None:
+        return set()
+    index = board.net_index()
+    return {index[n] for n in (f.aggressor, f.victim) if n in index}
+
+
+def _regions(board: Board, drawn: list[int], frame: _Frame, strong_nets: set[int] = frozenset()) -> list[str]:
     """Pours (and, fainter, planes) of the drawn layers as light fills with
-    their holes, bottom layer first."""
+    their holes, bottom layer first. Small copper (pads: at most
+    :data:`PAD_MAX_MM2`) of ``strong_nets`` is drawn at copper strength, so a
+    close-up shows where its two nets land."""
     out: list[str] = []
     box = shapely.box(frame.vx0, frame.vy0, frame.vx1, frame.vy1)
     min_w = MIN_COPPER_PX * frame.px()
@@ -391,8 +470,11 @@ def _regions(board: Board, drawn: list[int], frame: _Frame) -> list[str]:
                 shape = shapely.clip_by_rect(shape, frame.vx0, frame.vy0, frame.vx1, frame.vy1)
             elif not shape.intersects(box):
                 continue
-            d = _polygon_path(shapely.simplify(shape, tolerance, preserve_topology=False))
-            if d:
+            d = _polygon_path(shapely.simplify(shape, tolerance, preserve_topology=False), frame.per_mm)
+            if d and r.net in strong_nets and r.polygon.area <= PAD_MAX_MM2:
+                paths.append(f'<path d="{d}" fill="{colour}" fill-opacity="{COPPER_OPACITY}" fill-rule="evenodd" '
+                             f'data-role="pad"/>')
+            elif d:
                 paths.append(f'<path d="{d}" fill="{colour}" fill-opacity="{opacity}" fill-rule="evenodd" '
                              f'stroke="{colour}" stroke-opacity="{min(1.0, opacity * 3):.2f}" '
                              f'stroke-width="{_f(max(frame.stroke(0.5), min_w / 2))}"/>')
@@ -401,34 +483,49 @@ def _regions(board: Board, drawn: list[int], frame: _Frame) -> list[str]:
     return out
 
 
-def _traces(board: Board, drawn: list[int], frame: _Frame) -> list[str]:
+def _pieces_in_frame(board: Board, drawn: list[int], frame: _Frame) -> list[tuple[int, np.ndarray]]:
+    """(layer, indices of its pieces that meet the framed area), bottom
+    layer first, layers without such pieces left out."""
+    p = board.pieces
+    if not len(p):
+        return []
+    half = p.width / 2
+    inside = ~((np.maximum(p.x1, p.x2) + half < frame.vx0) | (np.minimum(p.x1, p.x2) - half > frame.vx1)
+               | (np.maximum(p.y1, p.y2) + half < frame.vy0) | (np.minimum(p.y1, p.y2) - half > frame.vy1))
+    out = []
+    for k in reversed(drawn):
+        on = np.flatnonzero((p.layer == k) & inside)
+        if on.size:
+            out.append((k, on))
+    return out
+
+
+def _traces(board: Board, per_layer: list[tuple[int, np.ndarray]], frame: _Frame) -> list[str]:
     """Pieces of the drawn layers as round-capped strokes of their width
     (at least :data:`MIN_COPPER_PX` pixels), bottom layer first so upper
     layers lie on top; one path per (layer, width), only pieces that meet
     the framed area."""
     out: list[str] = []
     p = board.pieces
-    if not len(p):
-        return out
     min_w = MIN_COPPER_PX * frame.px()
-    half = p.width / 2
-    inside = ~((np.maximum(p.x1, p.x2) + half < frame.vx0) | (np.minimum(p.x1, p.x2) - half > frame.vx1)
-               | (np.maximum(p.y1, p.y2) + half < frame.vy0) | (np.minimum(p.y1, p.y2) - half > frame.vy1))
-    for k in reversed(drawn):
-        on = np.flatnonzero((p.layer == k) & inside)
-        if not on.size:
-            continue
+    for k, on in per_layer:
         layer = board.stackup.layers[k]
         colour = LAYER_COLOURS[k % len(LAYER_COLOURS)]
         out.append(f'<g data-layer={_attr(layer.name)} data-role="traces">')
         q = np.rint(p.width[on] * 1000).astype(np.int64)
         for wq in np.unique(q).tolist():
             sel = on[q == wq]
-            # each piece: its start, then the step to its end (whole um: exact, and shorter)
-            q1x, q1y = np.rint(p.x1[sel] * 1000), np.rint(p.y1[sel] * 1000)
-            x1, y1 = _fs(q1x / 1000), _fs(q1y / 1000)
-            dx, dy = _fs((np.rint(p.x2[sel] * 1000) - q1x) / 1000), _fs((np.rint(p.y2[sel] * 1000) - q1y) / 1000)
-            d = "".join(f"M{a} {b}l{c} {e}" for a, b, c, e in zip(x1, y1, dx, dy, strict=True))
+            # each piece: its start, then the step to its end (whole um: exact, and shorter); a piece
+            # that starts where the one before it ended (a polyline) continues it with its step alone
+            g = frame.per_mm
+            q1x, q1y = np.rint(p.x1[sel] * g), np.rint(p.y1[sel] * g)
+            q2x, q2y = np.rint(p.x2[sel] * g), np.rint(p.y2[sel] * g)
+            x1, y1 = _gs(q1x, g), _gs(q1y, g)
+            dx, dy = _gs(q2x - q1x, g), _gs(q2y - q1y, g)
+            joined = np.zeros(sel.size, bool)
+            joined[1:] = (q1x[1:] == q2x[:-1]) & (q1y[1:] == q2y[:-1])
+            d = "".join(f" {c} {e}" if j else f"M{a} {b}l{c} {e}"
+                        for a, b, c, e, j in zip(x1, y1, dx, dy, joined.tolist(), strict=True))
             out.append(f'<path d="{d}" fill="none" stroke="{colour}" stroke-opacity="{COPPER_OPACITY}" '
                        f'stroke-width="{_f(max(wq / 1000, min_w))}" stroke-linecap="round" '
                        f'stroke-linejoin="round"/>')
@@ -436,23 +533,126 @@ def _traces(board: Board, drawn: list[int], frame: _Frame) -> list[str]:
     return out
 
 
-def _ring(coords) -> str:
+def _traces_image(board: Board, per_layer: list[tuple[int, np.ndarray]], frame: _Frame) -> list[str]:
+    """The same traces as one PNG (:mod:`.raster`) placed over the framed
+    area, in SVG coordinates (outside the flipped group)."""
+    scale = raster.RASTER_SCALE * frame.width_px / frame.vw  # PNG pixels per mm
+    png, w, h = raster.traces_png(
+        board.pieces, [(on, LAYER_COLOURS[k % len(LAYER_COLOURS)]) for k, on in per_layer],
+        (frame.vx0, frame.vy0, frame.vx1, frame.vy1), scale, MIN_COPPER_PX * raster.RASTER_SCALE, COPPER_OPACITY)
+    names = ", ".join(board.stackup.layers[k].name for k, _ in reversed(per_layer))
+    count = sum(int(on.size) for _, on in per_layer)
+    return [f'<image x="{_f(frame.vx0)}" y="{_f(frame.vy0)}" width="{_f(w / scale)}" height="{_f(h / scale)}" '
+            f'preserveAspectRatio="none" data-role="traces-image" data-pieces="{count}" '
+            f'href="{raster.data_uri(png)}"><title>{_text(f"{count} copper pieces on {names}, drawn as an image")}'
+            "</title></image>"]
+
+
+def _vias(board: Board, drawn: list[int], frame: _Frame) -> list[str]:
+    """Plated holes through any drawn layer inside the framed area: the
+    pad as a dark ring, the drill as a white hole (board coordinates)."""
+    v = board.vias
+    if not len(v) or not drawn:
+        return []
+    lo, hi = min(drawn), max(drawn)
+    r = v.pad / 2
+    on = np.flatnonzero((v.first_layer <= hi) & (v.last_layer >= lo)
+                        & (v.x + r >= frame.vx0) & (v.x - r <= frame.vx1)
+                        & (v.y + r >= frame.vy0) & (v.y - r <= frame.vy1))
+    if not on.size:
+        return []
+    ring = frame.stroke(0.8)
+    out = ['<g data-role="vias">']
+    for i in on.tolist():
+        pad_r, hole_r = float(v.pad[i]) / 2, float(v.drill[i]) / 2
+        out.append(f'<circle cx="{_f(v.x[i])}" cy="{_f(v.y[i])}" r="{_f(max(pad_r - ring / 2, ring))}" '
+                   f'fill="{BACKGROUND}" stroke="{OKABE_ITO["black"]}" stroke-opacity="0.7" '
+                   f'stroke-width="{_f(ring)}"/>')
+        if hole_r > ring:
+            out.append(f'<circle cx="{_f(v.x[i])}" cy="{_f(v.y[i])}" r="{_f(hole_r)}" fill="{OKABE_ITO["black"]}" '
+                       f'fill-opacity="0.25"/>')
+    out.append("</g>")
+    return out
+
+
+def _net_labels(board: Board, f: Finding, per_layer: list[tuple[int, np.ndarray]],
+                frame: _Frame) -> tuple[list[str], list[tuple[float, float, float]]]:
+    """The finding's aggressor and victim named on their copper: each label
+    beside that net's piece nearest the worst spot, moved along the piece
+    (the aggressor one way, the victim the other) and off it on the side
+    away from the other net, so labels of parallel traces do not sit on
+    each other; black on a white halo (a white-stroked copy under it:
+    viewers that ignore ``paint-order`` show it too), in SVG coordinates. A
+    printed report keeps them; hover titles it would not. Also returns
+    where each label sits (board x, y and its estimated half width), so
+    callouts can keep clear of it."""
+    index = board.net_index()
+    p = board.pieces
+    on = np.concatenate([idx for _, idx in per_layer]) if per_layer else np.zeros(0, np.int64)
+    size = 0.8 * frame.unit
+    ax, ay = f.at
+    anchors: list[tuple[str, str, float, float, float, float]] = []  # name, role, x, y, along x, along y
+    for net_name, role, sign in ((f.aggressor, "aggressor", 1.0), (f.victim, "victim", -1.0)):
+        k = index.get(net_name)
+        mine = on[p.net[on] == k] if k is not None and on.size else on[:0]
+        if not mine.size:
+            continue
+        # the nearest point of each piece to the worst spot, then the nearest piece
+        x1, y1, dx, dy = p.x1[mine], p.y1[mine], p.x2[mine] - p.x1[mine], p.y2[mine] - p.y1[mine]
+        ll = dx * dx + dy * dy
+        t = np.clip(((ax - x1) * dx + (ay - y1) * dy) / np.where(ll > 0, ll, 1.0), 0.0, 1.0)
+        j = int(np.argmin(np.hypot(x1 + t * dx - ax, y1 + t * dy - ay)))
+        length = math.sqrt(float(ll[j]))
+        ux, uy = (float(dx[j]) / length, float(dy[j]) / length) if length > 0 else (1.0, 0.0)
+        at = float(t[j]) * length
+        if ux < 0 or (ux == 0 and uy < 0):  # "along" is rightwards (or up) for both nets
+            ux, uy, at = -ux, -uy, length - at
+            x0, y0 = float(x1[j] + dx[j]), float(y1[j] + dy[j])
+        else:
+            x0, y0 = float(x1[j]), float(y1[j])
+        along = min(max(at + sign * min(4.0 * frame.unit, length / 2), 0.0), length)
+        anchors.append((net_name, role, x0 + along * ux, y0 + along * uy, ux, uy))
+    out: list[str] = []
+    spots: list[tuple[float, float, float]] = []
+    for i, (name, role, x, y, ux, uy) in enumerate(anchors):
+        nx, ny = -uy, ux
+        if len(anchors) == 2:  # off the copper, away from the other net's label
+            ox, oy = anchors[1 - i][2], anchors[1 - i][3]
+            if (x - ox) * nx + (y - oy) * ny < 0:
+                nx, ny = -nx, -ny
+        elif ny < 0:
+            nx, ny = -nx, -ny
+        lx = min(max(x + nx * size, frame.vx0 + 4 * size), frame.vx1 - 4 * size)
+        ly = min(max(y + ny * size, frame.vy0 + size), frame.vy1 - size)
+        where = f'x="{_f(lx)}" y="{_f(frame.sy(ly) + 0.35 * size)}" font-size="{_f(size)}" text-anchor="middle"'
+        words = _text(f"{name} ({role})")
+        out.append(f'<g data-role="net-label" data-net={_attr(name)}>'
+                   f'<text {where} fill="none" stroke="{BACKGROUND}" stroke-width="{_f(0.3 * size)}" '
+                   f'stroke-linejoin="round" aria-hidden="true">{words}</text>'
+                   f'<text {where} fill="{OKABE_ITO["black"]}">{words}</text></g>')
+        spots.append((lx, ly, 0.3 * size * len(f"{name} ({role})")))
+    return out, spots
+
+
+def _ring(coords, per_mm: int = 1000) -> str:
     """A closed subpath: the first corner absolute, the others as steps
-    from the one before (``l``), all in whole um, so the steps add up
-    exactly to the corners :func:`_fs` would write, in fewer characters."""
+    from the one before (``l``), all in whole grid steps (``per_mm`` per
+    mm: um, or 10 um where a pixel is larger, see :attr:`_Frame.per_mm`),
+    so the steps add up exactly to the rounded corners, in fewer
+    characters."""
     xy = np.asarray(coords, dtype=np.float64)
     if xy.shape[0] < 3:
         return ""
     if np.array_equal(xy[0], xy[-1]):
         xy = xy[:-1]
-    q = np.rint(xy * 1000)  # whole um
+    q = np.rint(xy * per_mm)
     step = np.diff(q, axis=0)
-    head = _fs(q[0] / 1000)
-    dx, dy = _fs(step[:, 0] / 1000), _fs(step[:, 1] / 1000)
+    head = _gs(q[0], per_mm)
+    dx, dy = _gs(step[:, 0], per_mm), _gs(step[:, 1], per_mm)
     return f"M{head[0]} {head[1]}l" + " ".join(f"{a} {b}" for a, b in zip(dx, dy, strict=True)) + "Z"
 
 
-def _polygon_path(shape) -> str:
+def _polygon_path(shape, per_mm: int = 1000) -> str:
     """Path data of a (multi)polygon, holes as further subpaths (to be filled
     with ``fill-rule="evenodd"``)."""
     if shape.is_empty:
@@ -462,8 +662,8 @@ def _polygon_path(shape) -> str:
     for g in parts:
         if g.geom_type != "Polygon" or g.is_empty:
             continue
-        d.append(_ring(g.exterior.coords))
-        d.extend(_ring(h.coords) for h in g.interiors)
+        d.append(_ring(g.exterior.coords, per_mm))
+        d.extend(_ring(h.coords, per_mm) for h in g.interiors)
     return "".join(d)
 
 
@@ -515,7 +715,7 @@ def _context_swatch(what: str, x: float, mid: float, u: float, frame: _Frame) ->
             f'{_context_style(what, frame)}/>']
 
 
-def _context(analysis, shown: list[Finding], frame: _Frame) -> tuple[list[str], tuple[str, ...]]:
+def _context(analysis, shown: list[Finding], frame: _Frame, rows_of: _RowFinder) -> tuple[list[str], tuple[str, ...]]:
     """Shapes that explain the shown findings: the gaps in the reference
     copper between the layers of a partly shielded broadside run, floating
     islands that relay a net pair's coupling, guard traces in the gap of an
@@ -536,8 +736,7 @@ def _context(analysis, shown: list[Finding], frame: _Frame) -> tuple[list[str], 
         ia, iv = index.get(f.aggressor), index.get(f.victim)
         if ia is None or iv is None:
             continue
-        lo, hi = min(ia, iv), max(ia, iv)
-        rows = np.flatnonzero((c.net_a == lo) & (c.net_b == hi))
+        rows = rows_of.pair_rows(min(ia, iv), max(ia, iv))
         if not rows.size:
             continue
         islands.update(int(k) for k in c.island[rows] if k >= 0)
@@ -630,6 +829,45 @@ class _RowFinder:
         self.by_net = pair[order]
         self.starts = np.searchsorted(nets[order], np.arange(len(board.nets) + 1))
         self.masks: dict[str, np.ndarray] = {}
+        self._pair_key: tuple[np.ndarray, np.ndarray] | None = None
+        self._bands: dict | None = None
+
+    def pair_rows(self, lo: int, hi: int) -> np.ndarray:
+        """Coupled rows of the net pair (lo, hi), lo < hi, ascending: one
+        sort of the couplings, shared by every picture of the report."""
+        c = self.a.couplings
+        n = len(self.a.board.nets) + 1
+        if self._pair_key is None:
+            key = np.asarray(c.net_a, np.int64) * n + np.asarray(c.net_b, np.int64)
+            order = np.argsort(key, kind="stable")
+            self._pair_key = (key[order], order)
+        sorted_key, order = self._pair_key
+        k = lo * n + hi
+        return np.sort(order[np.searchsorted(sorted_key, k):np.searchsorted(sorted_key, k, side="right")])
+
+    def bands(self, findings: list[Finding]) -> dict:
+        """Every finding's bands, built once: per coupled row its centre,
+        direction along and across, half length and half width (unpadded),
+        and the finding it belongs to (position in ``findings``)."""
+        if self._bands is None:
+            c = self.a.couplings
+            p = self.a.board.pieces
+            rows_per = [self(f) for f in findings]
+            rows = np.concatenate(rows_per) if rows_per else np.zeros(0, np.int64)
+            owner = np.repeat(np.arange(len(findings)), [r.size for r in rows_per]) if rows_per else rows
+            ia, ib = c.a[rows], c.b[rows]
+            dx, dy = p.x2[ia] - p.x1[ia], p.y2[ia] - p.y1[ia]
+            norm = np.hypot(dx, dy)
+            zero = norm == 0
+            norm[zero] = 1.0
+            ux, uy = np.where(zero, 1.0, dx / norm), np.where(zero, 0.0, dy / norm)
+            cover = np.maximum(p.width[ia], p.width[ib]) / 2
+            self._bands = {
+                "owner": owner, "cx": c.x[rows], "cy": c.y[rows], "ux": ux, "uy": uy,
+                "half_l": np.maximum(c.length_mm[rows], 0.0) / 2,
+                "half_w": np.where(c.parallel[rows], np.abs(c.offset_mm[rows]) / 2 + cover, cover),
+            }
+        return self._bands
 
     def _pairs(self, f: Finding, ia: int, iv: int) -> np.ndarray:
         mine = np.sort(self.by_net[self.starts[iv]:self.starts[iv + 1]])
@@ -702,15 +940,12 @@ def _row_quads(analysis, rows: np.ndarray, pad: float) -> tuple[np.ndarray, np.n
     return xs, ys, extent
 
 
-def _stretch(analysis, f: Finding, rows: np.ndarray, frame: _Frame, faint: bool, waived: bool) -> list[str]:
-    """The finding's coupled stretch: one band per coupled row, and the
-    finding's bbox dashed where the bands do not cover it (or stand in for
-    them when no row could be matched)."""
-    colour = WAIVED_COLOUR if waived else SEVERITY_COLOURS.get(f.severity, OKABE_ITO["vermillion"])
-    dash = _dash(f.severity, waived, frame)
-    alpha = 0.35 if faint else 1.0
-    fill_alpha = 0.0 if waived else (0.12 if faint else 0.35)
-    parts: list[str] = []
+def _stretch_shapes(analysis, f: Finding, rows: np.ndarray, frame: _Frame,
+                    faint: bool) -> tuple[str, tuple[float, float, float, float] | None]:
+    """The path data of the finding's bands that meet the framed area (one
+    band per coupled row), and its bbox when the bands do not cover it (or
+    stand in for them when no row could be matched), else ``None``."""
+    d = ""
     x0, y0, x1, y1 = f.bbox
     show_bbox = True
     if rows.size:
@@ -721,25 +956,121 @@ def _stretch(analysis, f: Finding, rows: np.ndarray, frame: _Frame, faint: bool,
         seen = ((xs.max(axis=1) >= frame.vx0) & (xs.min(axis=1) <= frame.vx1)
                 & (ys.max(axis=1) >= frame.vy0) & (ys.min(axis=1) <= frame.vy1))
         xs, ys = xs[seen], ys[seen]
-        # each band: its first corner, then the steps to the other three (whole um, as in _ring)
-        qx, qy = np.rint(xs * 1000), np.rint(ys * 1000)
-        hx, hy = _fs(qx[:, 0] / 1000), _fs(qy[:, 0] / 1000)
-        steps = [(_fs((qx[:, k] - qx[:, k - 1]) / 1000), _fs((qy[:, k] - qy[:, k - 1]) / 1000)) for k in (1, 2, 3)]
-        (ax, ay), (bx, by), (cx, cy) = steps
-        d = "".join(f"M{hx[i]} {hy[i]}l{ax[i]} {ay[i]} {bx[i]} {by[i]} {cx[i]} {cy[i]}Z" for i in range(len(hx)))
-        if d:
-            parts.append(f'<path d="{d}" fill="{colour}" fill-opacity="{fill_alpha}" stroke="{colour}" '
-                         f'stroke-opacity="{alpha}" stroke-width="{_f(frame.stroke(0.8))}"{dash} '
-                         f'stroke-linejoin="round" data-role="stretch"/>')
+        g = frame.per_mm
+        if len(xs) > MERGE_BANDS_ABOVE:
+            # many bands (a victim summed over dozens of aggressors): one outline of them, to a quarter pixel
+            shape = shapely.union_all(shapely.polygons(np.stack([xs, ys], axis=-1)))
+            d = _polygon_path(shapely.simplify(shape, REGION_TOLERANCE_PX * frame.px(), preserve_topology=False), g)
+        else:
+            # each band: its first corner, then the steps to the other three (whole grid steps, as in _ring)
+            qx, qy = np.rint(xs * g), np.rint(ys * g)
+            hx, hy = _gs(qx[:, 0], g), _gs(qy[:, 0], g)
+            steps = [(_gs(qx[:, k] - qx[:, k - 1], g), _gs(qy[:, k] - qy[:, k - 1], g)) for k in (1, 2, 3)]
+            (ax, ay), (bx, by), (cx, cy) = steps
+            d = "".join(f"M{hx[i]} {hy[i]}l{ax[i]} {ay[i]} {bx[i]} {by[i]} {cx[i]} {cy[i]}Z"
+                        for i in range(len(hx)))
         # the bbox was grown on both axes by half the wider piece; the bands are
         # turned with the pieces, so allow that much before drawing it as well
         slack = max((0.5 + HALO) * frame.unit, float(np.max(analysis.board.pieces.width[analysis.couplings.a[rows]])))
         show_bbox = (x0 < ext[0] - slack or y0 < ext[1] - slack or x1 > ext[2] + slack or y1 > ext[3] + slack)
-    if show_bbox and not (faint and frame.cropped):  # a close-up frames its own finding, not the others'
+    box = f.bbox if show_bbox and not (faint and frame.cropped) else None  # a close-up frames its own finding
+    return d, box
+
+
+def _stretch_style(f: Finding, frame: _Frame, faint: bool, waived: bool) -> tuple[str, str]:
+    """Attributes of a finding's bands and of its dashed extent."""
+    colour = WAIVED_COLOUR if waived else SEVERITY_COLOURS.get(f.severity, OKABE_ITO["vermillion"])
+    alpha = 0.35 if faint else 1.0
+    fill_alpha = 0.0 if waived else (0.12 if faint else 0.35)
+    band = (f'fill="{colour}" fill-opacity="{fill_alpha}" stroke="{colour}" stroke-opacity="{alpha}" '
+            f'stroke-width="{_f(frame.stroke(0.8))}"{_dash(f.severity, waived, frame)} stroke-linejoin="round"')
+    extent = (f'fill="none" stroke="{colour}" stroke-opacity="{alpha}" stroke-width="{_f(frame.stroke(0.6))}" '
+              f'stroke-dasharray="{_f(frame.unit * 0.3)} {_f(frame.unit * 0.2)}"')
+    return band, extent
+
+
+def _stretch(analysis, f: Finding, rows: np.ndarray, frame: _Frame, faint: bool, waived: bool) -> list[str]:
+    """The finding's coupled stretch as a group ``s-<id>``: its bands, and
+    its extent dashed (:func:`_stretch_shapes`)."""
+    d, box = _stretch_shapes(analysis, f, rows, frame, faint)
+    band, extent = _stretch_style(f, frame, faint, waived)
+    parts: list[str] = []
+    if d:
+        parts.append(f'<path d="{d}" fill-rule="evenodd" {band} data-role="stretch"/>')
+    if box is not None:
+        x0, y0, x1, y1 = box
         parts.append(f'<rect x="{_f(x0)}" y="{_f(y0)}" width="{_f(max(x1 - x0, 0))}" height="{_f(max(y1 - y0, 0))}" '
-                     f'fill="none" stroke="{colour}" stroke-opacity="{alpha}" stroke-width="{_f(frame.stroke(0.6))}" '
-                     f'stroke-dasharray="{_f(frame.unit * 0.3)} {_f(frame.unit * 0.2)}" data-role="extent"/>')
+                     f'{extent} data-role="extent"/>')
     return [f'<g id="s-{_id(f.id)}">', *parts, "</g>"]
+
+
+def _faint_bands(findings: list[Finding], faint_ids: set[str], rows_of: _RowFinder, frame: _Frame,
+                 waived) -> list[str]:
+    """The bands of the findings ``faint_ids`` that meet the framed area,
+    faint and unnumbered, one path per look, from the band table every
+    close-up of the report shares (:meth:`_RowFinder.bands`)."""
+    if not faint_ids:
+        return []
+    t = rows_of.bands(findings)
+    pad = HALO * frame.unit
+    hl, hw = t["half_l"] + pad, t["half_w"] + pad
+    reach = hl + hw
+    near = ((t["cx"] + reach >= frame.vx0) & (t["cx"] - reach <= frame.vx1)
+            & (t["cy"] + reach >= frame.vy0) & (t["cy"] - reach <= frame.vy1))
+    wanted = np.array([f.id in faint_ids for f in findings], bool)
+    sel = np.flatnonzero(near & wanted[t["owner"]]) if near.size else near
+    if not sel.size:
+        return []
+    ux, uy = t["ux"][sel, None], t["uy"][sel, None]
+    sl, sw = np.array([1, 1, -1, -1]), np.array([1, -1, -1, 1])
+    xs = t["cx"][sel, None] + ux * hl[sel, None] * sl - uy * hw[sel, None] * sw
+    ys = t["cy"][sel, None] + uy * hl[sel, None] * sl + ux * hw[sel, None] * sw
+    by_look: dict[str, list[int]] = {}
+    for i, o in enumerate(t["owner"][sel].tolist()):
+        f = findings[o]
+        by_look.setdefault(_stretch_style(f, frame, True, f.id in waived)[0], []).append(i)
+    out = ['<g data-role="others">']
+    for look, members in by_look.items():
+        # the faint bands of one look as one outline (overlapping bands merge), to a quarter pixel
+        shape = shapely.union_all(shapely.polygons(np.stack([xs[members], ys[members]], axis=-1)))
+        d = _polygon_path(shapely.simplify(shape, REGION_TOLERANCE_PX * frame.px(), preserve_topology=False),
+                          frame.per_mm)
+        if d:
+            out.append(f'<path d="{d}" fill-rule="evenodd" {look} data-role="stretch"/>')
+    out.append("</g>")
+    return out
+
+
+def _stretches_merged(analysis, findings: list[Finding], rows_of, frame: _Frame, waived) -> list[str]:
+    """The stretches of many findings (a clustered overview), one path per
+    look (severity, waived) instead of one group per finding: the same
+    picture in a fraction of the bytes."""
+    bands: dict[tuple[str, str], list[np.ndarray]] = {}
+    extents: dict[tuple[str, str], list[str]] = {}
+    pad = HALO * frame.unit
+    for f in findings:
+        rows = rows_of(f)
+        key = _stretch_style(f, frame, False, f.id in waived)
+        if rows.size:
+            xs, ys, _ = _row_quads(analysis, rows, pad)
+            bands.setdefault(key, []).append(np.stack([xs, ys], axis=-1))
+        _, box = _stretch_shapes(analysis, f, rows, frame, False)
+        if box is not None:
+            x0, y0, x1, y1 = box
+            extents.setdefault(key, []).append(f"M{_f(x0)} {_f(y0)}H{_f(x1)}V{_f(y1)}H{_f(x0)}Z")
+    out = [f'<g data-role="stretches" data-findings="{len(findings)}">']
+    for key, quads in bands.items():
+        # the bands of one look as one outline: overlapping bands merge, and the outline is kept to a
+        # quarter of a pixel (Douglas-Peucker), as pours are (31 000 bands of a 3 000-finding board: 1.3 MB
+        # of quadrilaterals, 0.3 MB as an outline)
+        shape = shapely.union_all(shapely.polygons(np.concatenate(quads)))
+        d = _polygon_path(shapely.simplify(shape, REGION_TOLERANCE_PX * frame.px(), preserve_topology=False),
+                          frame.per_mm)
+        if d:
+            out.append(f'<path d="{d}" fill-rule="evenodd" {key[0]} data-role="stretch"/>')
+    out += [f'<path d="{"".join(ds)}" {key[1]} data-role="extent"/>' for key, ds in extents.items()]
+    out.append("</g>")
+    return out
 
 
 def _dash(severity: str, waived: bool, frame: _Frame) -> str:
@@ -776,9 +1107,13 @@ class _Placer:
                         return False
         return True
 
-    def place(self, at: tuple[float, float]) -> tuple[float, float]:
+    def place(self, at: tuple[float, float], first_free: bool = False) -> tuple[float, float]:
+        """A free place near ``at``; ``first_free``: ``at`` itself when free
+        (a cluster marker sits on its findings)."""
         fr = self.frame
         ax, ay = at
+        if first_free and self._free(ax, ay) and fr.vx0 <= ax <= fr.vx1 and fr.vy0 <= ay <= fr.vy1:
+            return self._take(ax, ay)
         lo_x, hi_x = fr.vx0 + self.r * 1.2, fr.vx1 - self.r * 1.2
         lo_y, hi_y = fr.vy0 + self.r * 1.2, fr.vy1 - self.r * 1.2
         first = None
@@ -798,15 +1133,21 @@ class _Placer:
                      min(max(ay, lo_y), hi_y) if lo_y <= hi_y else ay)
         return self._take(*first)
 
+    def block(self, x: float, y: float) -> None:
+        """Keep callouts off (x, y) (a label sits there)."""
+        self._take(x, y)
+
     def _take(self, x: float, y: float) -> tuple[float, float]:
         key = (int(math.floor(x / self.cell)), int(math.floor(y / self.cell)))
         self.grid.setdefault(key, []).append((x, y))
         return x, y
 
 
-def _marker(kind: str, waived: bool, cx: float, cy: float, r: float, frame: _Frame) -> list[str]:
+def _marker(kind: str, waived: bool, cx: float, cy: float, r: float, frame: _Frame,
+            double: bool = False) -> list[str]:
     """A marker shape at SVG coordinates (cx, cy): circle for errors, square
-    for warnings; waived: white with a dotted outline and a strike."""
+    for warnings; waived: white with a dotted outline and a strike;
+    ``double``: a second outline around it (a cluster of findings)."""
     colour = SEVERITY_COLOURS.get(kind, OKABE_ITO["vermillion"])
     fill = BACKGROUND if waived else colour
     stroke = WAIVED_COLOUR if waived else OKABE_ITO["black"]
@@ -821,6 +1162,12 @@ def _marker(kind: str, waived: bool, cx: float, cy: float, r: float, frame: _Fra
         shape = (f'<circle cx="{_f(cx)}" cy="{_f(cy)}" r="{_f(r)}" fill="{fill}" stroke="{stroke}" '
                  f'stroke-width="{sw}"{dash}/>')
     out = [shape]
+    if double:  # the same outline again, a stroke's gap outside: told apart from a lone finding in grey print
+        g = r + frame.stroke(3.0)
+        out.append(f'<rect x="{_f(cx - g * 0.9)}" y="{_f(cy - g * 0.9)}" width="{_f(1.8 * g)}" height="{_f(1.8 * g)}" '
+                   f'fill="none" stroke="{stroke}" stroke-width="{sw}"{dash}/>' if kind == "warning" else
+                   f'<circle cx="{_f(cx)}" cy="{_f(cy)}" r="{_f(g)}" fill="none" stroke="{stroke}" '
+                   f'stroke-width="{sw}"{dash}/>')
     if waived:
         k = r * 0.75
         out.append(f'<line x1="{_f(cx - k)}" y1="{_f(cy + k)}" x2="{_f(cx + k)}" y2="{_f(cy - k)}" '
@@ -864,6 +1211,71 @@ def _callout(f: Finding, number: int, frame: _Frame, place: tuple[float, float],
 
 
 # --------------------------------------------------------------------------
+# clusters
+
+
+@dataclass
+class _Cluster:
+    """Findings whose spots share a cell; ``members`` worst first, ``at``
+    the mean of their spots (board mm)."""
+
+    members: list[Finding]
+    at: tuple[float, float]
+
+
+def _clusters(callouts: list[Finding], frame: _Frame) -> tuple[list[Finding], list[_Cluster]]:
+    """Split the callouts (worst first) into lone findings and clusters:
+    findings whose worst spots fall in one square cell of
+    :data:`CLUSTER_CELL` text heights (a grid anchored at the framed
+    area's corner, so the split is deterministic). Both lists keep the
+    order of their worst member."""
+    cell = CLUSTER_CELL * frame.unit
+    cells: dict[tuple[int, int], list[Finding]] = {}
+    for f in callouts:
+        key = (int(math.floor((f.at[0] - frame.vx0) / cell)), int(math.floor((f.at[1] - frame.vy0) / cell)))
+        cells.setdefault(key, []).append(f)
+    singles = [m[0] for m in cells.values() if len(m) == 1]
+    clusters = [_Cluster(m, (sum(f.at[0] for f in m) / len(m), sum(f.at[1] for f in m) / len(m)))
+                for m in cells.values() if len(m) > 1]
+    return singles, clusters
+
+
+def _cluster_marker(c: _Cluster, i: int, numbers: dict[str, int], waived, frame: _Frame,
+                    place: tuple[float, float], r: float) -> list[str]:
+    """A cluster: a marker of the worst unwaived severity among its
+    findings (all waived: the waived marker), a little larger than a
+    callout, with the count in it; a leader when it had to move off its
+    spot; the hover title lists the findings by number."""
+    unwaived = [f for f in c.members if f.id not in waived]
+    worst = unwaived[0].severity if unwaived else c.members[0].severity
+    all_waived = not unwaived
+    n = len(c.members)
+    big = r * (1.2 + 0.15 * math.log10(n))
+    ax, ay = c.at
+    bx, by = place
+    sax, say, sbx, sby = ax, frame.sy(ay), bx, frame.sy(by)
+    errors = sum(1 for f in c.members if f.severity == "error")
+    listed = ", ".join(str(numbers[f.id]) for f in c.members[:40]) + (", ..." if n > 40 else "")
+    first = c.members[0]
+    tip = (f"{n} findings here ({errors} error, {n - errors} warning, {n - len(unwaived)} waived); worst: "
+           f"{numbers[first.id]}. {first.rule}: {first.aggressor} -> {first.victim}\nnumbers: {listed}")
+    label = str(n)
+    size = frame.unit * (1.0 if len(label) <= 2 else 2.1 / len(label))
+    out = [f'<g id="c-{i}" data-role="cluster" data-count="{n}" data-severity={_attr(worst)}'
+           f' data-findings="{" ".join(_id(f.id) for f in c.members)}">', f"<title>{_text(tip)}</title>"]
+    if (sax, say) != (sbx, sby):
+        dist = math.hypot(sbx - sax, sby - say)
+        ex, ey = sbx - (sbx - sax) / dist * big, sby - (sby - say) / dist * big
+        out.append(f'<line x1="{_f(sax)}" y1="{_f(say)}" x2="{_f(ex)}" y2="{_f(ey)}" stroke="{OKABE_ITO["black"]}" '
+                   f'stroke-width="{_f(frame.stroke(0.9))}"/>')
+    out.extend(_marker(worst, all_waived, sbx, sby, big, frame, double=True))
+    out.append(f'<text x="{_f(sbx)}" y="{_f(sby + size * 0.36)}" font-size="{_f(size)}" font-weight="bold" '
+               f'text-anchor="middle" fill="{_number_colour(worst, all_waived)}">{label}</text>')
+    out.append("</g>")
+    return out
+
+
+# --------------------------------------------------------------------------
 # legend band
 
 
@@ -886,7 +1298,7 @@ class _Legend:
     the layout does not depend on fonts installed."""
 
     def __init__(self, frame: _Frame, board: Board, drawn: list[int], callouts: list[Finding], waived,
-                 context_kinds: tuple[str, ...] = ()) -> None:
+                 context_kinds: tuple[str, ...] = (), clustered: bool = False, compact: bool = False) -> None:
         self.frame = frame
         u = frame.unit
         self.u = u
@@ -896,22 +1308,26 @@ class _Legend:
         n_waived = sum(1 for f in callouts if f.id in waived)
         name = board.name if len(board.name) <= 80 else board.name[:79] + "\u2026"
         self.rows: list[list[tuple[str, object]]] = []
-        self.rows.append([("title", name),
-                          ("text", f"findings marked: {len(callouts)} ({errors} error, {warnings} warning; "
-                                   f"{n_waived} of them waived)")])
-        layer_items: list[tuple[str, object]] = [("text", "layers (top first):")]
+        if not compact:
+            self.rows.append([("title", name),
+                              ("text", f"findings marked: {len(callouts)} ({errors} error, {warnings} warning; "
+                                       f"{n_waived} of them waived)")])
+        layer_items: list[tuple[str, object]] = [] if compact else [("text", "layers (top first):")]
         for k in drawn:
             layer = board.stackup.layers[k]
             layer_items.append(("layer", (LAYER_COLOURS[k % len(LAYER_COLOURS)], layer.name, layer.role)))
         self.rows.append(layer_items)
-        self.rows.append([("marker", ("error", False, "error")), ("marker", ("warning", False, "warning")),
-                          ("marker", ("error", True, "waived")), ("band", "coupled stretch"),
-                          ("extent", "finding extent")])
+        if not compact:
+            self.rows.append([("marker", ("error", False, "error")), ("marker", ("warning", False, "warning")),
+                              ("marker", ("error", True, "waived")), ("band", "coupled stretch"),
+                              ("extent", "finding extent")])
+        if clustered:
+            self.rows.append([("cluster", "findings close together: how many (shape: the worst)")])
         if context_kinds:
             self.rows.append([("context", (k, CONTEXT_LABELS[k])) for k in context_kinds])
         bar = _nice_length(0.25 * (frame.x1 - frame.x0))
         self.bar = bar
-        self.rows.append([("scale", bar), ("text", "view from top, y up")])
+        self.rows.append([("scale", bar)] if compact else [("scale", bar), ("text", "view from top, y up")])
         self._layout()
 
     def _width(self, kind: str, value) -> float:
@@ -928,6 +1344,8 @@ class _Legend:
             return 2.2 * u + len(str(value[2] if kind == "marker" else value)) * em + u
         if kind == "context":
             return 2.2 * u + len(str(value[1])) * em + u
+        if kind == "cluster":
+            return 2.6 * u + len(str(value)) * em + u
         if kind == "scale":
             return self.bar + len(_len_label(self.bar)) * em + 1.5 * u
         raise AssertionError(kind)
@@ -991,6 +1409,11 @@ class _Legend:
                            f'stroke-width="{_f(fr.stroke(0.6))}" '
                            f'stroke-dasharray="{_f(u * 0.3)} {_f(u * 0.2)}"/>')
                 out.append(f'<text x="{_f(x + 2.2 * u)}" y="{base}" font-size="{fs}">{_text(str(value))}</text>')
+            elif kind == "cluster":
+                out.extend(_marker("error", False, x + 1.1 * u, mid, 0.6 * u, fr, double=True))
+                out.append(f'<text x="{_f(x + 1.1 * u)}" y="{_f(mid + 0.25 * u)}" font-size="{_f(0.7 * u)}" '
+                           f'font-weight="bold" text-anchor="middle" fill="{BACKGROUND}">12</text>')
+                out.append(f'<text x="{_f(x + 2.6 * u)}" y="{base}" font-size="{fs}">{_text(str(value))}</text>')
             elif kind == "context":
                 what, label = value  # type: ignore[misc]
                 out.extend(_context_swatch(what, x + 0.1 * u, mid, u, fr))
