@@ -296,8 +296,10 @@ def test_y_flip_in_the_rendered_image(tmp_path):
     _, _, w, h = viewbox(root)
     png = image.open(io.BytesIO(cairosvg.svg2png(bytestring=text.encode()))).convert("RGB")
     px = np.asarray(png, dtype=np.int32)
-    blueish = (px[:, :, 2] - px[:, :, 0] > 60)  # TOP is Okabe-Ito blue, the only blue thing drawn
-    rows = np.flatnonzero(blueish.any(axis=1))
+    # TOP's colour at copper opacity over white: the only thing drawn in it
+    top = np.array([int(svg.LAYER_COLOURS[0][i:i + 2], 16) for i in (1, 3, 5)])
+    expected = svg.COPPER_OPACITY * top + (1 - svg.COPPER_OPACITY) * 255
+    rows = np.flatnonzero((np.abs(px - expected).max(axis=2) < 12).any(axis=1))
     assert rows.size
     # the board drawing is the top (vh / (vh + band)) of the picture; the trace is in its upper fifth
     drawing_rows = png.height * (10 + 2 * (10 * svg.TEXT_PX / 960 * svg.MARGIN)) / h
@@ -579,19 +581,24 @@ def test_docs_give_the_colours_the_code_uses():
     from pathlib import Path
 
     doc = (Path(__file__).resolve().parents[1] / "docs" / "overlay.md").read_text(encoding="utf-8")
-    layer_rows = re.findall(r"^\| (\d)\w\w(?: \(top\))?, .*? \| [\w ]+ \| `(#[0-9A-F]{6})` \|$", doc, flags=re.M)
-    assert [hex_ for _, hex_ in layer_rows] == list(svg.LAYER_COLOURS)
+    layer_rows = re.findall(r"^\| (\d)\w\w(?: \(top\))?, .*? \| ([\w ]+) \((Tol|Okabe–Ito)\) \| `(#[0-9A-F]{6})` \|$",
+                            doc, flags=re.M)
+    assert [hex_ for *_, hex_ in layer_rows] == list(svg.LAYER_COLOURS)
+    for _, name, palette, hex_ in layer_rows:  # each named as its palette names it
+        assert (svg.TOL_MUTED if palette == "Tol" else svg.OKABE_ITO)[name] == hex_
     for severity, colour in svg.SEVERITY_COLOURS.items():
         assert re.search(rf"^\| {severity} \| [\w ]+ \| `{colour}` \|$", doc, flags=re.M), severity
     assert re.search(rf"^\| waived .*`{svg.WAIVED_COLOUR}` \|$", doc, flags=re.M)
-    for name, colour in svg.OKABE_ITO.items():
-        if colour in svg.LAYER_COLOURS:
-            assert f"| {name} | `{colour}` |" in doc
 
 
-def test_palette_is_okabe_ito():
-    assert set(svg.LAYER_COLOURS) | set(svg.SEVERITY_COLOURS.values()) <= set(svg.OKABE_ITO.values())
+def test_palettes_are_the_published_ones():
+    assert set(svg.LAYER_COLOURS) <= set(svg.OKABE_ITO.values()) | set(svg.TOL_MUTED.values())
+    assert set(svg.SEVERITY_COLOURS.values()) <= set(svg.OKABE_ITO.values())
     assert not set(svg.LAYER_COLOURS) & set(svg.SEVERITY_COLOURS.values())
+    # Tol's muted scheme (SRON/EPS/TN/09-002, issue 3.2; quoted from memory)
+    assert svg.TOL_MUTED == {
+        "indigo": "#332288", "cyan": "#88CCEE", "teal": "#44AA99", "green": "#117733", "olive": "#999933",
+        "sand": "#DDCC77", "rose": "#CC6677", "wine": "#882255", "purple": "#AA4499"}
     # the published sRGB values (Okabe and Ito 2008; Wong 2011)
     assert svg.OKABE_ITO == {
         "black": "#000000", "orange": "#E69F00", "sky blue": "#56B4E9", "bluish green": "#009E73",

@@ -60,17 +60,35 @@ OKABE_ITO: dict[str, str] = {
     "reddish purple": "#CC79A7",
 }
 
+#: Paul Tol's "muted" qualitative scheme (name -> sRGB hex), designed to stay
+#: distinct for colour-blind readers: P. Tol, "Colour Schemes", SRON technical
+#: note SRON/EPS/TN/09-002 (issue 3.2, 2021), https://personal.sron.nl/~pault/
+#: (hex values as published there; quoted from memory, checked by the test below).
+TOL_MUTED: dict[str, str] = {
+    "indigo": "#332288", "cyan": "#88CCEE", "teal": "#44AA99", "green": "#117733", "olive": "#999933",
+    "sand": "#DDCC77", "rose": "#CC6677", "wine": "#882255", "purple": "#AA4499",
+}
+
 #: Copper layer colours by stackup position (top = first), cycling on boards
-#: with more copper layers. Orange and vermillion are kept for severities.
-LAYER_COLOURS: tuple[str, ...] = tuple(OKABE_ITO[n] for n in (
-    "blue", "reddish purple", "bluish green", "sky blue", "yellow", "black"))
+#: with more copper layers: chosen from the two palettes above so that any two
+#: layers up to two apart in the cycle differ by a CIEDE2000 of at least 15
+#: (15.2 measured) for normal vision and the three dichromacies (Machado et al. 2009
+#: simulation) drawn at :data:`COPPER_OPACITY` on white, neighbours also in
+#: lightness (at least 13 L*, so a grey print tells them apart), every one
+#: dark enough to see as a thin line (L* at most 88), none near a severity
+#: colour; measured with the colour-science library in
+#: tests/test_layer_colours.py. Orange and vermillion are kept for
+#: severities, black for annotations.
+LAYER_COLOURS: tuple[str, ...] = (
+    TOL_MUTED["indigo"], TOL_MUTED["green"], OKABE_ITO["sky blue"], TOL_MUTED["wine"], TOL_MUTED["sand"],
+    OKABE_ITO["reddish purple"])
 
 SEVERITY_COLOURS: dict[str, str] = {"error": OKABE_ITO["vermillion"], "warning": OKABE_ITO["orange"]}
 WAIVED_COLOUR = OKABE_ITO["black"]
 BACKGROUND = "#FFFFFF"
 
 #: Opacity of copper traces, of pours on signal / mixed layers, and of planes.
-COPPER_OPACITY = 0.55
+COPPER_OPACITY = 0.7
 POUR_OPACITY = 0.14
 PLANE_OPACITY = 0.06
 
@@ -690,8 +708,9 @@ CONTEXT_LABELS: dict[str, str] = {
 
 
 def _context_style(what: str, frame: _Frame) -> str:
-    """Fill and stroke attributes of a context shape (black and yellow of
-    the Okabe-Ito palette, told apart by dash pattern as well as colour)."""
+    """Fill and stroke attributes of a context shape (black, white and
+    yellow of the Okabe-Ito palette, told apart by dash pattern and shape
+    as well as colour)."""
     u = frame.unit
     if what == "void":
         return (f'fill="{BACKGROUND}" fill-opacity="0.6" stroke="{OKABE_ITO["black"]}" '
@@ -701,7 +720,8 @@ def _context_style(what: str, frame: _Frame) -> str:
                 f'stroke-width="{_f(frame.stroke(0.8))}" stroke-dasharray="{_f(u * 0.1)} {_f(u * 0.2)}"')
     if what == "stitch":
         return f'fill="{BACKGROUND}" stroke="{OKABE_ITO["black"]}" stroke-width="{_f(frame.stroke(0.8))}"'
-    return f'fill="none" stroke="{OKABE_ITO["bluish green"]}" stroke-width="{_f(frame.stroke(2.0))}"'
+    # black: a green of the palette would read as a layer's copper
+    return f'fill="none" stroke="{OKABE_ITO["black"]}" stroke-width="{_f(frame.stroke(2.0))}"'
 
 
 def _context_swatch(what: str, x: float, mid: float, u: float, frame: _Frame) -> list[str]:
