@@ -31,10 +31,10 @@ TEMPORARY_NAME = re.compile(r"^\..*\.couplint-(\d+)-[A-Za-z0-9_]+\.tmp$", re.DOT
 _LIVE: set[str] = set()
 
 
-def write_atomically(path: str | os.PathLike, emit: Callable[[TextIO], None]) -> None:
+def write_atomically(path: str | os.PathLike, emit: Callable[[TextIO], None], binary: bool = False) -> None:
     """Call ``emit(handle)`` on a temporary file beside ``path``, then rename
     it into place: an interrupted run leaves the old file intact and never a
-    half-written one."""
+    half-written one. ``binary``: the handle takes bytes (a PDF)."""
     target = Path(path)
     directory = target.parent if str(target.parent) else Path(".")
     if not directory.is_dir():
@@ -44,7 +44,7 @@ def write_atomically(path: str | os.PathLike, emit: Callable[[TextIO], None]) ->
     fd, tmp = tempfile.mkstemp(prefix=f".{target.name[:150]}.couplint-{os.getpid()}-", suffix=".tmp", dir=directory)
     _LIVE.add(tmp)
     try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as handle:
+        with (os.fdopen(fd, "wb") if binary else os.fdopen(fd, "w", encoding="utf-8", newline="\n")) as handle:
             emit(handle)
         os.chmod(tmp, _mode_for(target))
         os.replace(tmp, target)

@@ -105,6 +105,9 @@ def _parser() -> argparse.ArgumentParser:
         p.add_argument("--svg-dir", metavar="DIR",
                        help="also write one overlay per layer group with findings into DIR (created if missing)")
         p.add_argument("--html", metavar="FILE", help="also write the self-contained HTML sign-off report")
+        p.add_argument("--pdf", metavar="FILE",
+                       help="also write the sign-off report as PDF, laid out for print (needs the 'pdf' extra: "
+                            "WeasyPrint)")
         # --cards takes what --pairs takes: a whole number, or 'all'
         p.add_argument("--cards", metavar="N|all", type=json_report.parse_pairs, default=html_report.DEFAULT_CARDS,
                        help=f"findings, worst first, that get a card with a close-up in the HTML report "
@@ -270,8 +273,9 @@ def _check(board_paths: list[str], args: argparse.Namespace) -> int:
     from .ruleset import ruleset_named
     from .runner import check_board
 
-    refuse_shared_outputs([("--out", args.out), ("--svg", args.svg), ("--html", args.html), ("--junit", args.junit)])
-    outputs = [p for p in (args.out, args.svg, args.html, args.junit) if p]
+    refuse_shared_outputs([("--out", args.out), ("--svg", args.svg), ("--html", args.html), ("--pdf", args.pdf),
+                           ("--junit", args.junit)])
+    outputs = [p for p in (args.out, args.svg, args.html, args.pdf, args.junit) if p]
     # --rules names a file, or a shipped rule set (--rules default), which is no input file of this run
     rules_file = args.rules if args.rules and os.path.exists(args.rules) else None
     inputs = list(board_paths) + [p for p in (rules_file, args.waivers, args.baseline, getattr(args, "stackup", None),
@@ -355,23 +359,32 @@ def _files_of(paths: list[str]) -> list[str]:
 
 
 def _write_deliverables(result, args: argparse.Namespace, inputs: list[str]) -> None:
-    """The overlay, HTML and JUnit files asked for, each written atomically."""
+    """The overlay, HTML, PDF and JUnit files asked for: every one is made
+    first, then each is written atomically, so a failure (a PDF library
+    missing) leaves no output of this run behind."""
     from .report import html, junit, svg
 
+    files: list[tuple[str | Path, object, bool]] = []  # (path, content, binary)
     if args.svg:
-        picture = svg.render_svg(result) if result.findings else svg.render_svg(result, layers=())
-        write_atomically(args.svg, lambda handle: handle.write(picture))
+        files.append((args.svg, svg.render_svg(result) if result.findings else svg.render_svg(result, layers=()),
+                      False))
     if args.svg_dir:
         folder = Path(args.svg_dir)
-        folder.mkdir(parents=True, exist_ok=True)
-        for group, text in svg.svg_per_layer_group(result).items():
-            write_atomically(folder / f"{group}.svg", lambda handle, text=text: handle.write(text))
-    if args.html:
+        files += [(folder / f"{group}.svg", text, False) for group, text in svg.svg_per_layer_group(result).items()]
+    if args.html or args.pdf:
         page = html.render_html(result, inputs=inputs, cards=getattr(args, "cards", html.DEFAULT_CARDS))
-        write_atomically(args.html, lambda handle: handle.write(page))
+        if args.html:
+            files.append((args.html, page, False))
+        if args.pdf:
+            from .report.pdf import html_to_pdf
+
+            files.append((args.pdf, html_to_pdf(page), True))
     if args.junit:
-        xml = junit.junit_for_result(result)
-        write_atomically(args.junit, lambda handle: handle.write(xml))
+        files.append((args.junit, junit.junit_for_result(result), False))
+    if args.svg_dir:
+        Path(args.svg_dir).mkdir(parents=True, exist_ok=True)
+    for path, content, binary in files:
+        write_atomically(path, lambda handle, content=content: handle.write(content), binary=binary)
 
 
 def _waive(args: argparse.Namespace) -> int:

@@ -632,3 +632,99 @@ def test_pours_are_drawn_to_a_quarter_pixel_with_far_fewer_corners(tmp_path):
     worst = max(drawn_ring.distance(shapely.Point(p)) for p in hole)  # every true corner near the drawn outline
     assert worst <= quarter_px + 1e-3  # + the 1 um rounding of the coordinates written
     assert worst > 0.2 * quarter_px  # the tolerance was used, not a far finer one
+
+
+# --- boards with many findings ----------------------------------------------
+
+
+def crowded_board(tmp_path):
+    """Three patches of 30 short CLK/SENSE pairs each, 0.3 mm apart centre to
+    centre (ratio 2 < 3: every pair a spacing finding), plus five lone pairs
+    far apart, on a 100 mm board: 95 findings."""
+    tracks = []
+    k = 0
+    for px, py in ((15, 15), (50, 80), (85, 30)):
+        for i in range(30):
+            x, y = px + (i % 5) * 0.8, py + (i // 5) * 0.8
+            tracks += [track("TOP", f"CLK{k}", [[x, y], [x + 0.6, y]]),
+                       track("TOP", f"SENSE{k}", [[x, y + 0.3], [x + 0.6, y + 0.3]])]
+            k += 1
+    lone = [(5, 95), (95, 95), (50, 45), (30, 60), (70, 5)]
+    for x, y in lone:
+        tracks += [track("TOP", f"CLK{k}", [[x, y], [x + 2, y]]), track("TOP", f"SENSE{k}", [[x, y + 0.3],
+                                                                                         [x + 2, y + 0.3]])]
+        k += 1
+    b = make_board(tracks, outline=[[0, 0], [100, 0], [100, 100], [0, 100]])
+    rules = SPACING.replace("min_length: 1 mm", "min_length: 0.5 mm")
+    path = tmp_path / "crowded.yaml"
+    path.write_text(rules.format(aggressors="['CLK*']", victims="['SENSE*']"), encoding="utf-8")
+    return check_board(b, load_ruleset(path)), lone
+
+
+def test_a_crowded_overview_clusters_findings_and_numbers_the_lone_ones(tmp_path):
+    result, lone = crowded_board(tmp_path)
+    assert len(result.findings) == 95 > svg.CLUSTER_ABOVE
+    root = parse(render_svg(result))
+    clusters = [g for g in root.iter(NS + "g") if g.get("data-role") == "cluster"]
+    callouts = [g for g in root.iter(NS + "g") if (g.get("id") or "").startswith("f-")]
+    # every finding is told exactly once: in one cluster or as one numbered callout
+    told = [i for g in clusters for i in g.get("data-findings").split()] + [g.get("id")[2:] for g in callouts]
+    assert sorted(told) == sorted(f.id for f in result.findings)
+    assert sum(int(g.get("data-count")) for g in clusters) + len(callouts) == 95
+    # the three patches (each at most four cells of the grid) become a handful of markers, not 90 callouts
+    assert 3 <= len(clusters) <= 12 and sum(int(g.get("data-count")) for g in clusters) == 90
+    # the five lone pairs keep their numbered callouts
+    by_id = {f.id: f for f in result.findings}
+    lone_found = sorted((round(by_id[g.get("id")[2:]].bbox[0]), round(by_id[g.get("id")[2:]].bbox[1]))
+                        for g in callouts)
+    assert lone_found == sorted((x, y) for x, y in lone)
+    # a cluster shows its count and the worst severity among its findings
+    for g in clusters:
+        members = [by_id[i] for i in g.get("data-findings").split()]
+        assert g.find(NS + "text").text == str(len(members))
+        assert g.get("data-severity") == min((f.severity for f in members), key=("error", "warning").index)
+    legend = " ".join(t.text or "" for t in root.iter(NS + "text"))
+    assert "findings close together" in legend
+
+
+def test_a_close_up_never_clusters(tmp_path):
+    result, _ = crowded_board(tmp_path)
+    f = result.findings[0]
+    root = parse(render_svg(result, view=(f.bbox[0] - 3, f.bbox[1] - 3, f.bbox[2] + 3, f.bbox[3] + 3), only=f.id))
+    assert not [g for g in root.iter(NS + "g") if g.get("data-role") == "cluster"]
+    assert [g.get("id") for g in root.iter(NS + "g") if (g.get("id") or "").startswith("f-")] == [f"f-{f.id}"]
+
+
+def test_traces_as_an_image_look_like_the_traces_as_vectors(tmp_path, monkeypatch):
+    """Above the raster threshold the traces become one PNG; rendered, the
+    picture matches the vector one (the same copper in the same place)."""
+    cairosvg = pytest.importorskip("cairosvg")
+    from PIL import Image
+
+    from checker.report import raster
+
+    result, _ = crowded_board(tmp_path)
+    vector = render_svg(result)
+    assert "traces-image" not in vector
+    monkeypatch.setattr(raster, "RASTER_ABOVE", 10)
+    image = render_svg(result)
+    root = parse(image)
+    (img,) = [el for el in root.iter(NS + "image") if el.get("data-role") == "traces-image"]
+    assert img.get("href").startswith("data:image/png;base64,")
+    assert int(img.get("data-pieces")) == len(result.analysis.board.pieces)
+    assert not [g for g in root.iter(NS + "g") if g.get("data-role") == "traces"]
+
+    def pixels(text):
+        png = cairosvg.svg2png(bytestring=text.encode(), output_width=960)
+        return np.asarray(Image.open(io.BytesIO(png)).convert("RGB"), dtype=np.int32)
+
+    a, b = pixels(vector), pixels(image)
+    assert a.shape == b.shape
+    top = np.array([int(svg.LAYER_COLOURS[0][i:i + 2], 16) for i in (1, 3, 5)])
+    ink = lambda px: (np.abs(px - (svg.COPPER_OPACITY * top + (1 - svg.COPPER_OPACITY) * 255)).max(axis=2)  # noqa: E731
+                      < 40)
+    ia, ib = ink(a), ink(b)
+    assert ia.sum() > 200
+    # the copper covers nearly the same pixels (edges differ by antialiasing)
+    assert (ia & ib).sum() / (ia | ib).sum() > 0.6
+    assert np.abs(a - b).mean() < 3.0

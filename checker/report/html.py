@@ -545,11 +545,17 @@ def _group_name(a, group: tuple[int, int, int]) -> str:
 BAR_W = 160
 
 
+#: bar fills, also given as attributes: a renderer that does not style inline SVG from the page's
+#: stylesheet (the PDF's) must not fall back to black
+BAR_FILL = {"track": "#f3f5f8", "noise": "#33617d", "c12": "#8c7a4a"}
+
+
 def _bar(fraction: float, css: str, label: str) -> str:
     width = max(0.0, min(1.0, fraction)) * BAR_W
     return (f'<svg class="bar" viewBox="0 0 {BAR_W} 10" width="{BAR_W}" height="10" role="img" '
-            f'aria-label="{_e(label)}"><rect class="track" x="0" y="0" width="{BAR_W}" height="10"/>'
-            f'<rect class="{css}" x="0" y="0" width="{width:.2f}" height="10"/></svg>')
+            f'aria-label="{_e(label)}"><rect class="track" x="0" y="0" width="{BAR_W}" height="10" '
+            f'fill="{BAR_FILL["track"]}"/><rect class="{css}" x="0" y="0" width="{width:.2f}" height="10" '
+            f'fill="{BAR_FILL.get(css, "#000")}"/></svg>')
 
 
 def _victims(result: Result) -> str:
