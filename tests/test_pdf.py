@@ -97,3 +97,42 @@ def test_without_the_pdf_library_one_line_and_no_output_at_all(tmp_path, capsys,
     assert "--pdf needs WeasyPrint" in err and "couplint[pdf]" in err and "Traceback" not in err
     assert not html.exists() and not pdf.exists() and not svg.exists()  # nothing of the run is written
     assert list(tmp_path.iterdir()) == []
+
+
+def test_a_large_boards_traces_image_reaches_the_pdf(tmp_path, monkeypatch, caplog):
+    """The overview of a large board embeds its traces as a data: PNG; the
+    PDF's fetcher serves exactly those, so the pictures are drawn (the
+    layout library logs an error and leaves a blank where a picture fails)."""
+    import logging
+
+    from test_svg import crowded_board
+
+    from checker.report import raster
+    from checker.report.html import render_html
+    from checker.report.pdf import html_to_pdf
+    from checker.review import build_review
+
+    monkeypatch.setattr(raster, "RASTER_ABOVE", 10)  # the small board's traces become an image
+    result, _ = crowded_board(tmp_path)
+    result.review = build_review(result.findings, None, None)
+    page = render_html(result, inputs=[], cards=2)
+    assert page.count('data-role="traces-image"') >= 1
+    with caplog.at_level(logging.WARNING, logger="weasyprint"):
+        pdf = html_to_pdf(page)
+    assert not [r for r in caplog.records if r.levelno >= logging.ERROR], [r.getMessage() for r in caplog.records]
+    path = tmp_path / "crowded.pdf"
+    path.write_bytes(pdf)
+    texts = page_texts(path)
+    overlay = next(i for i, t in enumerate(texts) if "view from top" in t)
+    doc = pdfium.PdfDocument(str(path))
+    try:
+        image = doc[overlay].render(scale=1.5).to_pil().convert("RGB")
+    finally:
+        doc.close()
+    image.save(ARTIFACTS / "crowded-overview-pdf.png")
+    px = np.asarray(image).reshape(-1, 3).astype(int)
+    from checker.report import svg
+
+    top = np.array([int(svg.LAYER_COLOURS[0][i:i + 2], 16) for i in (1, 3, 5)])  # TOP's colour over white
+    near = np.abs(px - (svg.COPPER_OPACITY * top + (1 - svg.COPPER_OPACITY) * 255)).max(axis=1) < 40
+    assert near.sum() > 50  # the copper of the image is on the page
