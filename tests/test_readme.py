@@ -119,5 +119,6 @@ def test_every_command_of_the_use_section_runs(tmp_path, monkeypatch, capsys):
         err = capsys.readouterr().err
         assert code in (0, 1), f"{command}: exit {code}: {err.strip()[-300:]}"
     assert Path("report.json").is_file() and Path("signoff.html").is_file() and Path("overlay.svg").is_file()
+    assert Path("signoff.pdf").read_bytes().startswith(b"%PDF-")
     assert "5812f4f0d134" in Path("waivers.yaml").read_text(encoding="utf-8")
     assert Path("couplint-rules.yaml").is_file() and Path("reports").is_dir()

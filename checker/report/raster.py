@@ -32,6 +32,11 @@ RASTER_SCALE = 2
 PALETTE_COLOURS = 64
 
 
+def _table(opacity: float) -> list[int]:
+    """A point table turning a painted mask (0 or not) into that alpha."""
+    return [0] + [int(round(255 * opacity))] * 255
+
+
 def _rgb(hex_colour: str) -> tuple[int, int, int]:
     h = hex_colour.lstrip("#")
     return int(h[0:2], 16), int(h[2:4], 16), int(h[4:6], 16)
@@ -51,7 +56,6 @@ def traces_png(pieces, layers_bottom_first: list[tuple[np.ndarray, str]], box: t
     width = max(1, int(math.ceil((x1 - x0) * px_per_mm)))
     height = max(1, int(math.ceil((y1 - y0) * px_per_mm)))
     canvas = Image.new("RGBA", (width, height), (255, 255, 255, 0))
-    level = int(round(255 * opacity))
     for on, colour in layers_bottom_first:
         if not on.size:
             continue
@@ -71,7 +75,7 @@ def traces_png(pieces, layers_bottom_first: list[tuple[np.ndarray, str]], box: t
             ellipse((ax[i] - r, ay[i] - r, ax[i] + r, ay[i] + r), fill=255)
             ellipse((bx[i] - r, by[i] - r, bx[i] + r, by[i] + r), fill=255)
         layer = Image.new("RGBA", (width, height), (*_rgb(colour), 0))
-        layer.putalpha(paint.point(lambda v: level if v else 0))
+        layer.putalpha(paint.point(_table(opacity)))
         canvas.alpha_composite(layer)
     small = canvas.quantize(colors=PALETTE_COLOURS, method=Image.Quantize.FASTOCTREE, dither=Image.Dither.NONE)
     out = io.BytesIO()
@@ -82,3 +86,44 @@ def traces_png(pieces, layers_bottom_first: list[tuple[np.ndarray, str]], box: t
 def data_uri(png: bytes) -> str:
     """``data:image/png;base64,...``: the picture stays one self-contained file."""
     return "data:image/png;base64," + base64.b64encode(png).decode("ascii")
+
+
+def bands_png(looks: list[tuple[np.ndarray, str, float, float]], box: tuple[float, float, float, float],
+              px_per_mm: float, outline_px: float) -> tuple[bytes, int, int]:
+    """Paint filled quadrilaterals (the coupled stretches of a crowded
+    overview) as a PNG of ``box`` (mm, y up), ``px_per_mm`` pixels per mm.
+    ``looks``: (corners of shape (n, 4, 2) in mm, colour, fill opacity,
+    outline opacity), painted in order, each look on its own layer so its
+    bands do not darken where they overlap (as one merged vector outline
+    would look). Every band is at least one pixel across. Returns (PNG
+    bytes, width, height)."""
+    from PIL import Image, ImageDraw
+
+    x0, y0, x1, y1 = box
+    width = max(1, int(math.ceil((x1 - x0) * px_per_mm)))
+    height = max(1, int(math.ceil((y1 - y0) * px_per_mm)))
+    canvas = Image.new("RGBA", (width, height), (255, 255, 255, 0))
+    line_w = max(1, int(round(outline_px)))
+    for quads, colour, fill_alpha, line_alpha in looks:
+        if not len(quads):
+            continue
+        fill = Image.new("L", (width, height), 0)
+        edge = Image.new("L", (width, height), 0)
+        draw_fill, draw_edge = ImageDraw.Draw(fill), ImageDraw.Draw(edge)
+        px = (quads[:, :, 0] - x0) * px_per_mm
+        py = (y1 - quads[:, :, 1]) * px_per_mm
+        for xs, ys in zip(px.tolist(), py.tolist()):
+            corners = list(zip(xs, ys))
+            draw_fill.polygon(corners, fill=255)
+            draw_edge.line(corners + corners[:1], fill=255, width=line_w)
+        rgb = _rgb(colour)
+        fill_layer = Image.new("RGBA", (width, height), (*rgb, 0))
+        fill_layer.putalpha(fill.point(_table(fill_alpha)))
+        edge_layer = Image.new("RGBA", (width, height), (*rgb, 0))
+        edge_layer.putalpha(edge.point(_table(line_alpha)))
+        canvas.alpha_composite(fill_layer)
+        canvas.alpha_composite(edge_layer)
+    small = canvas.quantize(colors=PALETTE_COLOURS, method=Image.Quantize.FASTOCTREE, dither=Image.Dither.NONE)
+    out = io.BytesIO()
+    small.save(out, format="PNG", compress_level=6)
+    return out.getvalue(), width, height

@@ -25,12 +25,18 @@ Severity is never told by colour alone: errors are round markers with solid
 outlines, warnings square markers with dashed outlines, waived findings
 white markers with a dotted outline and a strike.
 
-Output is deterministic: coordinates are rounded to 1 um and printed with a
+Output is deterministic: coordinates are rounded to 1 um (copper and
+stretches to 10 um where a pixel is at least 40 um) and printed with a
 fixed format, elements come in a fixed order, and ids derive from finding ids
 (``f-<id>`` for a callout, ``s-<id>`` for its coupled stretch). Every piece
 of text from the input is escaped; the output has no scripts, no event
 attributes, no external references and no XML declaration (so it can be
-inlined into HTML as is).
+inlined into HTML as is); the one embedded image, a large board's traces,
+is a ``data:`` PNG (:mod:`.raster`).
+
+A picture with more than :data:`CLUSTER_ABOVE` callouts groups findings
+close together into cluster markers; a close-up of one finding names its
+two nets on the copper and draws vias and the nets' pads.
 """
 
 from __future__ import annotations
@@ -119,6 +125,9 @@ PAD_MAX_MM2 = 4.0
 #: A finding with more bands than this in the picture has them drawn as one
 #: merged outline (filled even-odd) instead of one quadrilateral each
 MERGE_BANDS_ABOVE = 12
+#: A clustered overview merges up to this many bands into vector outlines;
+#: more are painted as an image (merging 35 000 overlapping bands: 5 s)
+MERGED_VECTOR_BANDS = 3000
 
 #: more callouts than this in one picture: findings whose spots share a
 #: cell of :data:`CLUSTER_CELL` text heights are drawn as one cluster marker
@@ -186,36 +195,31 @@ def render_svg(result, *, layers: tuple[str, ...] | None = None,
     analysis = result.analysis
     board: Board = analysis.board
     findings: list[Finding] = list(result.findings)
-    numbers = finding_number(result)
+    if reuse is not None and reuse.get("analysis") is analysis and reuse.get("findings") == len(findings):
+        rows_of = reuse["rows"]
+    else:
+        rows_of = _RowFinder(analysis, findings, finding_number(result))
+        if reuse is not None:
+            reuse.update(analysis=analysis, rows=rows_of, findings=len(findings))
+    numbers = rows_of.numbers
     waived = getattr(getattr(result, "review", None), "waived", {}) or {}
     if isinstance(width_px, bool) or not isinstance(width_px, int) or width_px < 16:
         raise ValueError(f"width_px must be an integer >= 16, got {width_px!r}")
     if only is not None and only not in numbers:
         raise ValueError(f"only: no finding with id {only!r} among the {len(numbers)} findings")
-    drawn = _drawn_layers(board, findings, layers)
-    drawn_names = {board.stackup.layers[k].name for k in drawn}
+    drawn = _drawn_layers(board, findings, layers, rows_of.named_bits)
     frame = _Frame.make(board, view, width_px)
 
-    # which findings are marked, and how
-    shown: list[Finding] = []
-    seen: set[str] = set()
-    for f in findings:
-        if f.id in seen:
-            continue  # a duplicate id is drawn once (ids must be unique in the document)
-        if f.id != only and not set(f.layers) <= drawn_names:
-            continue  # part of its coupling is on a layer not drawn
-        if not frame.meets(f.bbox):
-            continue
-        seen.add(f.id)
-        shown.append(f)
+    # which findings are marked, and how: all their layers drawn (else part of their coupling is on a
+    # layer not drawn; the finding called out is always drawn), their extent meeting the framed area,
+    # a duplicate id once (ids must be unique in the document)
+    drawn_bits = sum(1 << k for k in drawn)
+    b = rows_of.boxes
+    keep = (((rows_of.layer_bits & ~drawn_bits) == 0) | rows_of.is_id(only)) & ~rows_of.duplicate
+    if len(findings):
+        keep &= ~((b[:, 2] < frame.vx0) | (b[:, 0] > frame.vx1) | (b[:, 3] < frame.vy0) | (b[:, 1] > frame.vy1))
+    shown: list[Finding] = [findings[i] for i in np.flatnonzero(keep).tolist()]
     callouts = [f for f in shown if only is None or f.id == only]
-
-    if reuse is not None and reuse.get("analysis") is analysis:
-        rows_of = reuse["rows"]
-    else:
-        rows_of = _RowFinder(analysis)
-        if reuse is not None:
-            reuse.update(analysis=analysis, rows=rows_of)
     # what explains the findings called out (a close-up explains its own finding, not the faint others)
     context, context_kinds = _context(analysis, callouts, frame, rows_of)
     legend = _Legend(frame, board, drawn, callouts, waived, context_kinds,
@@ -235,11 +239,14 @@ def render_svg(result, *, layers: tuple[str, ...] | None = None,
     out.append(f'<g transform="matrix(1 0 0 -1 0 {_f(frame.flip)})">')
     # pours and planes, then the marked stretches (as a halo under the
     # traces, faint ones first), then the traces, upper layers last
-    out.extend(_regions(board, drawn, frame, _nets_of(board, target)))
+    out.extend(_regions(board, drawn, frame, _nets_of(rows_of.net, target)))
     out.extend(context)
     clustered = only is None and len(callouts) > CLUSTER_ABOVE
     if clustered:  # thousands of findings: their stretches merged by look, not one group each
-        out.extend(_stretches_merged(analysis, shown, rows_of, frame, waived))
+        inside, outside = _stretches_merged(analysis, shown, rows_of, frame, waived)
+        out.extend(inside)
+        if outside:  # painted bands, in SVG coordinates, under the traces
+            out += ["</g>", *outside, f'<g transform="matrix(1 0 0 -1 0 {_f(frame.flip)})">']
     elif only is not None:  # a close-up: the other findings' bands faintly, then the finding's own
         out.extend(_faint_bands(findings, {f.id for f in shown if f.id != only}, rows_of, frame, waived))
         target = next(f for f in shown if f.id == only)
@@ -262,7 +269,7 @@ def render_svg(result, *, layers: tuple[str, ...] | None = None,
     out.append("</g>")
     placer = _Placer(frame)
     if target is not None:
-        labels, spots = _net_labels(board, target, per_layer, frame)
+        labels, spots = _net_labels(board, target, per_layer, frame, rows_of.net)
         out.extend(labels)
         for x, y, half in spots:  # the callout keeps clear of the labels
             for k in range(-int(half / placer.cell), int(half / placer.cell) + 1):
@@ -437,8 +444,9 @@ class _Frame:
 # copper
 
 
-def _drawn_layers(board: Board, findings: list[Finding], layers) -> list[int]:
-    """Stackup indices of the layers to draw, top first."""
+def _drawn_layers(board: Board, findings: list[Finding], layers, named_bits: int | None = None) -> list[int]:
+    """Stackup indices of the layers to draw, top first. ``named_bits``:
+    the layers the findings name, one bit per stackup index, if known."""
     names = board.stackup.names
     if layers is not None:
         if isinstance(layers, str):
@@ -448,18 +456,21 @@ def _drawn_layers(board: Board, findings: list[Finding], layers) -> list[int]:
             raise ValueError(f"layers: unknown copper layer {unknown[0]!r}; layers: {', '.join(names)}")
         wanted = set(layers)
     else:
-        wanted = {n for f in findings for n in f.layers if n in names}
+        if named_bits is not None:
+            wanted = {n for k, n in enumerate(names) if named_bits >> k & 1}
+        else:
+            wanted = {n for f in findings for n in f.layers if n in names}
         if not wanted:
             with_copper = set(np.unique(board.pieces.layer).tolist()) | {r.layer for r in board.regions}
             wanted = {names[k] for k in with_copper if 0 <= k < len(names)}
     return [k for k, n in enumerate(names) if n in wanted]
 
 
-def _nets_of(board: Board, f: Finding | None) -> set[int]:
-    """Net indices of a finding's aggressor and victim (none for ``None``)."""
+def _nets_of(index: dict[str, int], f: Finding | None) -> set[int]:
+    """Net indices of a finding's aggressor and victim (none for ``None``);
+    ``index``: net name -> index."""
     if f is None:
         return set()
-    index = board.net_index()
     return {index[n] for n in (f.aggressor, f.victim) if n in index}
 
 
@@ -593,8 +604,8 @@ def _vias(board: Board, drawn: list[int], frame: _Frame) -> list[str]:
     return out
 
 
-def _net_labels(board: Board, f: Finding, per_layer: list[tuple[int, np.ndarray]],
-                frame: _Frame) -> tuple[list[str], list[tuple[float, float, float]]]:
+def _net_labels(board: Board, f: Finding, per_layer: list[tuple[int, np.ndarray]], frame: _Frame,
+                index: dict[str, int]) -> tuple[list[str], list[tuple[float, float, float]]]:
     """The finding's aggressor and victim named on their copper: each label
     beside that net's piece nearest the worst spot, moved along the piece
     (the aggressor one way, the victim the other) and off it on the side
@@ -603,8 +614,7 @@ def _net_labels(board: Board, f: Finding, per_layer: list[tuple[int, np.ndarray]
     viewers that ignore ``paint-order`` show it too), in SVG coordinates. A
     printed report keeps them; hover titles it would not. Also returns
     where each label sits (board x, y and its estimated half width), so
-    callouts can keep clear of it."""
-    index = board.net_index()
+    callouts can keep clear of it. ``index``: net name -> index."""
     p = board.pieces
     on = np.concatenate([idx for _, idx in per_layer]) if per_layer else np.zeros(0, np.int64)
     size = 0.8 * frame.unit
@@ -748,7 +758,7 @@ def _context(analysis, shown: list[Finding], frame: _Frame, rows_of: _RowFinder)
     ref = getattr(analysis, "reference", None)
     if not len(c) or not shown:
         return [], ()
-    index = board.net_index()
+    index = rows_of.net
     voids: dict[tuple[int, int], list] = {}
     islands: set[int] = set()
     guards: set[int] = set()
@@ -833,10 +843,22 @@ class _RowFinder:
     coupling the rule looks at, on its layers, whose coupling spot lies in
     its bbox."""
 
-    def __init__(self, analysis) -> None:
+    def __init__(self, analysis, findings: list[Finding] | None = None, numbers: dict[str, int] | None = None) -> None:
         self.a = analysis
         board = analysis.board
         self.net = board.net_index()
+        # what every picture of the report asks of the findings, as arrays: extents, layers (one bit
+        # per stackup layer; a layer name the stackup lacks sets a bit no picture draws), number by id
+        findings = findings or []
+        self.numbers = numbers if numbers is not None else {}
+        self.ids = [f.id for f in findings]
+        self.boxes = np.array([f.bbox for f in findings], np.float64).reshape(-1, 4)
+        position = {name: i for i, name in enumerate(board.stackup.names)}
+        self.layer_bits = np.array([sum(1 << position.get(n, 62) for n in set(f.layers)) for f in findings],
+                                   np.int64)
+        self.named_bits = int(np.bitwise_or.reduce(self.layer_bits)) if len(findings) else 0
+        first: dict[str, int] = {}
+        self.duplicate = np.array([first.setdefault(i, k) != k for k, i in enumerate(self.ids)], bool)
         self.layer = {name: i for i, name in enumerate(board.stackup.names)}
         self.rules = {r.name: r for r in getattr(analysis.ruleset, "rules", ())}
         np_ = analysis.net_pairs
@@ -851,6 +873,11 @@ class _RowFinder:
         self.masks: dict[str, np.ndarray] = {}
         self._pair_key: tuple[np.ndarray, np.ndarray] | None = None
         self._bands: dict | None = None
+
+    def is_id(self, finding_id: str | None) -> np.ndarray:
+        """Per finding, whether it is the one with this id."""
+        return np.array([i == finding_id for i in self.ids], bool) if finding_id is not None else \
+            np.zeros(len(self.ids), bool)
 
     def pair_rows(self, lo: int, hi: int) -> np.ndarray:
         """Coupled rows of the net pair (lo, hi), lo < hi, ascending: one
@@ -960,11 +987,12 @@ def _row_quads(analysis, rows: np.ndarray, pad: float) -> tuple[np.ndarray, np.n
     return xs, ys, extent
 
 
-def _stretch_shapes(analysis, f: Finding, rows: np.ndarray, frame: _Frame,
-                    faint: bool) -> tuple[str, tuple[float, float, float, float] | None]:
+def _stretch_shapes(analysis, f: Finding, rows: np.ndarray, frame: _Frame, faint: bool,
+                    with_path: bool = True) -> tuple[str, tuple[float, float, float, float] | None]:
     """The path data of the finding's bands that meet the framed area (one
-    band per coupled row), and its bbox when the bands do not cover it (or
-    stand in for them when no row could be matched), else ``None``."""
+    band per coupled row; ``""`` unless ``with_path``), and its bbox when
+    the bands do not cover it (or stand in for them when no row could be
+    matched), else ``None``."""
     d = ""
     x0, y0, x1, y1 = f.bbox
     show_bbox = True
@@ -977,7 +1005,9 @@ def _stretch_shapes(analysis, f: Finding, rows: np.ndarray, frame: _Frame,
                 & (ys.max(axis=1) >= frame.vy0) & (ys.min(axis=1) <= frame.vy1))
         xs, ys = xs[seen], ys[seen]
         g = frame.per_mm
-        if len(xs) > MERGE_BANDS_ABOVE:
+        if not with_path:
+            pass
+        elif len(xs) > MERGE_BANDS_ABOVE:
             # many bands (a victim summed over dozens of aggressors): one outline of them, to a quarter pixel
             shape = shapely.union_all(shapely.polygons(np.stack([xs, ys], axis=-1)))
             d = _polygon_path(shapely.simplify(shape, REGION_TOLERANCE_PX * frame.px(), preserve_topology=False), g)
@@ -1062,35 +1092,54 @@ def _faint_bands(findings: list[Finding], faint_ids: set[str], rows_of: _RowFind
 
 
 def _stretches_merged(analysis, findings: list[Finding], rows_of, frame: _Frame, waived) -> list[str]:
-    """The stretches of many findings (a clustered overview), one path per
-    look (severity, waived) instead of one group per finding: the same
-    picture in a fraction of the bytes."""
+    """The stretches of many findings (a clustered overview) by look
+    (severity, waived) instead of one group per finding: the same picture
+    in a fraction of the bytes. Up to :data:`MERGED_VECTOR_BANDS` bands,
+    one merged vector outline per look (to a quarter pixel); beyond, the
+    bands painted as one PNG (:func:`.raster.bands_png`), since merging tens
+    of thousands of overlapping bands costs seconds and their detail is
+    below a pixel at overview scale. Dashed extents stay vectors either way.
+    Returns elements for inside the flipped group, then for outside it (SVG
+    coordinates)."""
     bands: dict[tuple[str, str], list[np.ndarray]] = {}
+    colour_of: dict[tuple[str, str], tuple[str, float, float]] = {}
     extents: dict[tuple[str, str], list[str]] = {}
     pad = HALO * frame.unit
     for f in findings:
         rows = rows_of(f)
-        key = _stretch_style(f, frame, False, f.id in waived)
+        is_waived = f.id in waived
+        key = _stretch_style(f, frame, False, is_waived)
         if rows.size:
             xs, ys, _ = _row_quads(analysis, rows, pad)
             bands.setdefault(key, []).append(np.stack([xs, ys], axis=-1))
-        _, box = _stretch_shapes(analysis, f, rows, frame, False)
+            colour_of[key] = (WAIVED_COLOUR if is_waived else SEVERITY_COLOURS.get(f.severity, OKABE_ITO["vermillion"]),
+                              0.0 if is_waived else 0.35, 1.0)
+        _, box = _stretch_shapes(analysis, f, rows, frame, False, with_path=False)
         if box is not None:
             x0, y0, x1, y1 = box
             extents.setdefault(key, []).append(f"M{_f(x0)} {_f(y0)}H{_f(x1)}V{_f(y1)}H{_f(x0)}Z")
-    out = [f'<g data-role="stretches" data-findings="{len(findings)}">']
-    for key, quads in bands.items():
-        # the bands of one look as one outline: overlapping bands merge, and the outline is kept to a
-        # quarter of a pixel (Douglas-Peucker), as pours are (31 000 bands of a 3 000-finding board: 1.3 MB
-        # of quadrilaterals, 0.3 MB as an outline)
-        shape = shapely.union_all(shapely.polygons(np.concatenate(quads)))
-        d = _polygon_path(shapely.simplify(shape, REGION_TOLERANCE_PX * frame.px(), preserve_topology=False),
-                          frame.per_mm)
-        if d:
-            out.append(f'<path d="{d}" fill-rule="evenodd" {key[0]} data-role="stretch"/>')
-    out += [f'<path d="{"".join(ds)}" {key[1]} data-role="extent"/>' for key, ds in extents.items()]
-    out.append("</g>")
-    return out
+    inside = [f'<g data-role="stretches" data-findings="{len(findings)}">']
+    outside: list[str] = []
+    quads = {key: np.concatenate(q) for key, q in bands.items()}
+    if sum(len(q) for q in quads.values()) > MERGED_VECTOR_BANDS:
+        scale = raster.RASTER_SCALE * frame.width_px / frame.vw
+        png, w, h = raster.bands_png([(q, *colour_of[key]) for key, q in quads.items()],
+                                     (frame.vx0, frame.vy0, frame.vx1, frame.vy1), scale,
+                                     frame.stroke(0.8) * scale)
+        outside.append(f'<image x="{_f(frame.vx0)}" y="{_f(frame.vy0)}" width="{_f(w / scale)}" '
+                       f'height="{_f(h / scale)}" preserveAspectRatio="none" data-role="stretches-image" '
+                       f'data-bands="{sum(len(q) for q in quads.values())}" href="{raster.data_uri(png)}"/>')
+    else:
+        for key, q in quads.items():
+            # overlapping bands merge into one outline, kept to a quarter of a pixel, as pours are
+            shape = shapely.union_all(shapely.polygons(q))
+            d = _polygon_path(shapely.simplify(shape, REGION_TOLERANCE_PX * frame.px(), preserve_topology=False),
+                              frame.per_mm)
+            if d:
+                inside.append(f'<path d="{d}" fill-rule="evenodd" {key[0]} data-role="stretch"/>')
+    inside += [f'<path d="{"".join(ds)}" {key[1]} data-role="extent"/>' for key, ds in extents.items()]
+    inside.append("</g>")
+    return inside, outside
 
 
 def _dash(severity: str, waived: bool, frame: _Frame) -> str:
