@@ -13,6 +13,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
+from .coupling import BROADSIDE, EDGE, KIND_NAMES, RELAY, VictimNoise, node_total_pf  # noqa: F401 (re-exported)
 from .finder.pairs import PairTable, find_broadside, find_edge
 from .finder.runs import run_labels
 from .guards import (
@@ -55,13 +56,10 @@ from .shielding import (
 )
 from .stackup import reference_of, separation_mm
 
-BROADSIDE, EDGE, RELAY = 0, 1, 2
-
 #: Smallest edge-to-edge gap (mm) the edge-coupling closed forms are asked
 #: about. Copper of two nets closer than this on one layer is a short or a
 #: clearance error for the design-rule check, not a coupling estimate.
 EDGE_GAP_FLOOR_MM = 0.01
-KIND_NAMES = ("broadside", "edge", "relay")
 
 
 @dataclass
@@ -172,34 +170,6 @@ class NetPairs:
 
     def __len__(self) -> int:
         return int(self.net_a.shape[0])
-
-
-@dataclass(frozen=True)
-class VictimNoise:
-    """One victim's coupled noise under one noise-budget rule, passing or not:
-    the summed noise (mV), the budget (mV), which model gave it
-    (``lumped``, ``small-r`` or ``transmission-line`` when any of its
-    aggressors' runs is electrically long; ``small-r (out of range)`` where
-    that limit does not hold), the worst aggressor and how many aggressors
-    contribute; the victim node's whole capacitance C_tot and its
-    capacitance to ground in mutual form C_tot - sum_k C_1k (pF,
-    :func:`node_total_pf`)."""
-
-    rule: str
-    victim: str
-    noise_mv: float
-    budget_mv: float
-    model: str
-    worst_aggressor: str
-    aggressors: int
-    c_total_pf: float = float("nan")
-    c_ground_mutual_pf: float = float("nan")
-    #: a filtered victim: its noise with the filter left out (mV); NaN otherwise
-    unfiltered_mv: float = float("nan")
-
-    @property
-    def passes(self) -> bool:
-        return self.noise_mv <= self.budget_mv
 
 
 @dataclass
@@ -715,22 +685,6 @@ def net_capacitance_to_ground_pf(board: Board, electrical: NetElectrical, notes:
         pf = per_m * p.length[on] * 1e-3 * 1e12
         total += np.bincount(p.net[on], weights=pf, minlength=len(board.nets))
     return total + electrical.node_capacitance_f * 1e12
-
-
-def node_total_pf(trace_c2g_pf, coupled_pf, node_pf):
-    """A victim node's whole capacitance C_tot = C_1g + sum_k C_1k (pF), the
-    Maxwell diagonal with every neighbour held at ground, in mutual form.
-
-    Taken as max(C of its traces to ground computed alone, sum_k C_1k) plus
-    the node capacitance its class gives. The capacitance to ground of a
-    trace computed alone is the Maxwell diagonal without neighbours; a
-    grounded neighbour only raises the diagonal (a conductor added at ground
-    can only raise the charge the excited one holds: the Dirichlet
-    variational principle of electrostatics), and the
-    diagonal is at least the sum of the mutual capacitances (C_1g >= 0). So
-    this is a lower bound of C_tot: the noise it gives errs high, never low
-    (it is not the single-trace value plus C12, which counts C12 twice)."""
-    return np.maximum(trace_c2g_pf, coupled_pf) + node_pf
 
 
 def self_rise_pf(board: Board, c: Couplings, models: dict, victims: np.ndarray) -> np.ndarray:

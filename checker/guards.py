@@ -73,9 +73,8 @@ import shapely
 from scipy.constants import c as C0
 
 from .model import NO_NET, Board, Pieces
-from .physics.broadside import mask_blocks, solve_shared
-from .physics.edge import edge_section
 from .physics.fieldsolve import GROUND, Conductor, CrossSection
+from .physics.sections import edge_section, mask_blocks, solve_shared
 from .shielding import cover_tiles, piece_polygons, valid
 
 #: Default fraction of a wavelength between stitching vias (common practice).

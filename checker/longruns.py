@@ -20,9 +20,10 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.constants import c as C0
 
+from .coupling import BROADSIDE
 from .physics.accurate import ACCURATE_RESOLUTION
-from .physics.broadside import broadside_section
 from .physics.fieldsolve import FAST
+from .physics.sections import broadside_section
 from .physics.tline import (
     Crosstalk,
     LineMatrices,
@@ -114,7 +115,6 @@ def _signature(ctx, rows: np.ndarray, aggressor: int) -> tuple[tuple, str, tuple
     """Rounded cross-section of a run: (kind, aggressor layer, victim layer,
     aggressor width, victim width, offset or gap), the coupling kind and the
     layer names."""
-    from .analysis import BROADSIDE
 
     c = ctx.couplings
     p = ctx.board.pieces

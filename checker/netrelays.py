@@ -44,6 +44,7 @@ import math
 
 import numpy as np
 
+from .coupling import node_total_pf
 from .model import NO_NET
 
 #: At most this many of a relaying net's neighbours (the most strongly
@@ -60,7 +61,6 @@ def net_relay_rows(c, resistance_ohm: np.ndarray, frequency_hz: np.ndarray, c2g_
     ``c2g_pf``: per net, its traces' capacitance to ground computed alone
     plus ``node_pf`` (its class's node capacitance; default none). None when
     no net relays anything."""
-    from .analysis import node_total_pf
 
     relay_net = np.isfinite(resistance_ohm) & (resistance_ohm > 0)
     has_r, has_f = relay_net, np.isfinite(frequency_hz) & (frequency_hz > 0)

@@ -36,6 +36,8 @@ from . import limits
 from .atomic import write_atomically
 from .errors import BaselineError, RuleError, UsageError, WaiverError
 from .findings import SEVERITIES, Finding
+from .reportformat import REPORT_VERSION
+from .ruleset import NAME_PATTERN, check_duplicate_keys, join_key
 from .yamldoc import YamlProblem, compose_document
 
 #: ``--fail-on`` choices: the lowest severity that fails, or ``new`` (only
@@ -231,20 +233,19 @@ def load_waivers(path: str | os.PathLike[str]) -> WaiverFile:
 def parse_waivers(text: str, file: str) -> WaiverFile:
     """Validate the text of a waiver file; ``file`` names it in messages and
     in each waiver's ``source``."""
-    from .ruleset import _check_duplicate_keys, _join  # the rule loader's helpers (imported late: heavy)
 
     node = _compose(text, file)
     if node is None:
         raise WaiverError(file, None, "the file is empty (a waiver file starts with 'version: 1' and a "
                                       "'waivers:' list; see docs/waivers.md)")
     try:
-        _check_duplicate_keys(node, file)
+        check_duplicate_keys(node, file)
     except RuleError as exc:  # the rule loader's check, reported as a waiver-file error
         raise WaiverError(file, exc.place, exc.message) from None
     top = _mapping(node, "", file, "a mapping with 'version' and 'waivers'")
     for key, (key_node, _) in top.items():
         if key not in TOP_LEVEL_KEYS:
-            raise WaiverError(file, _join("", key), f"unknown key (accepted: {', '.join(TOP_LEVEL_KEYS)})",
+            raise WaiverError(file, join_key("", key), f"unknown key (accepted: {', '.join(TOP_LEVEL_KEYS)})",
                               _line(key_node))
     if "version" not in top:
         raise WaiverError(file, None, f"missing required key 'version' (write 'version: {WAIVER_FILE_VERSION}' "
@@ -272,7 +273,7 @@ def parse_waivers(text: str, file: str) -> WaiverFile:
         here = f"{place} (line {_line(item)})"
         if w.id is not None:
             if w.id in first_id:
-                raise WaiverError(file, _join(place, "id"), f"{w.id} is already waived by {first_id[w.id]}; "
+                raise WaiverError(file, join_key(place, "id"), f"{w.id} is already waived by {first_id[w.id]}; "
                                                             f"each id may be waived once", _line(item))
             first_id[w.id] = here
         else:
@@ -287,12 +288,11 @@ def parse_waivers(text: str, file: str) -> WaiverFile:
 
 
 def _parse_waiver(node: yaml.Node, file: str, place: str) -> Waiver:
-    from .ruleset import NAME_PATTERN, _join
 
     body = _mapping(node, place, file, "a mapping with 'id' or 'rule', and 'reason', 'author' and 'date'")
     for key, (key_node, _) in body.items():
         if key not in WAIVER_KEYS:
-            raise WaiverError(file, _join(place, key), f"unknown key (accepted: {', '.join(WAIVER_KEYS)})",
+            raise WaiverError(file, join_key(place, key), f"unknown key (accepted: {', '.join(WAIVER_KEYS)})",
                               _line(key_node))
     line = _line(node)
     if "id" in body and "rule" in body:
@@ -305,40 +305,40 @@ def _parse_waiver(node: yaml.Node, file: str, place: str) -> Waiver:
     if "id" in body:
         for key in ("nets", "layers"):
             if key in body:
-                raise WaiverError(file, _join(place, key), f"'{key}' only goes with 'rule' (an id names one "
+                raise WaiverError(file, join_key(place, key), f"'{key}' only goes with 'rule' (an id names one "
                                                            f"finding already)", _line(body[key][0]))
         value = body["id"][1]
-        text = _text(value, file, _join(place, "id"))
+        text = _text(value, file, join_key(place, "id"))
         if not ID_PATTERN.match(text):
-            raise WaiverError(file, _join(place, "id"), f"{text!r} is not a finding id (12 hex digits, as "
+            raise WaiverError(file, join_key(place, "id"), f"{text!r} is not a finding id (12 hex digits, as "
                                                         f"'couplint check' prints in [brackets])", _line(value))
         fields["id"] = text.lower()
     else:
         value = body["rule"][1]
-        text = _text(value, file, _join(place, "rule"))
+        text = _text(value, file, join_key(place, "rule"))
         if not NAME_PATTERN.match(text):
-            raise WaiverError(file, _join(place, "rule"), f"{text!r} is not a rule name (lowercase letter "
+            raise WaiverError(file, join_key(place, "rule"), f"{text!r} is not a rule name (lowercase letter "
                                                           f"first, then lowercase letters, digits and '-')",
                               _line(value))
         fields["rule"] = text
         if "nets" not in body:
             raise WaiverError(file, place, "missing 'nets': [aggressor pattern, victim pattern] ('*' matches "
                                            "any net)", line)
-        fields["nets"] = _patterns(body["nets"][1], file, _join(place, "nets"))
+        fields["nets"] = _patterns(body["nets"][1], file, join_key(place, "nets"))
         if "layers" in body:
-            fields["layers"] = _pattern(body["layers"][1], file, _join(place, "layers"))
+            fields["layers"] = _pattern(body["layers"][1], file, join_key(place, "layers"))
     for key in ("reason", "author"):
         if key not in body:
             raise WaiverError(file, place, f"missing required key '{key}'", line)
-        fields[key] = _text(body[key][1], file, _join(place, key))
+        fields[key] = _text(body[key][1], file, join_key(place, key))
     if "date" not in body:
         raise WaiverError(file, place, "missing required key 'date' (when the waiver was granted, YYYY-MM-DD)",
                           line)
-    fields["date"] = _date(body["date"][1], file, _join(place, "date"))
+    fields["date"] = _date(body["date"][1], file, join_key(place, "date"))
     if "expires" in body:
-        expires = _date(body["expires"][1], file, _join(place, "expires"))
+        expires = _date(body["expires"][1], file, join_key(place, "expires"))
         if expires < fields["date"]:
-            raise WaiverError(file, _join(place, "expires"), f"{expires} is before the waiver's date "
+            raise WaiverError(file, join_key(place, "expires"), f"{expires} is before the waiver's date "
                                                              f"{fields['date']}", _line(body["expires"][1]))
         fields["expires"] = expires
     return Waiver(source=f"{file}:{line}", **fields)
@@ -580,8 +580,6 @@ _REVIEW_KEYS = ("waiver", "status")
 def load_baseline(path: str | os.PathLike[str]) -> Baseline:
     """Read an earlier couplint JSON report. Raises :class:`BaselineError`
     naming the file and the JSON place."""
-    from .report.json_report import REPORT_VERSION
-
     file = os.fspath(path)
     try:
         raw = limits.read_file(file)

@@ -426,7 +426,7 @@ def _load_file(path: pathlib.Path, file: str, chain: tuple[tuple[pathlib.Path, s
         raise RuleError(file, "version", f"unsupported version {version!r} (supported: {SUPPORTED_VERSION})")
     for key in data:
         if key not in TOP_LEVEL_KEYS:
-            raise RuleError(file, _join("", key), f"unknown top-level key (accepted: {', '.join(TOP_LEVEL_KEYS)})")
+            raise RuleError(file, join_key("", key), f"unknown top-level key (accepted: {', '.join(TOP_LEVEL_KEYS)})")
 
     own_settings = _parse_settings(data.get("settings", {}), file)
     own_classes = _parse_classes(data.get("net_classes", {}), file)
@@ -546,7 +546,7 @@ def _parse_settings(value: Any, file: str) -> dict[str, Any]:
         raise RuleError(file, "settings", f"expected a mapping of settings, got {_describe(value)}")
     out: dict[str, Any] = {}
     for key, raw in value.items():
-        place = _join("settings", key)
+        place = join_key("settings", key)
         if key not in SETTINGS_SCHEMA:
             raise RuleError(file, place, f"unknown setting (accepted: {', '.join(SETTINGS_SCHEMA)})")
         _, opt = SETTINGS_SCHEMA[key]
@@ -563,7 +563,7 @@ def _parse_classes(value: Any, file: str) -> dict[str, NetClass]:
         raise RuleError(file, "net_classes", f"expected a mapping of class name -> class, got {_describe(value)}")
     out: dict[str, NetClass] = {}
     for name, body in value.items():
-        place = _join("net_classes", name)
+        place = join_key("net_classes", name)
         _check_name(name, file, place, "net class name")
         if name == ANY:
             raise RuleError(file, place, f"'{ANY}' is reserved (it means every net in a rule)")
@@ -572,26 +572,26 @@ def _parse_classes(value: Any, file: str) -> dict[str, NetClass]:
                                          f"got {_describe(body)}")
         for key in body:
             if key not in CLASS_KEYS:
-                raise RuleError(file, _join(place, key),
+                raise RuleError(file, join_key(place, key),
                                 f"unknown net class attribute (accepted: {', '.join(CLASS_KEYS)})")
         if "nets" not in body:
             raise RuleError(file, place, "missing required key 'nets' (a list of net-name patterns)")
-        patterns = _parse_patterns(body["nets"], file, _join(place, "nets"))
+        patterns = _parse_patterns(body["nets"], file, join_key(place, "nets"))
         values: dict[str, Any] = {}
         for key, (attr, opt) in CLASS_SCHEMA.items():
             if key in body:
-                values[attr] = _read_option(body[key], opt, file, _join(place, key))
+                values[attr] = _read_option(body[key], opt, file, join_key(place, key))
             else:
                 values[attr] = opt.default
         if values["duty"] is not None and values["duty"] >= 1.0:
-            raise RuleError(file, _join(place, "duty"),
+            raise RuleError(file, join_key(place, "duty"),
                             f"must be < 1 (always high couples nothing), got {body['duty']}")
         if (values["filter_resistance_ohm"] is None) != (values["filter_capacitance_f"] is None):
             missing = "filter_capacitance" if values["filter_capacitance_f"] is None else "filter_resistance"
-            raise RuleError(file, _join(place, missing),
+            raise RuleError(file, join_key(place, missing),
                             "an RC filter needs both filter_resistance and filter_capacitance")
         if values["bandwidth_hz"] is not None and values["filter_resistance_ohm"] is not None:
-            raise RuleError(file, _join(place, "bandwidth"),
+            raise RuleError(file, join_key(place, "bandwidth"),
                             "give either bandwidth or filter_resistance and filter_capacitance, not both")
         out[name] = NetClass(name=name, patterns=patterns, **values)
     return out
@@ -640,35 +640,35 @@ def _parse_rule(raw: Any, file: str, place: str) -> _OwnRule:
         if key not in raw:
             raise RuleError(file, place, f"missing required key '{key}'")
     name = raw["name"]
-    _check_name(name, file, _join(place, "name"), "rule name")
+    _check_name(name, file, join_key(place, "name"), "rule name")
     kind = raw["kind"]
     if not isinstance(kind, str) or kind not in REGISTRY:
         shown = repr(kind) if isinstance(kind, str) else _describe(kind)
-        raise RuleError(file, _join(place, "kind"), f"unknown kind {shown} (known: {', '.join(sorted(REGISTRY))})")
+        raise RuleError(file, join_key(place, "kind"), f"unknown kind {shown} (known: {', '.join(sorted(REGISTRY))})")
     schema: dict[str, Option] = REGISTRY[kind].OPTIONS
     for key in raw:
         if key not in COMMON_RULE_KEYS and key not in schema:
-            raise RuleError(file, _join(place, key),
+            raise RuleError(file, join_key(place, key),
                             f"unknown key for kind {kind!r} (common keys: {', '.join(COMMON_RULE_KEYS)}; "
                             f"options of {kind}: {', '.join(schema) or 'none'})")
     refs: list[tuple[str, str]] = []
-    aggressor = _parse_class_refs(raw.get("aggressor", ANY), file, _join(place, "aggressor"), refs)
-    victim = _parse_class_refs(raw.get("victim", ANY), file, _join(place, "victim"), refs)
+    aggressor = _parse_class_refs(raw.get("aggressor", ANY), file, join_key(place, "aggressor"), refs)
+    victim = _parse_class_refs(raw.get("victim", ANY), file, join_key(place, "victim"), refs)
     if victim and not getattr(REGISTRY[kind], "USES_VICTIM", True):
-        raise RuleError(file, _join(place, "victim"),
+        raise RuleError(file, join_key(place, "victim"),
                         f"kind {kind!r} takes no victim classes (its findings name their own victim; see "
                         f"'couplint kinds {kind}'); leave 'victim' out or set it to '{ANY}'")
     severity = raw.get("severity", "error")
     if not isinstance(severity, str) or severity not in SEVERITIES:
-        raise RuleError(file, _join(place, "severity"),
+        raise RuleError(file, join_key(place, "severity"),
                         f"{_show(severity)} is not a severity (accepted: {', '.join(SEVERITIES)})")
     description = raw.get("description", "")
     if not isinstance(description, str):
-        raise RuleError(file, _join(place, "description"), f"expected text, got {_describe(description)}")
+        raise RuleError(file, join_key(place, "description"), f"expected text, got {_describe(description)}")
     options: dict[str, Any] = {}
     for key, opt in schema.items():
         if key in raw:
-            options[key] = _read_option(raw[key], opt, file, _join(place, key))
+            options[key] = _read_option(raw[key], opt, file, join_key(place, key))
         elif opt.required:
             hint = f" ({opt.help})" if opt.help else ""
             raise RuleError(file, place, f"missing required option {key!r} for kind {kind!r}{hint}")
@@ -766,17 +766,17 @@ def _read_table(value: Any, opt: Option, file: str, place: str) -> tuple[dict[st
             raise RuleError(file, here, f"expected a row mapping with {names}, got {_describe(raw)}")
         for key in raw:
             if key not in columns:
-                raise RuleError(file, _join(here, key), f"unknown column (columns: {names})")
+                raise RuleError(file, join_key(here, key), f"unknown column (columns: {names})")
         row: dict[str, float] = {}
         for column, unit_kind in opt.columns:
             if column not in raw:
                 raise RuleError(file, here, f"missing column {column!r} (columns: {names})")
-            number = _quantity(raw[column], unit_kind, file, _join(here, column))
+            number = _quantity(raw[column], unit_kind, file, join_key(here, column))
             if number < 0:
-                raise RuleError(file, _join(here, column), f"must be >= 0, got {_fmt(number, unit_kind)}")
+                raise RuleError(file, join_key(here, column), f"must be >= 0, got {_fmt(number, unit_kind)}")
             row[column] = number
         if rows and row[key_column] <= rows[-1][key_column]:
-            raise RuleError(file, _join(here, key_column),
+            raise RuleError(file, join_key(here, key_column),
                             f"{_fmt(row[key_column], opt.columns[0][1])} is not larger than the row before "
                             f"({_fmt(rows[-1][key_column], opt.columns[0][1])}); rows must be in strictly "
                             f"increasing {key_column} order")
@@ -827,7 +827,7 @@ def _read_yaml(path: pathlib.Path, file: str) -> Any:
         node = compose_document(text, MAX_YAML_NODES, "a rule file")
         if node is None:
             raise RuleError(file, None, "the file is empty (a rule file starts with 'version: 1')")
-        _check_duplicate_keys(node, file)
+        check_duplicate_keys(node, file)
         return construct(node)
     except YamlProblem as e:
         raise RuleError(file, e.place, e.message) from None
@@ -837,9 +837,9 @@ def _read_yaml(path: pathlib.Path, file: str) -> Any:
 MAX_YAML_NODES = 1_000_000
 
 
-def _check_duplicate_keys(node: yaml.Node, file: str) -> None:
+def check_duplicate_keys(node: yaml.Node, file: str) -> None:
     """A RuleError at the first key given twice in one mapping of the document ``node``."""
-    found = first_repeated_key(node, _join)
+    found = first_repeated_key(node, join_key)
     if found is not None:
         raise RuleError(file, found.path, f"duplicate key at line {found.line}, column {found.column} "
                                           f"(first given at line {found.first_line}; each key may appear once)")
@@ -852,7 +852,7 @@ def _check_duplicate_keys(node: yaml.Node, file: str) -> None:
 _PLAIN_KEY = re.compile(r"^[A-Za-z_][A-Za-z0-9_-]*$")
 
 
-def _join(path: str, key: Any) -> str:
+def join_key(path: str, key: Any) -> str:
     """``path.key``, or ``path['odd key']`` when the key is not a plain word."""
     if isinstance(key, str) and _PLAIN_KEY.match(key):
         return f"{path}.{key}" if path else key

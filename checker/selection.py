@@ -27,6 +27,7 @@ from dataclasses import dataclass
 
 from .errors import UsageError
 from .findings import SEVERITIES
+from .ruleset import compile_pattern
 
 #: the keys ``--only`` takes, and what each matches
 KEYS: dict[str, str] = {
@@ -111,8 +112,6 @@ class Selection:
 
 
 def _pattern(pattern: str, text: str) -> re.Pattern[str]:
-    from .ruleset import compile_pattern
-
     try:
         return compile_pattern(pattern)
     except re.error as exc:

@@ -30,7 +30,6 @@ from scipy.constants import c as C0
 
 from checker.model import CopperLayer, Dielectric, Stackup
 from checker.physics import capacitance as cap
-from checker.physics.broadside import section_signature
 from checker.physics.edge import (
     GROUND_KNOT_RATIO,
     GROUND_MAX_WIDTHS,
@@ -43,6 +42,7 @@ from checker.physics.edge import (
     plate_decay_per_mm,
 )
 from checker.physics.fieldsolve import Conductor, CrossSection, Slab, solve
+from checker.physics.sections import section_signature
 
 
 def approx(value, rel: float):
@@ -341,8 +341,8 @@ def test_shared_solve_is_reindexed_to_the_sections_own_numbering():
     """A solve shared with a mirrored, renumbered section gives that
     section's own Maxwell matrix: the same as solving it directly (exact
     mirror images solve to the same numbers, to rounding)."""
-    from checker.physics.broadside import _shared, solve_shared
     from checker.physics.fieldsolve import solve
+    from checker.physics.sections import _shared, solve_shared
 
     a = CrossSection((Conductor(-0.3, -0.1, 0.0, 0.035, 0), Conductor(0.05, 0.2, 0.25, 0.285, 1)),
                      (Slab(-0.5, 0.8, 4.2),), (-0.2,))

@@ -137,7 +137,7 @@ def test_touching_copper_pairs_match_a_brute_force_distance_check() -> None:
     import numpy as np
     import shapely
 
-    from checker.readers.fab.assemble import TOUCH_TOLERANCE_MM, _points_on, _touching
+    from checker.readers.fab.build import TOUCH_TOLERANCE_MM, _points_on, _touching
 
     rng = np.random.default_rng(11)
     n = 120

@@ -388,9 +388,9 @@ def test_progress_lines_say_how_far_a_step_has_got(capsys, monkeypatch, tmp_path
     monkeypatch.setenv("COUPLINT_CACHE_DIR", str(tmp_path / "cache"))
     from collections import OrderedDict
 
-    from checker.physics import broadside
+    from checker.physics import sections
 
-    monkeypatch.setattr(broadside, "_shared", OrderedDict())  # nothing solved earlier in this process
+    monkeypatch.setattr(sections, "_shared", OrderedDict())  # nothing solved earlier in this process
     code, _, err = run(capsys, "demo", "--format", "json", "--out", tmp_path / "r.json")
     assert code == 1
     lines = err.splitlines()

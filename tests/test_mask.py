@@ -1,4 +1,4 @@
-"""Conformal solder mask (Stackup.mask_style, physics.broadside.mask_blocks)
+"""Conformal solder mask (Stackup.mask_style, physics.sections.mask_blocks)
 and the field solver's dielectric blocks it rests on.
 
 References: exact properties of the discretised Laplace problem (a uniform
@@ -15,9 +15,9 @@ import numpy as np
 import pytest
 
 from checker.model import CopperLayer, Dielectric, Stackup
-from checker.physics.broadside import mask_blocks
 from checker.physics.edge import EdgeModel, edge_section
 from checker.physics.fieldsolve import Block, Conductor, CrossSection, Slab, solve
+from checker.physics.sections import mask_blocks
 
 MICROSTRIP = Stackup((CopperLayer("top", "signal", 0.035), CopperLayer("gnd", "plane", 0.035)),
                      (Dielectric(0.2, 4.2),), mask_top=Dielectric(0.02, 3.5), mask_style="conformal")

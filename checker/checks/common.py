@@ -8,6 +8,7 @@ from typing import Iterator
 
 import numpy as np
 
+from ..coupling import BROADSIDE, EDGE, RELAY
 from ..findings import Finding, finding_id
 
 
@@ -91,7 +92,6 @@ def path_text(ctx, rows: np.ndarray) -> str | None:
     copper between the layers shields (and on which layer, by which nets),
     and what floating islands (id, layer, place, area, pF) and high-impedance
     third nets (name, resistance, pF) relay."""
-    from ..analysis import BROADSIDE, EDGE, RELAY
 
     c = ctx.couplings
     parts = []

@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..coupling import BROADSIDE
 from .options import Option
 
 KIND = "crossing-angle"
@@ -37,7 +38,6 @@ OPTIONS = {
 def check(rule, ctx):
     """Yield a finding per overlapped broadside run below ``min_angle`` that
     is longer than ``max_length``."""
-    from ..analysis import BROADSIDE
     from .common import applicable_rows, iter_runs, make_finding, ratio_over, run_place
 
     c = ctx.couplings

@@ -27,6 +27,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..coupling import EDGE
 from .options import Option
 
 KIND = "guard-grounding"
@@ -40,7 +41,6 @@ OPTIONS = {
 def check(rule, ctx):
     """Yield a finding per guard that is not grounded along its length,
     for the worst aggressor/victim pair it sits between."""
-    from ..analysis import EDGE
     from .common import applicable_rows, make_finding, run_place
 
     c = ctx.couplings

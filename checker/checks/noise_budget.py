@@ -48,6 +48,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..coupling import VictimNoise, node_total_pf
 from ..physics.crosstalk import SMALL_R_LIMIT
 from .options import Option
 
@@ -183,7 +184,6 @@ def _record_victims(ctx, rule, victims, aggressors, noise, totals, by_victim, st
                     small_r, worst_x, in_band=frozenset(), unfiltered=None) -> None:
     """Every victim this rule looked at, passing or not, with the model that
     gave its number (``Analysis.victim_noise``; the reports list them)."""
-    from ..analysis import VictimNoise
 
     plain = "small-r" if small_r else "lumped"
     for victim in np.unique(victims).tolist():
@@ -272,7 +272,6 @@ def _c_tot(ctx, victims: np.ndarray, k=1.0, removed_pf: float = 0.0) -> np.ndarr
     """The victim nodes' whole capacitance (pF, ``analysis.node_total_pf``)
     with every mutual capacitance onto them scaled by ``k`` (what-if) and
     ``removed_pf`` taken off it (floating copper grounded)."""
-    from ..analysis import node_total_pf
 
     p = ctx.net_pairs
     # the neighbours' rise of the victim's diagonal shrinks with its coupling too

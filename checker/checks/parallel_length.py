@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..coupling import BROADSIDE, EDGE
 from .options import Option
 
 KIND = "parallel-length"
@@ -38,7 +39,6 @@ OPTIONS = {
 def check(rule, ctx):
     """Yield a finding per coupled run that is longer, within some row's
     gap, than that row allows; the worst row is reported."""
-    from ..analysis import BROADSIDE, EDGE
     from .common import applicable_rows, iter_runs, make_finding, run_place
 
     c = ctx.couplings

@@ -24,6 +24,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..coupling import EDGE
 from .options import Option
 
 KIND = "spacing-ratio"
@@ -65,7 +66,6 @@ def ratios(ctx, rows: np.ndarray, aggressor: np.ndarray, measure: str) -> np.nda
 def check(rule, ctx):
     """Yield a finding per side-by-side run whose spacing ratio falls below
     ``min_ratio`` over more than ``min_length``."""
-    from ..analysis import EDGE
     from .common import applicable_rows, iter_runs, make_finding, run_place
 
     c = ctx.couplings

@@ -10,6 +10,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from ..coupling import BROADSIDE
+
 #: bisection steps: 2**-60 of the unit interval, far below any reported digit
 BISECTION_STEPS = 60
 
@@ -36,7 +38,6 @@ def extra_spacing_mm(ctx, rows: np.ndarray, target_pf: float) -> float | None:
     same C12' models at the wider spacing (bisection); crossings keep their
     value (moving traces apart does not shrink a crossing). ``None`` when
     even ``MAX_EXTRA_SPACING_MM`` does not reach the target."""
-    from ..analysis import BROADSIDE
 
     c = ctx.couplings
     p = ctx.board.pieces
@@ -79,7 +80,6 @@ def _wide_model(ctx, kind: int, lo: int, hi: int):
     on the board (beyond them they extrapolate), so a table reaching further
     is solved once per layer group, on first use; accurate mode's direct
     solves answer any spacing as they are."""
-    from ..analysis import BROADSIDE
     from ..physics.broadside import BroadsideModel
     from ..physics.edge import EdgeModel
 

@@ -29,9 +29,8 @@ import numpy as np
 from ..cores import SOLVE_THREADS, ordered_map
 from ..model import Stackup
 from ..stackup import effective_er, separation_mm
-from .broadside import broadside_section
-from .edge import edge_section, ground_section
 from .fieldsolve import CrossSection
+from .sections import broadside_section, edge_section, ground_section
 from .solvecache import cached_solve
 
 #: grid refinement of the accurate solves (``FINE`` is 3)

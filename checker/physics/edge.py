@@ -106,7 +106,7 @@ The edge table
   a loaded shared 2-core machine); a full 4-knot table (10 pairs) 1.3-5 s.
   ``solves`` (values in the table), ``shared`` (of those, reused from an
   identical cross-section solved before, e.g. the other outer layer of a
-  board symmetric about its middle: ``broadside.solve_shared``) and
+  board symmetric about its middle: ``sections.solve_shared``) and
   ``build_seconds`` report it.
 
 The ground table
@@ -184,8 +184,18 @@ from scipy.interpolate import PchipInterpolator
 
 from ..model import Stackup
 from ..stackup import effective_er, separation_mm
-from .broadside import _grounds, _layer_bands, blend_width_knots, mask_blocks, solve_shared, surroundings, width_knots
-from .fieldsolve import Conductor, CrossSection
+from .fieldsolve import CrossSection
+from .sections import (
+    RISE_MARGIN,
+    blend_width_knots,
+    check_layer,
+    edge_section,
+    ground_section,
+    grounds,
+    solve_shared,
+    surroundings,
+    width_knots,
+)
 
 #: Solver resolution of the tables; each value is the Richardson extrapolation
 #: of solves at this resolution and twice it (module docstring).
@@ -206,40 +216,6 @@ GROUND_MAX_WIDTHS = 32
 GROUND_KNOT_RATIO = 2.0
 
 
-def _check_layer(stackup: Stackup, layer: int) -> None:
-    n = len(stackup.layers)
-    if not 0 <= layer < n:
-        raise ValueError(f"need 0 <= layer < {n}, got {layer}")
-
-
-def edge_section(stackup: Stackup, layer: int, wa: float, wb: float, gap_mm: float) -> CrossSection:
-    """Two traces side by side on copper layer ``layer``: trace 0 (width
-    ``wa``) left of the gap, trace 1 (width ``wb``) right of it, ``gap_mm``
-    edge to edge; all mm. Grounds, dielectrics and mask as in the module
-    docstring."""
-    _check_layer(stackup, layer)
-    if not (wa > 0 and wb > 0):
-        raise ValueError(f"widths must be positive, got {wa}, {wb}")
-    if not (gap_mm > 0 and math.isfinite(gap_mm)):
-        raise ValueError(f"the gap must be positive and finite, got {gap_mm}")
-    bot, top = _layer_bands(stackup)
-    planes, slabs = surroundings(stackup, layer, layer)
-    y0, y1, g = float(bot[layer]), float(top[layer]), 0.5 * gap_mm
-    conductors = (Conductor(-g - wa, -g, y0, y1, 0), Conductor(g, g + wb, y0, y1, 1))
-    return CrossSection(conductors, slabs, planes, blocks=mask_blocks(stackup, layer, layer, conductors))
-
-
-def ground_section(stackup: Stackup, layer: int, w: float) -> CrossSection:
-    """One trace of width ``w`` (mm) centred at x = 0 on ``layer``."""
-    _check_layer(stackup, layer)
-    if not w > 0:
-        raise ValueError(f"width must be positive, got {w}")
-    bot, top = _layer_bands(stackup)
-    planes, slabs = surroundings(stackup, layer, layer)
-    conductors = (Conductor(-0.5 * w, 0.5 * w, float(bot[layer]), float(top[layer]), 0),)
-    return CrossSection(conductors, slabs, planes, blocks=mask_blocks(stackup, layer, layer, conductors))
-
-
 def gap_knots(max_gap_mm: float, min_gap_mm: float = MIN_GAP_MM) -> np.ndarray:
     """The knots ``MIN_GAP_MM * GAP_RATIO**k`` from the last one <=
     ``min_gap_mm`` (k >= 0) to the first one
@@ -257,7 +233,7 @@ def gap_knots(max_gap_mm: float, min_gap_mm: float = MIN_GAP_MM) -> np.ndarray:
 def _solve_all(sections: list[CrossSection], resolution: float) -> tuple[list[tuple[np.ndarray, np.ndarray]], int]:
     """(Richardson-extrapolated, finer-grid) Maxwell matrices (F/m) of
     ``sections``, two solves at a time, results in input order (so
-    deterministic), through ``broadside.solve_shared`` (a section identical
+    deterministic), through ``sections.solve_shared`` (a section identical
     to one solved before is not solved again); and how many were shared."""
     results, shared = solve_shared(sections, resolution, richardson=True)
     return [(r.extrapolated, r.maxwell) for r in results], shared
@@ -384,7 +360,7 @@ class EdgeModel:
     """
 
     def __init__(self, stackup: Stackup, layer: int, widths, max_gap_mm: float, min_gap_mm: float = MIN_GAP_MM):
-        _check_layer(stackup, layer)
+        check_layer(stackup, layer)
         self.stackup = stackup
         self.layer = layer
         self.resolution = TABLE_RESOLUTION
@@ -518,10 +494,6 @@ def self_rise_per_m(model: "EdgeModel", w_self, w_other, gap) -> np.ndarray:
     return RISE_MARGIN * out.reshape(shape)
 
 
-#: Share of the solved self-capacitance rise that is counted (``self_rise_per_m``).
-RISE_MARGIN = 0.8
-
-
 def ground_knots(widths) -> np.ndarray:
     """Width knots (mm) of a ``GroundModel`` for the widths present
     (module docstring): every distinct width rounded to 1 um, or, if there
@@ -554,7 +526,7 @@ def plate_per_m_per_mm(stackup: Stackup, layer: int) -> float:
     dielectrics: any electromagnetics text, e.g. D. K. Cheng, *Field and
     Wave Electromagnetics*, 2nd ed., Addison-Wesley, 1989, sec. 3-10.)"""
     return sum(epsilon_0 * effective_er(stackup, k, layer) / separation_mm(stackup, k, layer)
-               for k in _grounds(stackup, layer, layer) if k is not None)
+               for k in grounds(stackup, layer, layer) if k is not None)
 
 
 class GroundModel:
@@ -570,7 +542,7 @@ class GroundModel:
     """
 
     def __init__(self, stackup: Stackup, layer: int, widths):
-        _check_layer(stackup, layer)
+        check_layer(stackup, layer)
         t0 = time.perf_counter()
         self.stackup = stackup
         self.layer = layer

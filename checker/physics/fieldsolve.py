@@ -499,7 +499,7 @@ def _extent(c: Conductor | Circle) -> tuple[float, float, float, float]:
     return c.x0, c.x1, c.y0, c.y1
 
 
-def _domain(cs: CrossSection) -> tuple[float, float, float, float]:
+def domain(cs: CrossSection) -> tuple[float, float, float, float]:
     ext = [_extent(c) for c in cs.conductors]
     cx = [e[0] for e in ext] + [e[1] for e in ext]
     cy = [e[2] for e in ext] + [e[3] for e in ext]
@@ -649,7 +649,7 @@ def _build(cs: CrossSection, resolution: float) -> _Grid:
         if not (b.x0 < b.x1 and b.y0 < b.y1 and b.er >= 1.0):
             raise ValueError(f"block {b} needs x0 < x1, y0 < y1 and er >= 1")
 
-    bx0, bx1, by0, by1 = _domain(cs)
+    bx0, bx1, by0, by1 = domain(cs)
     size = max(bx1 - bx0, by1 - by0)
     tol = 1e-9 * size
     clearances = _circle_clearances(cs, circles, enclosure, tol) if circles or enclosure else []

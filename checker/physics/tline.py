@@ -140,7 +140,8 @@ import numpy as np
 from scipy.constants import epsilon_0, mu_0
 
 from ..model import Stackup
-from .fieldsolve import FAST, CrossSection, _domain
+from .fieldsolve import FAST, CrossSection, domain
+from .sections import edge_section
 from .solvecache import cached_solve
 
 #: Index of the aggressor and the victim in a two-conductor ``LineMatrices``.
@@ -312,7 +313,7 @@ def line_matrices(section: CrossSection, resolution: float = FAST) -> LineMatric
         ``C`` F/m, ``L`` H/m.
     """
     if section.box is None:
-        section = dataclasses.replace(section, box=_domain(section))
+        section = dataclasses.replace(section, box=domain(section))
     c = cached_solve(section, resolution).maxwell
     c0 = cached_solve(vacuum(section), resolution).maxwell
     if c.shape[0] not in (1, 2):
@@ -329,7 +330,6 @@ def same_layer_section(stackup: Stackup, layer: int, wa: float, wb: float, gap_m
     :func:`checker.physics.edge.edge_section` (planes, dielectrics and
     solder mask as for the edge-coupling tables), so both models see one
     geometry."""
-    from .edge import edge_section
 
     return edge_section(stackup, layer, wa, wb, gap_mm)
 

@@ -21,7 +21,7 @@ reads a package: it is turned into the same intermediate objects
 (:mod:`checker.readers.fab.layer`: a ``JobStackup``, one ``GerberLayer``
 per copper layer, one ``DrillFile`` per drill layer and plating, an
 outline polygon) and handed to
-:func:`checker.readers.fab.assemble.board_from_layers`, so everything after
+:func:`checker.readers.fab.build.board_from_layers`, so everything after
 the parse — roles, via pads joining their holes, nets by connectivity,
 notes — is the one shared assembly step.
 
@@ -208,7 +208,7 @@ from ..bounds import LOSS_TANGENT, PERMITTIVITY
 from ..errors import FabError
 from ..model import Board, CopperLayer, Dielectric, Stackup
 from .arcs import arc_polyline
-from .fab.assemble import board_from_layers
+from .fab.build import board_from_layers
 from .fab.gerber_apertures import disc, disc_vertex_count, obround
 from .fab.gerber_macros import contour_polygon, polygonal_part
 from .fab.gerber_sink import stroke_outline

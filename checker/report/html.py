@@ -20,18 +20,20 @@ import html
 import math
 import os
 import re
-from typing import Iterable
+from typing import TYPE_CHECKING, Iterable
 
 import numpy as np
 
 from .. import __version__
 from ..errors import InputError, UsageError
-from ..runner import Result
 from ..selection import selection_note
 from . import CAUTION
 from .json_report import summary
 from .svg import finding_number, render_svg
 from .visible import visible
+
+if TYPE_CHECKING:  # the runner renders reports: a type only
+    from ..runner import Result
 
 #: How many coupled net pairs the ranking shows.
 TOP_PAIRS = 20

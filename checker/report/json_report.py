@@ -12,16 +12,19 @@ import io
 import json
 import re
 import secrets
-from typing import Iterator, TextIO
+from typing import TYPE_CHECKING, Iterator, TextIO
 
 import numpy as np
 
 from .. import __version__, progress
+from ..coupling import KIND_NAMES
+from ..reportformat import REPORT_VERSION
 from ..review import review_dict, waiver_mark
-from ..runner import Result
 from . import CAUTION
 
-REPORT_VERSION = 1
+if TYPE_CHECKING:  # the runner renders reports: a type only
+    from ..runner import Result
+
 
 
 def summary(result: Result) -> dict:
@@ -213,7 +216,6 @@ def _group_name(a, group: tuple[int, int, int]) -> str:
 
 def by_layer_group(result: Result) -> list[dict]:
     """Totals per broadside layer pair and per layer (edge coupling)."""
-    from ..analysis import KIND_NAMES
 
     a = result.analysis
     c, p = a.couplings, a.net_pairs

@@ -49,6 +49,7 @@ import numpy as np
 import shapely
 
 from ..checks import REGISTRY
+from ..coupling import BROADSIDE, EDGE
 from ..findings import Finding
 from ..model import Board
 from . import raster
@@ -751,7 +752,6 @@ def _context(analysis, shown: list[Finding], frame: _Frame, rows_of: _RowFinder)
     islands that relay a net pair's coupling, guard traces in the gap of an
     edge-coupled pair and their stitching vias. Returns the SVG elements
     (board coordinates, inside the flipped group) and the kinds drawn."""
-    from ..analysis import BROADSIDE
 
     c = analysis.couplings
     board = analysis.board
@@ -927,7 +927,6 @@ class _RowFinder:
         return mine[other == ia]
 
     def _kinds(self, f: Finding) -> tuple[int, ...]:
-        from ..analysis import BROADSIDE, EDGE
 
         scope = getattr(REGISTRY.get(f.kind), "SCOPE", None)
         if scope == "broadside":

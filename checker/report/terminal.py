@@ -3,15 +3,19 @@ baseline), a summary line and the verdict."""
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 from rich.console import Console
 from rich.markup import escape
 from rich.table import Table
 
-from ..runner import Result
 from ..selection import selection_note
 from . import CAUTION
 from .json_report import summary
 from .visible import visible
+
+if TYPE_CHECKING:  # the runner renders reports: a type only
+    from ..runner import Result
 
 SEVERITY_STYLE = {"error": "bold red", "warning": "yellow"}
 STATUS_STYLE = {"new": "bold", "unchanged": "dim"}

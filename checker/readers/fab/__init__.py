@@ -4,6 +4,6 @@ same :class:`checker.model.Board` the JSON door produces.
 
 Each format has its own reader module returning a plain intermediate
 object (``layer.py``); ``package.py`` finds the files of a fabrication
-package, and ``assemble.py`` joins them into a Board (stackup, nets by
+package, ``assemble.py`` reads them and ``build.py`` joins the read layers into a Board (stackup, nets by
 attribute or by connectivity, vias from plated holes).
 """

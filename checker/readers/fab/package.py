@@ -40,6 +40,7 @@ from typing import BinaryIO, Callable
 
 from ... import limits
 from ...errors import FabError, UsageError
+from ..ipc2581 import is_ipc2581
 from .excellon import looks_like_drill
 from .identify import Guess, from_content, from_name
 from .source import Metered, PackageBudget
@@ -343,7 +344,6 @@ def sniff_kind(path: str) -> str | None:
 def _kind(head: bytes, stem: str, member: Member | None = None) -> str | None:
     text = head.lstrip(b"\xef\xbb\xbf \t\r\n")
     if text.startswith(b"<") or head.startswith((b"\xff\xfe", b"\xfe\xff")):
-        from ..ipc2581 import is_ipc2581  # late: that door imports the assembly, which imports this module
         return "ipc2581" if is_ipc2581(head) else None
     if text.startswith(b"{"):
         keys = (b'"MaterialStackup"', b'"GeneralSpecs"', b'"FilesAttributes"')
