@@ -18,9 +18,9 @@ import os
 import re
 import signal
 import tempfile
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Sequence
 from pathlib import Path
-from typing import TextIO
+from typing import Any
 
 from .errors import UsageError
 
@@ -31,7 +31,7 @@ TEMPORARY_NAME = re.compile(r"^\..*\.couplint-(\d+)-[A-Za-z0-9_]+\.tmp$", re.DOT
 _LIVE: set[str] = set()
 
 
-def write_atomically(path: str | os.PathLike, emit: Callable[[TextIO], None], binary: bool = False) -> None:
+def write_atomically(path: str | os.PathLike, emit: Callable[[Any], object], binary: bool = False) -> None:
     """Call ``emit(handle)`` on a temporary file beside ``path``, then rename
     it into place: an interrupted run leaves the old file intact and never a
     half-written one. ``binary``: the handle takes bytes (a PDF)."""
@@ -56,11 +56,11 @@ def write_atomically(path: str | os.PathLike, emit: Callable[[TextIO], None], bi
         _LIVE.discard(tmp)
 
 
-def sweep_leftovers(directory: str | os.PathLike) -> list[str]:
+def sweep_leftovers(directory: str | os.PathLike[str]) -> list[str]:
     """Remove our temporary files in ``directory`` whose writing process is
     gone (a run killed by SIGKILL); a live process's file is kept. Returns
     the names removed."""
-    removed = []
+    removed: list[str] = []
     try:
         entries = list(os.scandir(directory))
     except OSError:
@@ -126,7 +126,7 @@ def _running(pid: int) -> bool:
     return True
 
 
-def refuse_overwriting_inputs(out: str | os.PathLike, inputs: list[str | os.PathLike]) -> None:
+def refuse_overwriting_inputs(out: str | os.PathLike, inputs: Sequence[str | os.PathLike]) -> None:
     """Raise :class:`UsageError` if ``out`` is one of ``inputs``, or an
     existing file inside an input folder (a fabrication package)."""
     target = os.path.realpath(out)

@@ -474,7 +474,7 @@ def _baselines(baseline_dir: str | None, report_paths: dict[str, str]) -> dict[s
 
 def _check_outputs(boards: list[str], other_inputs: list[str | None], report_paths: dict[str, str],
                    summary_json: str | None, junit: str | None) -> None:
-    inputs = list(boards) + [p for p in other_inputs if p]
+    inputs: list[str | os.PathLike] = [*boards, *(p for p in other_inputs if p)]
     outputs = list(report_paths.values()) + [p for p in (summary_json, junit) if p]
     for out in outputs:
         refuse_overwriting_inputs(out, inputs)
@@ -563,7 +563,7 @@ def _pool_outcomes(boards: list[str], baselines: dict[str, str], options: dict, 
     return _Stream(gen(), lambda stopping: _close_pool(pool, stopping))
 
 
-def _outcome_of(future, path: str, broken: type) -> BoardOutcome:
+def _outcome_of(future, path: str, broken: type[BaseException] | tuple[type[BaseException], ...]) -> BoardOutcome:
     name = os.path.splitext(os.path.basename(path))[0]
     try:
         return future.result()
@@ -686,7 +686,7 @@ def print_table(outcomes: list[BoardOutcome], totals: dict, console=None) -> Non
     renamed = [o for o in sorted(outcomes, key=lambda o: o.path)
                if o.report_path and os.path.basename(o.report_path) != board_stem(o.path) + ".json"]
     if renamed:
-        shown = ", ".join(f"{o.path} -> {os.path.basename(o.report_path)}" for o in renamed[:6])
+        shown = ", ".join(f"{o.path} -> {os.path.basename(o.report_path or '')}" for o in renamed[:6])
         more = f" and {len(renamed) - 6} more" if len(renamed) > 6 else ""
         console.print(f"boards of the same name are filed with their folder (or their path's hash): {shown}{more}",
                       highlight=False, markup=False)

@@ -11,8 +11,10 @@ import argparse
 import os
 import sys
 import tempfile
+from functools import partial
 from importlib import resources
 from pathlib import Path
+from typing import Any
 
 from rich.console import Console
 from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
@@ -209,7 +211,7 @@ def main(argv: list[str] | None = None) -> int:
             return _dispatch(args)
     except Stopped as exc:  # SIGTERM or SIGHUP (see removing_temporaries_on_signals)
         print(f"couplint: stopped by a signal (exit {exc.code}); no output was left half-written", file=sys.stderr)
-        return int(exc.code)
+        return int(exc.code or 1)
     except CouplintError as exc:
         print(f"couplint: error: {visible(bounded(str(exc)), keep_lines=True)}", file=sys.stderr)
         return EXIT_BAD_INPUT
@@ -312,15 +314,15 @@ def _check(board_paths: list[str], args: argparse.Namespace) -> int:
     else:  # plain lines (CI logs): a long check says where it is every few seconds
         stage = progress.Stage("checking", unit="steps", scale=1,
                                total=analysis_steps(board, ruleset) + len(ruleset.rules))
-        at = ["preparing", 0]
+        at: dict[str, Any] = {"what": "preparing", "done": 0}
 
         def lines(what: str, done: int, total: int) -> None:
-            at[:] = [what, done]
+            at.update(what=what, done=done)
             stage.total = total
             stage.at(done, what)
 
         def within(text: str) -> None:
-            stage.at(at[1], f"{at[0]}: {text}")
+            stage.at(at["done"], f"{at['what']}: {text}")
 
         with progress.details_to(within):
             result = check_board(board, ruleset, progress=lines, accurate=args.accurate, what_if=args.what_if)
@@ -358,6 +360,10 @@ def _files_of(paths: list[str]) -> list[str]:
     return out
 
 
+def _write_to(handle, content) -> None:
+    handle.write(content)
+
+
 def _write_deliverables(result, args: argparse.Namespace, inputs: list[str]) -> None:
     """The overlay, HTML, PDF and JUnit files asked for: every one is made
     first, then each is written atomically, so a failure (a PDF library
@@ -384,7 +390,7 @@ def _write_deliverables(result, args: argparse.Namespace, inputs: list[str]) -> 
     if args.svg_dir:
         Path(args.svg_dir).mkdir(parents=True, exist_ok=True)
     for path, content, binary in files:
-        write_atomically(path, lambda handle, content=content: handle.write(content), binary=binary)
+        write_atomically(path, partial(_write_to, content=content), binary=binary)
 
 
 def _waive(args: argparse.Namespace) -> int:
@@ -481,7 +487,7 @@ def _kinds(kind: str | None) -> int:
     console = Console()
     if kind is None:
         for name, module in REGISTRY.items():
-            first = inspect.getdoc(module).splitlines()[0]
+            first = (inspect.getdoc(module) or name).splitlines()[0]
             console.print(f"[bold]{name}[/]  {first.split(':', 1)[-1].strip()}", highlight=False)
         return EXIT_CLEAN
     if kind not in REGISTRY:

@@ -71,7 +71,7 @@ class Survey:
 def survey(board: Board, ruleset: RuleSet) -> Survey:
     """The :class:`Survey` of ``board``'s nets under ``ruleset``."""
     names = [n.name for n in board.nets]
-    is_ref = reference_mask(names, ruleset.settings.reference_nets) if names else []
+    is_ref: list[bool] = list(reference_mask(names, ruleset.settings.reference_nets)) if names else []
     reference = sorted(n for n, r in zip(names, is_ref) if r)
     catches = []
     caught: set[str] = set()
@@ -84,7 +84,7 @@ def survey(board: Board, ruleset: RuleSet) -> Survey:
             caught.update(found)
         catches.append(ClassCatch(c, by_pattern))
     hinted: dict[str, list[str]] = {hint: [] for hint in NAME_HINTS}
-    other = []
+    other: list[str] = []
     for n in sorted(set(names) - caught - set(reference)):
         hint = next((h for h, rx in NAME_HINTS.items()
                      if rx.search(n) and not (h == "an analog input" and DIGITAL_NAMES.search(n))), None)

@@ -176,7 +176,7 @@ def return_gaps(board: Board, ref: ReferenceCopper) -> ReturnGaps:
     done: dict[tuple[int, int], dict | None] = {}
     for part in ordered_map(over, sorted({k for _, k in jobs})):
         done.update(part)
-    chunks = [done[job] for job in jobs if done[job] is not None]
+    chunks: list[dict] = [c for c in (done[job] for job in jobs) if c is not None]
     if not chunks:
         return ReturnGaps.empty(by_layer)
     cols = {name: np.concatenate([c[name] for c in chunks]) for name in chunks[0]}

@@ -117,7 +117,8 @@ class Waiver:
         """What it matches, in one short phrase."""
         if self.id is not None:
             return f"id {self.id}"
-        text = f"rule {self.rule}, nets {self.nets[0]} -> {self.nets[1]}"
+        nets = self.nets or ("*", "*")  # a waiver by pattern always has its nets (checked when read)
+        text = f"rule {self.rule}, nets {nets[0]} -> {nets[1]}"
         return text + (f", layers {self.layers}" if self.layers is not None else "")
 
 
@@ -277,11 +278,11 @@ def parse_waivers(text: str, file: str) -> WaiverFile:
                                                             f"each id may be waived once", _line(item))
             first_id[w.id] = here
         else:
-            key = (w.rule, w.nets, w.layers)
-            if key in first_pattern:
-                raise WaiverError(file, place, f"same rule, nets and layers as {first_pattern[key]}; "
+            pattern = (w.rule, w.nets, w.layers)
+            if pattern in first_pattern:
+                raise WaiverError(file, place, f"same rule, nets and layers as {first_pattern[pattern]}; "
                                                f"merge the two entries", _line(item))
-            first_pattern[key] = here
+            first_pattern[pattern] = here
         waivers.append(w)
     indent = entries.start_mark.column if entries.value and not entries.flow_style else None
     return WaiverFile(file, tuple(waivers), indent)
@@ -602,7 +603,7 @@ def load_baseline(path: str | os.PathLike[str]) -> Baseline:
         out = _Object(items)
         if len(out) != len(items):
             seen: set[str] = set()
-            out.duplicate = next(k for k, _ in items if k in seen or seen.add(k))
+            out.duplicate = next(k for k, _ in items if k in seen or seen.add(k))  # type: ignore[func-returns-value]
         return out
 
     try:

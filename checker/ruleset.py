@@ -329,11 +329,12 @@ def ruleset_named(given: str | os.PathLike[str] | None) -> RuleSet:
         return default_ruleset()
     text = os.fspath(given)
     path = pathlib.Path(text)
-    if not path.exists() and NAME_PATTERN.match(text) and _find_shipped(text) is not None:
-        return load_ruleset(_find_shipped(text))
+    shipped = _find_shipped(text) if not path.exists() and NAME_PATTERN.match(text) else None
+    if shipped is not None:
+        return load_ruleset(shipped)
     if not path.exists():
-        shipped = ", ".join(shipped_ruleset_names()) or "none"
-        raise RuleError(text, None, f"no such file, and no shipped rule set of that name (shipped: {shipped})")
+        names = ", ".join(shipped_ruleset_names()) or "none"
+        raise RuleError(text, None, f"no such file, and no shipped rule set of that name (shipped: {names})")
     return load_ruleset(path)
 
 

@@ -88,11 +88,12 @@ class Selection:
         batch, where one board may lack a net another has)."""
         known = {"rule": [n for pair in rules for n in pair], "net": nets, "layer": layers}
         for key, pattern in self.terms:
-            if key == "severity" or known[key] is None:
+            names = known.get(key)
+            if names is None:  # severity, or a list not given
                 continue
             compiled = _pattern(pattern, f"{key}={pattern}")
-            if not any(compiled.search(name) for name in known[key]):
-                sample = ", ".join(sorted(set(known[key]))[:8]) or "none"
+            if not any(compiled.search(name) for name in names):
+                sample = ", ".join(sorted(set(names))[:8]) or "none"
                 raise UsageError(f"--only {key}={pattern}: matches no {_NOUN[key]} (they include: {sample})")
 
     def matcher(self):

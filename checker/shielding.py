@@ -320,7 +320,8 @@ def reference_copper(board: Board, patterns) -> ReferenceCopper:
 def effective_stackup(stackup: Stackup, ref: ReferenceCopper) -> Stackup:
     """The stackup with every layer's role decided by its reference copper
     (module docstring, "Roles from copper")."""
-    layers = tuple(CopperLayer(layer.name, ref.role(k), layer.thickness_mm) for k, layer in enumerate(stackup.layers))
+    layers = tuple(CopperLayer(layer.name, ref.role(k), layer.thickness_mm)  # type: ignore[arg-type]  # a role
+                   for k, layer in enumerate(stackup.layers))
     return replace(stackup, layers=layers)
 
 
@@ -397,7 +398,9 @@ def split_shielded(board: Board, ref: ReferenceCopper, table, upper: int, lower:
     tiles, tree = ref.open_space(upper, lower)
     # a row whose window's bounding box meets no open space lies wholly over reference copper
     # (the raster prefilter answers "may meet": the exact test on the window follows)
-    rows = np.flatnonzero(ref.open_mask(upper, lower).touches(*_window_bounds(p, table, m)))
+    mask = ref.open_mask(upper, lower)
+    assert mask is not None  # there is reference copper between: ref.between gave a shield
+    rows = np.flatnonzero(mask.touches(*_window_bounds(p, table, m)))
     open_fraction[:] = 0.0
     if rows.size == 0:
         return ShieldSplit(open_fraction, shield_layer)

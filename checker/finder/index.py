@@ -233,7 +233,7 @@ def overlapping_pairs(
     if chunk_pairs < 1:
         raise ValueError(f"chunk_pairs must be >= 1, got {chunk_pairs}")
     self_join = boxes_b is None
-    bb = boxes_a if self_join else boxes_b
+    bb: Boxes = boxes_a if boxes_b is None else boxes_b
     if len(boxes_a) == 0 or len(bb) == 0:
         return
     if grid is None:

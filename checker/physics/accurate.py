@@ -61,6 +61,7 @@ def _extrapolated(cs: CrossSection) -> np.ndarray:
     ``ACCURATE_RESOLUTION`` / 2 and ``ACCURATE_RESOLUTION``; an entry whose
     sign the extrapolation would flip keeps the finer solve's value."""
     r = cached_solve(cs, ACCURATE_RESOLUTION / 2, richardson=True)
+    assert r.extrapolated is not None and r.error is not None  # asked for with richardson=True
     out = r.extrapolated.copy()
     flipped = np.sign(out) != np.sign(r.maxwell)
     out[flipped] = r.maxwell[flipped]

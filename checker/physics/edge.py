@@ -236,7 +236,8 @@ def _solve_all(sections: list[CrossSection], resolution: float) -> tuple[list[tu
     deterministic), through ``sections.solve_shared`` (a section identical
     to one solved before is not solved again); and how many were shared."""
     results, shared = solve_shared(sections, resolution, richardson=True)
-    return [(r.extrapolated, r.maxwell) for r in results], shared
+    assert all(r.extrapolated is not None for r in results)  # asked for with richardson=True
+    return [(r.extrapolated, r.maxwell) for r in results], shared  # type: ignore[misc]
 
 
 #: Between two planes, a gap knot is put at this many plane spacings b and
@@ -440,7 +441,7 @@ class EdgeModel:
             slope = (lnc[1] - lnc[0]) / (lng[1] - lng[0])
             out[below] = lnc[0] + slope * (u[below] - lng[0])
         anchor = self.tail_anchor_mm
-        if anchor is not None:  # between planes, beyond the anchor: the decay law itself
+        if anchor is not None and self.decay_per_mm is not None:  # between planes, past the anchor: the decay law
             k = int(np.flatnonzero(self.gaps == anchor)[0])
             tail = gap > anchor
             out[tail] = lnc[k] - self.decay_per_mm * (gap[tail] - anchor)

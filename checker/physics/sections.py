@@ -66,6 +66,7 @@ def _canonical(cs: CrossSection, resolution: float, richardson: bool) -> tuple[t
     box, or a signal net drawn as more than one conductor."""
     if not cs.conductors or not all(isinstance(c, Conductor) for c in cs.conductors) or cs.box is not None:
         return None, ()
+    rects = [c for c in cs.conductors if isinstance(c, Conductor)]  # all of them (checked above)
     signal = [c.net for c in cs.conductors if c.net != GROUND]
     if len(set(signal)) != len(signal):
         return None, ()
@@ -77,14 +78,14 @@ def _canonical(cs: CrossSection, resolution: float, richardson: bool) -> tuple[t
         return round(float(v), _SIGNATURE_DECIMALS) + 0.0  # + 0.0: no -0.0
 
     def variant(sy: float, sx: float) -> tuple[tuple, tuple[int, ...]]:
-        ys = [sy * c.y0 for c in cs.conductors] + [sy * c.y1 for c in cs.conductors]
+        ys = [sy * c.y0 for c in rects] + [sy * c.y1 for c in rects]
         base = min(ys)
 
         def y(v: float) -> float:
             return r(sy * v - base)
 
         drawn = sorted(((*sorted((r(sx * c.x0), r(sx * c.x1))), *sorted((y(c.y0), y(c.y1))), c.net == GROUND),
-                        c.net) for c in cs.conductors)
+                        c.net) for c in rects)
         conductors = tuple(geom for geom, _ in drawn)
         order = tuple(net for (*_, ground), net in drawn if not ground)
         slabs = tuple(sorted((*sorted((y(v.y0), y(v.y1))), r(v.er)) for v in cs.slabs))
@@ -161,7 +162,7 @@ def solve_shared(sections: list[CrossSection], resolution: float,
     with _shared_lock:
         for i in first:
             if keys[i] is not None:
-                _shared[keys[i]] = in_key[i]
+                _shared[keys[i]] = in_key[i]  # type: ignore[index]  # None keys are skipped above
         while len(_shared) > SHARED_CACHE_SIZE:
             _shared.popitem(last=False)
     for i, key in enumerate(keys):

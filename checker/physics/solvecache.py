@@ -28,6 +28,7 @@ import tempfile
 import threading
 import time
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import scipy
@@ -96,7 +97,7 @@ def _load(path: Path, richardson: bool) -> CapacitanceResult | None:
             error = np.array(npz["error"], dtype=np.float64) if richardson else None
             extrapolated = np.array(npz["extrapolated"], dtype=np.float64) if richardson else None
         n = maxwell.shape[0]
-        arrays = [maxwell] + ([error, extrapolated] if richardson else [])
+        arrays = [maxwell] + ([error, extrapolated] if error is not None and extrapolated is not None else [])
         if (maxwell.ndim != 2 or maxwell.shape != (n, n) or meta.shape != (3,)
                 or any(a.shape != (n, n) or not np.all(np.isfinite(a)) for a in arrays)
                 or not np.all(np.isfinite(meta))):
@@ -111,7 +112,7 @@ def _load(path: Path, richardson: bool) -> CapacitanceResult | None:
 
 def _store(path: Path, result: CapacitanceResult) -> None:
     global _stores
-    arrays = {"maxwell": result.maxwell,
+    arrays: dict[str, Any] = {"maxwell": result.maxwell,
               "meta": np.array([result.resolution, result.nodes[0], result.nodes[1]], dtype=np.float64)}
     if result.error is not None and result.extrapolated is not None:
         arrays["error"] = result.error

@@ -361,7 +361,7 @@ def _parse_json(text: str, file: str) -> tuple[Any, bool]:
         if len(out) == len(items):
             return out
         seen: set[str] = set()
-        dup = next(k for k, _ in items if k in seen or seen.add(k))
+        dup = next(k for k, _ in items if k in seen or seen.add(k))  # type: ignore[func-returns-value]
         flagged = _DuplicateKeys(out)
         flagged.duplicate = dup
         duplicates.append(dup)
@@ -870,6 +870,7 @@ class _Builder:
     def tracks(self, tracks: list) -> None:
         """All tracks at once (:meth:`track_columns`), from their objects,
         or from the typed tracks of the quick parse (:func:`_read_fast`)."""
+        get: Callable[[str], Callable[[Any], Any]]
         if self.quick_tracks is not None:
             tracks, get = self.quick_tracks, attrgetter
         else:
@@ -911,8 +912,9 @@ class _Builder:
         before = np.concatenate(([0], np.cumsum(kept_per_track)[:-1]))
         ordinal = np.arange(len(owner)) - before[owner]
         width = np.fromiter(widths, dtype=np.float64, count=t) * self.scale
-        k = self.first_outside(width, TRACE_WIDTH)
-        if k is not None:
+        bad = self.first_outside(width, TRACE_WIDTH)
+        if bad is not None:
+            k = bad
             self.length(("tracks", k, "width"), widths[k], TRACE_WIDTH)
         base = len(self.sources)
         self.sources.extend(map("tracks[{}]".format, range(t)))
@@ -1018,8 +1020,9 @@ class _Builder:
         drill = np.fromiter((v["drill"] for v in vias), dtype=np.float64, count=n)
         pad = np.fromiter((v["pad"] for v in vias), dtype=np.float64, count=n)
         for key, column in (("drill", drill), ("pad", pad)):  # pad > drill is checked next
-            k = self.first_outside(column * self.scale, HOLE)
-            if k is not None:
+            bad = self.first_outside(column * self.scale, HOLE)
+            if bad is not None:
+                k = bad
                 self.length(("vias", k, key), vias[k][key], HOLE)
         small = np.flatnonzero(pad <= drill)
         if len(small):

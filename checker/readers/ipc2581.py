@@ -336,7 +336,7 @@ def is_ipc2581(head: bytes) -> bool:
     text = _utf8_head(head)
     i, n = 0, len(text)
     while i < n:
-        i = _SPACE.match(text, i).end()
+        i = _SPACE.match(text, i).end()  # type: ignore[union-attr]  # \s* always matches
         if text.startswith(b"<?", i):
             end = text.find(b"?>", i + 2)
             step = 2
@@ -462,7 +462,7 @@ def _not_xml(head: bytes, data, name: str) -> None:
     else:
         text = bytes(data)
         start = len(_UTF8_BOM) if text.startswith(_UTF8_BOM) else 0
-    first = _SPACE.match(text, start).end()
+    first = _SPACE.match(text, start).end()  # type: ignore[union-attr]  # \s* always matches
     if first == len(text):
         if len(head) == len(data) or not head.startswith(_UTF16_BOMS):
             raise FabError(name, None, "the file holds only white space: not an IPC-2581 file")
@@ -782,7 +782,7 @@ class _Reader:
                          board_thickness_mm=None, layer_count=n, roles_given=False, notes=job_notes)
         gerbers = {builders[name].number: builders[name].layer(self.name) for name in copper}
         drill_files = [f for d in drills.values() for f in d.files(self.name)]
-        given = {}
+        given: dict[int, str | None] = {}
         for name in copper:
             role = roles[name]
             if role is None:
@@ -1448,7 +1448,8 @@ class _Reader:
             p = self.apply(xf, np.array([[c("startX"), c("startY")], [c("endX"), c("endY")],
                                          [c("centerX"), c("centerY")]]))
             clockwise = self.clockwise(elem, path) != _mirrors(xf)
-            return self.arc(elem, path, *p[0], *p[1], *p[2], clockwise)
+            (x0, y0), (x1, y1), (xc, yc) = p.tolist()
+            return self.arc(elem, path, x0, y0, x1, y1, xc, yc, clockwise)
         return self.apply(xf, self.poly_points(elem, path, scale, closed=False))
 
     def clockwise(self, elem: Element, path: str) -> bool:

@@ -115,8 +115,8 @@ def pair_order(result: Result, limit: int | None = DEFAULT_PAIRS) -> np.ndarray:
     keep = np.zeros(order.size, dtype=bool)
     keep[:limit] = True
     index = result.analysis.board.net_index()
-    named = {(index.get(f.aggressor, -1), index.get(f.victim, -1)) for f in result.findings}
-    named = [(min(a, b), max(a, b)) for a, b in named if a >= 0 and b >= 0]
+    ends = {(index.get(f.aggressor, -1), index.get(f.victim, -1)) for f in result.findings}
+    named = [(min(a, b), max(a, b)) for a, b in ends if a >= 0 and b >= 0]
     if named:
         wanted = np.array(named, dtype=np.int64)
         lo, hi = np.minimum(p.net_a, p.net_b)[order], np.maximum(p.net_a, p.net_b)[order]

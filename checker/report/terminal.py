@@ -120,9 +120,9 @@ def render(result: Result, console: Console) -> None:
         f"{a.mode} mode, {result.seconds:.2f} s",
         highlight=False,
     )
-    note = selection_note(result)
-    if note is not None:
-        console.print(visible(note), highlight=False, markup=False)
+    selected = selection_note(result)
+    if selected is not None:
+        console.print(visible(selected), highlight=False, markup=False)
     console.print(f"[dim]{CAUTION}[/]", highlight=False)
     console.print(_verdict_line(result, s), highlight=False)
 

@@ -90,7 +90,7 @@ def load_package(paths: list[str], stackup: str | None = None, netlist: str | No
     board = board_from_layers(found.name, found.path, job, gerbers, drills, nets_file, outline, notes,
                               given_roles=given, file_names=files)
     check_geometry(board)
-    return dataclasses.replace(board, files=tuple(sorted(found.read_as)))
+    return dataclasses.replace(board, files=tuple(sorted((f, r, h or "") for f, r, h in found.read_as)))
 
 
 def _from_ipc2581(found: Sorted, stackup: str | None, netlist: str | None, layers: list[str] | None) -> Board:

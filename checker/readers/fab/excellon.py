@@ -382,8 +382,8 @@ def _read_format_comment(c: _FormatComment, body: str, line: int) -> None:
 
 def _item(name: str, value: object) -> str:
     if name == "digits":
-        whole, frac = value  # type: ignore[misc]
-        return f"{whole}.{frac}"
+        digits: tuple[int, int] = value  # type: ignore[assignment]  # what a digits note holds
+        return f"{digits[0]}.{digits[1]}"
     if name == "unit":
         return "inch" if value == "in" else "mm"
     return str(value)
@@ -700,7 +700,7 @@ class _Parser:
             if c.unit is not None:
                 if overridden:
                     self.note(f"line {c.line}: the format comment's unit ({_unit_name(c.unit)}) is overridden by the "
-                              f"unit command on line {stated[1]} ({_unit_name(stated[0])}): commands win over comments"
+                              f"unit command on line {stated[1]} ({_unit_name(stated[0])}): commands win over comments"  # type: ignore[index]  # noqa: E501
                               + (", and the comment's digit format, meant for its own unit, is not used either"
                                  if c.digits is not None else ""))
                     self.comment_unit = None
@@ -845,7 +845,7 @@ class _Parser:
                     self.fail(f"digit format {part!r} has more than {MAX_DIGITS} digits")
                 self.digits = (len(whole), len(frac))
                 if self.comment_digits not in (None, self.digits):
-                    cw, cf = self.comment_digits  # type: ignore[misc]
+                    cw, cf = self.comment_digits
                     self.note(f"line {self.line}: the digit format {len(whole)}.{len(frac)} overrides the format "
                               f"comment's {cw}.{cf}: commands win over comments")
             else:
@@ -1089,7 +1089,7 @@ class _Parser:
 
         plated, hole_plated = self.plated, None
         if self.type_seen and self.span is None:  # an X2 file function, if any, says more
-            kinds = [self.tool_plated.get(t) for t in self.hole_tool]
+            kinds = [self.tool_plated.get(t) if t is not None else None for t in self.hole_tool]
             kinds = [True if k is None else k for k in kinds]  # a tool before any ;TYPE: plated (the default)
             if kinds and all(kinds):
                 plated = True

@@ -72,7 +72,7 @@ class CommandSplitter:
         i, n = 0, len(data)
         while i < n:
             if not self.pending:
-                i = _WHITESPACE.match(data, i).end()
+                i = _WHITESPACE.match(data, i).end()  # type: ignore[union-attr]  # \s* always matches
                 if i >= n:
                     break
             star = data.find(b"*", i)

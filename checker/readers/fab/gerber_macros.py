@@ -43,6 +43,9 @@ MAX_MOIRE_RINGS = 1000
 class MacroError(ValueError):
     """A macro that cannot be read or instantiated; the reader adds file and line."""
 
+    #: the line of the macro word at fault, where known
+    line: int | None = None
+
 
 _TOKEN = re.compile(r"(\d+\.?\d*|\.\d+)|\$(\d+)|([-+xX/()])")
 
@@ -352,6 +355,7 @@ def instantiate(macro: ApertureMacro, values: list[float]) -> shapely.Geometry:
     shape: shapely.Geometry = EMPTY
     for word in macro.words:
         if word.code is None:
+            assert word.variable is not None  # a word without a code assigns a variable
             variables[word.variable] = _finite(evaluate(word.parameters[0], variables), macro.name)
             continue
         params = [_finite(evaluate(t, variables), macro.name) for t in word.parameters]

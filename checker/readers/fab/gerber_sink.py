@@ -64,7 +64,8 @@ def stroke_outline(points: np.ndarray, width: float) -> shapely.Geometry:
     step = np.any(points[1:] != points[:-1], axis=1)
     if not step.any():
         return disc(float(points[0, 0]), float(points[0, 1]), width / 2)
-    parts = [stadium(*points[k], *points[k + 1], width) for k in np.flatnonzero(step).tolist()]
+    xy = points.tolist()
+    parts = [stadium(xy[k][0], xy[k][1], xy[k + 1][0], xy[k + 1][1], width) for k in np.flatnonzero(step).tolist()]
     return parts[0] if len(parts) == 1 else shapely.union_all(parts)
 
 
@@ -179,6 +180,7 @@ class ObjectSink:
         # ones matters, and that is what strokes_before / shapes_before record.
         starts = list(self.s_start) + [n]
         moved_points = np.column_stack((nx, ny))
+        next_stroke = next_shape = 0  # how far each kind has been turned into clear objects
 
         def strokes_as_clears(upto: int) -> None:
             nonlocal next_stroke
@@ -195,7 +197,6 @@ class ObjectSink:
                 dst.add_clear(moved(self.shapes[next_shape]))
                 next_shape += 1
 
-        next_stroke = next_shape = 0
         for c in self.clears:
             strokes_as_clears(c.strokes_before)
             shapes_as_clears(c.shapes_before)

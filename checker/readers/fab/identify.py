@@ -56,6 +56,7 @@ known: top is 1, bottom the last, inner layers in their series' order.
 from __future__ import annotations
 
 import re
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 from ...errors import FabError
@@ -236,7 +237,7 @@ def from_content(head: bytes) -> Guess:
 
 
 def number_copper(guesses: list[tuple[str, Guess]], taken: dict[int, str], count: int,
-                  roles: list[str] | None, where: str) -> dict[int, tuple[str, Guess]]:
+                  roles: Sequence[str] | None, where: str) -> dict[int, tuple[str, Guess]]:
     """Layer numbers (1 = top ... ``count``) for the guessed copper files.
 
     ``guesses``: (file name, guess) of every copper guess; ``taken``: layer
@@ -282,6 +283,7 @@ def number_copper(guesses: list[tuple[str, Guess]], taken: dict[int, str], count
         if roles is None:
             fail("inner layers come in a signal series (.g<k>) and a plane series (.gp<k>) and the stackup "
                  "gives no layer roles to interleave them")
+        assert roles is not None  # fail() raises
         planes = [n for n in inner_free if roles[n - 1] == "plane"]
         others = [n for n in inner_free if roles[n - 1] != "plane"]
         for kind, slots in (("gp", planes), ("g", others)):

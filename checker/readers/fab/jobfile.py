@@ -140,10 +140,11 @@ def series_dielectric(layers: list[tuple[float, float, float | None, str | None,
     rule (``None`` if any part lacks one). Every fabrication door with a
     layered stackup uses it."""
     total = sum(t for t, _, _, _, _ in layers)
-    er = _series(total, [(t, e) for t, e, _, _, _ in layers])
+    er = _series(total, [(t, e) for t, e, _, _, _ in layers]).real
     tan_d = None
-    if all(tan is not None for _, _, tan, _, _ in layers):
-        eps = _series(total, [(t, e * complex(1.0, -tan)) for t, e, tan, _, _ in layers])
+    tans = [tan for _, _, tan, _, _ in layers]
+    if all(tan is not None for tan in tans):
+        eps = _series(total, [(t, e * complex(1.0, -tan)) for (t, e, *_), tan in zip(layers, tans) if tan is not None])
         tan_d = -eps.imag / eps.real
     names = [n for _, _, _, n, _ in layers if n]
     assumed = tuple(sorted({a for *_, parts_assumed in layers for a in parts_assumed}))
@@ -183,7 +184,7 @@ def _parse(stream: BinaryIO, name: str) -> Any:
             return out
         seen: set[str] = set()
         flagged = _Repeated(out)
-        flagged.repeated = next(k for k, _ in items if k in seen or seen.add(k))
+        flagged.repeated = next(k for k, _ in items if k in seen or seen.add(k))  # type: ignore[func-returns-value]
         return flagged
 
     def constant(word: str) -> float:

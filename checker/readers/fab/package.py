@@ -36,7 +36,7 @@ import zipfile
 import zlib
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import BinaryIO, Callable
+from typing import BinaryIO, Callable, cast
 
 from ... import limits
 from ...errors import FabError, UsageError
@@ -86,7 +86,7 @@ class Sorted:
     #: the stackup is known
     guessed: list[tuple[Member, Guess]] = field(default_factory=list)
     #: (file, read as, how it was decided) for every file but guessed copper
-    read_as: list[tuple[str, str, str]] = field(default_factory=list)
+    read_as: list[tuple[str, str, str | None]] = field(default_factory=list)
 
 
 def is_package(paths: list[str]) -> bool:
@@ -114,7 +114,7 @@ def collect(paths: list[str], layer_overrides: dict[str, str] | None = None) -> 
     ipc2581: list[Member] = []
     skipped: list[str] = []
     guessed: list[tuple[Member, Guess]] = []
-    read_as: list[tuple[str, str, str]] = []
+    read_as: list[tuple[str, str, str | None]] = []
     common = _common_stem([m.name for m in members])
     for m in members:
         override = _override_for(m, overrides, used)
@@ -166,7 +166,7 @@ def collect(paths: list[str], layer_overrides: dict[str, str] | None = None) -> 
             profile = m
             read_as.append((m.name, "board outline", why))
         else:
-            skipped.append(f"{m.name} ({why}; {profile.name} is used as the outline)")
+            skipped.append(f"{m.name} ({why}; {profile.name if profile else '?'} is used as the outline)")
             read_as.append((m.name, "not read", f"{why}; another file is the outline"))
     unknown = sorted(set(overrides) - used)
     if unknown:
@@ -267,7 +267,7 @@ def _file_member(p: Path, budget: PackageBudget) -> Member:
 
     def opener(p: Path = p) -> BinaryIO:
         try:
-            return Metered(open(p, "rb"), str(p), size, budget)
+            return cast(BinaryIO, Metered(open(p, "rb"), str(p), size, budget))  # reads like one
         except OSError as exc:
             raise FabError(str(p), None, f"cannot read: {exc.strerror or exc}") from None
 
@@ -292,7 +292,8 @@ def _zip_members(path: str, budget: PackageBudget) -> list[Member]:
 
         def opener(info: zipfile.ZipInfo = info, name: str = name) -> BinaryIO:
             try:
-                return Metered(archive.open(info), name, info.file_size, budget)  # counted while inflating
+                # counted while inflating; reads like a binary stream
+                return cast(BinaryIO, Metered(cast(BinaryIO, archive.open(info)), name, info.file_size, budget))
             except (OSError, zipfile.BadZipFile, RuntimeError, NotImplementedError, ValueError) as exc:
                 raise FabError(name, None, f"cannot extract from the archive: {exc}") from None
 
@@ -401,8 +402,8 @@ def _gerber_identity(m: Member, head: bytes, override: str | None) -> tuple[int 
     if override is not None:
         if override == "profile":
             return None, None, True, "--layer"
-        number, _, role = override[1:].partition(",")
-        return int(number), role or None, False, "--layer"
+        number, _, given = override[1:].partition(",")
+        return int(number), given or None, False, "--layer"
     found = _FILE_FUNCTION.search(head)
     if found is not None:
         fields = [f.strip() for f in found.group(1).decode("ascii", "replace").split(",")]

@@ -7,7 +7,7 @@ import os
 import re
 import zipfile
 import zlib
-from typing import BinaryIO, Callable, TypeVar
+from typing import BinaryIO, Callable, TypeVar, cast
 
 from ... import limits, progress
 from ...describe import shorten
@@ -23,7 +23,8 @@ def read_path(path: str | os.PathLike[str], reader: Callable[[BinaryIO, str], T]
     file = os.fspath(path)
     try:
         with open(file, "rb") as stream:
-            return reader(Metered(stream, file, os.fstat(stream.fileno()).st_size), file)
+            # Metered reads like a binary stream (read, readline, iteration): what every reader uses
+            return reader(cast(BinaryIO, Metered(stream, file, os.fstat(stream.fileno()).st_size)), file)
     except FileNotFoundError:
         raise FabError(file, None, "no such file") from None
     except IsADirectoryError:

@@ -177,6 +177,7 @@ def _thicknesses_in_mm(entries: list, units: Any, fail) -> list:
             if factor is None:
                 fail(place, f"{needs_unit('length', f'{value:g}')}; or give the unit of every bare number "
                             "with a top-level 'units:' key")
+            assert factor is not None  # fail() raises
             entry = {**entry, "thickness": value * factor}
         out.append(entry)
     return out
