@@ -144,7 +144,8 @@ def _check_one(path: str, rules: str | None, fail_on: str, waivers: str | None, 
         name = board.name
         waiver_file = baseline_report = None
         if waivers or baseline:  # read every input before the check
-            from .review import load_baseline, load_waivers
+            from .baseline import load_baseline
+            from .waivers import load_waivers
 
             waiver_file = load_waivers(waivers) if waivers else None
             baseline_report = load_baseline(baseline) if baseline else None
@@ -282,8 +283,8 @@ def run(args: argparse.Namespace) -> int:
         selection.validate([(r.name, r.kind) for r in ruleset.rules])
     today = None
     if args.waivers:
-        from .review import load_waivers
-        from .review import today as review_today
+        from .waivers import load_waivers
+        from .waivers import today as review_today
 
         load_waivers(args.waivers)
         today = review_today()  # one date for every board, also on remote workers

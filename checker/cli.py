@@ -31,8 +31,9 @@ from .errors import CouplintError, UsageError, bounded
 from .report import html as html_report
 from .report import json_report
 from .report.visible import visible
-from .review import DEFAULT_WAIVER_FILE, FAIL_ON, TODAY_ENV
+from .review import FAIL_ON
 from .selection import Selection, apply_selection
+from .waivers import DEFAULT_WAIVER_FILE, TODAY_ENV
 
 EXIT_CLEAN, EXIT_FINDINGS, EXIT_BAD_INPUT, EXIT_INTERNAL = 0, 1, 2, 3
 
@@ -270,10 +271,12 @@ def _load(board_paths: list[str], args: argparse.Namespace):
 
 def _check(board_paths: list[str], args: argparse.Namespace) -> int:
     from .analysis import analysis_steps
+    from .baseline import load_baseline
     from .report import terminal
-    from .review import build_review, load_baseline, load_waivers, today
+    from .review import build_review
     from .ruleset import ruleset_named
     from .runner import check_board
+    from .waivers import load_waivers, today
 
     refuse_shared_outputs([("--out", args.out), ("--svg", args.svg), ("--html", args.html), ("--pdf", args.pdf),
                            ("--junit", args.junit)])
@@ -394,7 +397,7 @@ def _write_deliverables(result, args: argparse.Namespace, inputs: list[str]) -> 
 
 
 def _waive(args: argparse.Namespace) -> int:
-    from .review import ID_PATTERN, append_waiver, parse_date
+    from .waivers import ID_PATTERN, append_waiver, parse_date
 
     if not ID_PATTERN.match(args.id.strip()):
         raise UsageError(f"{args.id!r} is not a finding id (12 hex digits, as 'couplint check' prints in "
@@ -421,7 +424,7 @@ def _waive(args: argparse.Namespace) -> int:
 def _finding_in_report(report: str, finding_id: str) -> dict:
     """The finding ``finding_id`` of the JSON report ``report``; a usage
     error naming the report when it has no such finding."""
-    from .review import load_baseline
+    from .baseline import load_baseline
 
     findings = load_baseline(report).findings  # the baseline reader words a bad report
     for f in findings:

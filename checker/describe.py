@@ -55,3 +55,29 @@ def describe_value(value: Any, limit: int = VALUE_CHARS) -> str:
     if isinstance(value, dict):
         return "an object"
     return type(value).__name__
+
+
+def describe_words(value: Any, json: bool = False) -> str:
+    """A parsed value named in words, for "expected ..., got ..." messages:
+    ``the number 3``, ``the text 'x'``, ``true (a boolean)``, ``a list``,
+    ``a mapping`` (``an object`` and plain ``null`` with ``json``, for JSON
+    files), ``null (nothing)``; long numbers and texts shortened.
+
+    >>> describe_words(True), describe_words({}), describe_words({}, json=True)
+    ('true (a boolean)', 'a mapping', 'an object')
+    >>> describe_words("x" * 100)
+    "the text 'xxxxxxxxxxxxxxxxxx...xxxxxxxxxxxxxxxxx'"
+    """
+    if value is None:
+        return "null" if json else "null (nothing)"
+    if isinstance(value, bool):
+        return f"{str(value).lower()} (a boolean)"
+    if isinstance(value, dict):
+        return "an object" if json else "a mapping"
+    if isinstance(value, (list, tuple)):
+        return "a list"
+    if isinstance(value, (int, float)):
+        return f"the number {describe_value(value)}"
+    if isinstance(value, str):
+        return f"the text {shorten(repr(value), VALUE_CHARS)}"
+    return f"{shorten(repr(value), VALUE_CHARS)} ({type(value).__name__})"

@@ -10,9 +10,13 @@ from __future__ import annotations
 
 import hashlib
 import json
+import re
 from dataclasses import dataclass
 
 SEVERITIES = ("error", "warning")
+
+#: A finding id as written: 12 hex digits (reports write them in lower case).
+ID_PATTERN = re.compile(r"^[0-9a-fA-F]{12}$")
 
 #: Grid (mm) the geometry is rounded to before it enters a finding's id.
 ID_GRID_MM = 0.1

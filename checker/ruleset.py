@@ -42,10 +42,11 @@ from typing import Any
 
 import yaml
 
-from . import limits
 from .checks import REGISTRY
 from .checks.options import Option
+from .describe import describe_words
 from .errors import RuleError
+from .inputfile import decode_utf8, read_bytes
 from .shielding import DEFAULT_REFERENCE_NETS
 from .units import DEFAULT_UNIT, UNITS, UnitError, parse_quantity
 from .yamldoc import YamlProblem, compose_document, construct
@@ -419,7 +420,7 @@ def _load_file(path: pathlib.Path, file: str, chain: tuple[tuple[pathlib.Path, s
     data = _read_yaml(path, file)
     if not isinstance(data, dict):
         raise RuleError(file, None, f"expected a mapping at the top level (starting with 'version: 1'), "
-                                    f"got {_describe(data)}")
+                                    f"got {describe_words(data)}")
     if "version" not in data:
         raise RuleError(file, None, "missing required key 'version' (write 'version: 1')")
     version = data["version"]
@@ -466,7 +467,8 @@ def _load_file(path: pathlib.Path, file: str, chain: tuple[tuple[pathlib.Path, s
 
 def _extends_target(value: Any, path: pathlib.Path, file: str) -> tuple[pathlib.Path, str]:
     if not isinstance(value, str) or not value.strip():
-        raise RuleError(file, "extends", f"expected a shipped rule set name or a file path, got {_describe(value)}")
+        raise RuleError(file, "extends",
+                        f"expected a shipped rule set name or a file path, got {describe_words(value)}")
     if NAME_PATTERN.match(value):
         candidate = _find_shipped(value)
         if candidate is not None:
@@ -487,13 +489,13 @@ def _parse_pairs(value: Any, file: str) -> list[tuple[str, str]]:
     declared differential pair, exempt from each other's checks (as a pair
     declared in a board JSON file is)."""
     if not isinstance(value, list):
-        raise RuleError(file, "differential_pairs", f"expected a list of [net, net] pairs, got {_describe(value)}")
+        raise RuleError(file, "differential_pairs", f"expected a list of [net, net] pairs, got {describe_words(value)}")
     pairs: list[tuple[str, str]] = []
     seen: dict[str, int] = {}
     for i, pair in enumerate(value):
         place = f"differential_pairs[{i}]"
         if not (isinstance(pair, list) and len(pair) == 2 and all(isinstance(n, str) and n.strip() for n in pair)):
-            raise RuleError(file, place, f"expected two net names, [positive, negative], got {_describe(pair)}")
+            raise RuleError(file, place, f"expected two net names, [positive, negative], got {describe_words(pair)}")
         a, b = pair
         if a == b:
             raise RuleError(file, place, f"a net cannot pair with itself ({a!r})")
@@ -518,13 +520,13 @@ def _parse_disable(data: dict[str, Any], base: _Resolved, own_rules: list[_OwnRu
     if "extends" not in data:
         raise RuleError(file, "disable", "only allowed together with 'extends' (it removes inherited rules)")
     if not isinstance(value, list):
-        raise RuleError(file, "disable", f"expected a list of inherited rule names, got {_describe(value)}")
+        raise RuleError(file, "disable", f"expected a list of inherited rule names, got {describe_words(value)}")
     own_names = {o.rule.name for o in own_rules}
     disabled: set[str] = set()
     for i, name in enumerate(value):
         place = f"disable[{i}]"
         if not isinstance(name, str):
-            raise RuleError(file, place, f"expected a rule name, got {_describe(name)}")
+            raise RuleError(file, place, f"expected a rule name, got {describe_words(name)}")
         if name not in base.rules:
             inherited = ", ".join(base.rules) or "none"
             raise RuleError(file, place, f"no inherited rule named {name!r} (inherited: {inherited})")
@@ -544,7 +546,7 @@ def _parse_disable(data: dict[str, Any], base: _Resolved, own_rules: list[_OwnRu
 
 def _parse_settings(value: Any, file: str) -> dict[str, Any]:
     if not isinstance(value, dict):
-        raise RuleError(file, "settings", f"expected a mapping of settings, got {_describe(value)}")
+        raise RuleError(file, "settings", f"expected a mapping of settings, got {describe_words(value)}")
     out: dict[str, Any] = {}
     for key, raw in value.items():
         place = join_key("settings", key)
@@ -561,7 +563,7 @@ def _parse_settings(value: Any, file: str) -> dict[str, Any]:
 
 def _parse_classes(value: Any, file: str) -> dict[str, NetClass]:
     if not isinstance(value, dict):
-        raise RuleError(file, "net_classes", f"expected a mapping of class name -> class, got {_describe(value)}")
+        raise RuleError(file, "net_classes", f"expected a mapping of class name -> class, got {describe_words(value)}")
     out: dict[str, NetClass] = {}
     for name, body in value.items():
         place = join_key("net_classes", name)
@@ -570,7 +572,7 @@ def _parse_classes(value: Any, file: str) -> dict[str, NetClass]:
             raise RuleError(file, place, f"'{ANY}' is reserved (it means every net in a rule)")
         if not isinstance(body, dict):
             raise RuleError(file, place, f"expected a mapping with 'nets' and the class's attributes, "
-                                         f"got {_describe(body)}")
+                                         f"got {describe_words(body)}")
         for key in body:
             if key not in CLASS_KEYS:
                 raise RuleError(file, join_key(place, key),
@@ -602,12 +604,12 @@ def _parse_patterns(value: Any, file: str, place: str) -> tuple[str, ...]:
     if not isinstance(value, list) or not value:
         raise RuleError(file, place, f"expected a non-empty list of net-name patterns "
                                      f"(globs, or regular expressions after '{REGEX_PREFIX}'), "
-                                     f"got {_describe(value)}")
+                                     f"got {describe_words(value)}")
     patterns = []
     for i, pattern in enumerate(value):
         here = f"{place}[{i}]"
         if not isinstance(pattern, str):
-            raise RuleError(file, here, f"expected a net-name pattern string, got {_describe(pattern)}"
+            raise RuleError(file, here, f"expected a net-name pattern string, got {describe_words(pattern)}"
                                         f"{_quote_hint(pattern)}")
         if not pattern or pattern == REGEX_PREFIX:
             raise RuleError(file, here, "empty pattern")
@@ -621,7 +623,7 @@ def _parse_patterns(value: Any, file: str, place: str) -> tuple[str, ...]:
 
 def _parse_rules(value: Any, file: str) -> list[_OwnRule]:
     if not isinstance(value, list):
-        raise RuleError(file, "rules", f"expected a list of rules, got {_describe(value)}")
+        raise RuleError(file, "rules", f"expected a list of rules, got {describe_words(value)}")
     out: list[_OwnRule] = []
     first_place: dict[str, str] = {}
     for i, raw in enumerate(value):
@@ -636,7 +638,7 @@ def _parse_rules(value: Any, file: str) -> list[_OwnRule]:
 
 def _parse_rule(raw: Any, file: str, place: str) -> _OwnRule:
     if not isinstance(raw, dict):
-        raise RuleError(file, place, f"expected a mapping with at least 'name' and 'kind', got {_describe(raw)}")
+        raise RuleError(file, place, f"expected a mapping with at least 'name' and 'kind', got {describe_words(raw)}")
     for key in ("name", "kind"):
         if key not in raw:
             raise RuleError(file, place, f"missing required key '{key}'")
@@ -644,7 +646,7 @@ def _parse_rule(raw: Any, file: str, place: str) -> _OwnRule:
     _check_name(name, file, join_key(place, "name"), "rule name")
     kind = raw["kind"]
     if not isinstance(kind, str) or kind not in REGISTRY:
-        shown = repr(kind) if isinstance(kind, str) else _describe(kind)
+        shown = repr(kind) if isinstance(kind, str) else describe_words(kind)
         raise RuleError(file, join_key(place, "kind"), f"unknown kind {shown} (known: {', '.join(sorted(REGISTRY))})")
     schema: dict[str, Option] = REGISTRY[kind].OPTIONS
     for key in raw:
@@ -665,7 +667,7 @@ def _parse_rule(raw: Any, file: str, place: str) -> _OwnRule:
                         f"{_show(severity)} is not a severity (accepted: {', '.join(SEVERITIES)})")
     description = raw.get("description", "")
     if not isinstance(description, str):
-        raise RuleError(file, join_key(place, "description"), f"expected text, got {_describe(description)}")
+        raise RuleError(file, join_key(place, "description"), f"expected text, got {describe_words(description)}")
     options: dict[str, Any] = {}
     for key, opt in schema.items():
         if key in raw:
@@ -691,7 +693,7 @@ def _parse_class_refs(value: Any, file: str, place: str, refs: list[tuple[str, s
         return (value,)
     if not isinstance(value, list) or not value:
         raise RuleError(file, place, f"expected '{ANY}', a net class name or a non-empty list of class names, "
-                                     f"got {_describe(value)}")
+                                     f"got {describe_words(value)}")
     names: list[str] = []
     for i, item in enumerate(value):
         here = f"{place}[{i}]"
@@ -718,7 +720,7 @@ def _read_option(value: Any, opt: Option, file: str, place: str, *, exclusive_ma
         return value
     if opt.kind == "bool":
         if not isinstance(value, bool):
-            raise RuleError(file, place, f"expected true or false, got {_describe(value)}")
+            raise RuleError(file, place, f"expected true or false, got {describe_words(value)}")
         return value
     if opt.kind == "table":
         return _read_table(value, opt, file, place)
@@ -732,7 +734,7 @@ def _read_option(value: Any, opt: Option, file: str, place: str, *, exclusive_ma
 def _quantity(value: Any, kind: str, file: str, place: str) -> float:
     if value is None or isinstance(value, bool):
         example = f"1 {DEFAULT_UNIT[kind]}".strip()
-        raise RuleError(file, place, f"expected a {kind} like '{example}', got {_describe(value)}")
+        raise RuleError(file, place, f"expected a {kind} like '{example}', got {describe_words(value)}")
     try:
         return parse_quantity(value, kind)
     except UnitError as e:
@@ -758,13 +760,13 @@ def _read_table(value: Any, opt: Option, file: str, place: str) -> tuple[dict[st
     names = ", ".join(columns)
     if not isinstance(value, list) or not value:
         raise RuleError(file, place, f"expected a non-empty list of rows, each a mapping with {names}, "
-                                     f"got {_describe(value)}")
+                                     f"got {describe_words(value)}")
     rows: list[dict[str, float]] = []
     key_column = opt.columns[0][0]
     for i, raw in enumerate(value):
         here = f"{place}[{i}]"
         if not isinstance(raw, dict):
-            raise RuleError(file, here, f"expected a row mapping with {names}, got {_describe(raw)}")
+            raise RuleError(file, here, f"expected a row mapping with {names}, got {describe_words(raw)}")
         for key in raw:
             if key not in columns:
                 raise RuleError(file, join_key(here, key), f"unknown column (columns: {names})")
@@ -812,18 +814,8 @@ def compile_pattern(pattern: str) -> re.Pattern[str]:
 
 def _read_yaml(path: pathlib.Path, file: str) -> Any:
     """Parse one YAML document with safe tags only, rejecting duplicate keys."""
-    try:
-        text = limits.read_file(str(path)).decode("utf-8")
-    except limits.TooLarge as e:
-        raise RuleError(file, None, str(e)) from None
-    except FileNotFoundError:
-        raise RuleError(file, None, "no such file") from None
-    except IsADirectoryError:
-        raise RuleError(file, None, "is a directory, not a rule file") from None
-    except UnicodeDecodeError as e:
-        raise RuleError(file, None, f"not UTF-8 text (bad byte at offset {e.start})") from None
-    except OSError as e:
-        raise RuleError(file, None, f"cannot read: {e.strerror or e}") from None
+    raw = read_bytes(str(path), RuleError, "a rule file")
+    text = decode_utf8(raw, file, RuleError)
     try:
         node = compose_document(text, MAX_YAML_NODES, "a rule file")
         if node is None:
@@ -860,25 +852,8 @@ def join_key(path: str, key: Any) -> str:
     return f"{path}[{key!r}]"
 
 
-def _describe(value: Any) -> str:
-    """A value as a YAML user would name it."""
-    if value is None:
-        return "null (nothing)"
-    if isinstance(value, bool):
-        return f"{str(value).lower()} (a boolean)"
-    if isinstance(value, dict):
-        return "a mapping"
-    if isinstance(value, list):
-        return "a list"
-    if isinstance(value, (int, float)):
-        return f"the number {value!r}"
-    if isinstance(value, str):
-        return f"the text {value!r}"
-    return f"{value!r} ({type(value).__name__})"
-
-
 def _show(value: Any) -> str:
-    return repr(value) if isinstance(value, str) else _describe(value)
+    return repr(value) if isinstance(value, str) else describe_words(value)
 
 
 def _quote_hint(value: Any) -> str:

@@ -342,9 +342,9 @@ def test_junit_escapes_text_and_waivers_do_not_fail():
     import datetime
 
     from checker.readers import load_board
-    from checker.review import Waiver
     from checker.ruleset import default_ruleset
     from checker.runner import check_board
+    from checker.waivers import Waiver
 
     result = check_board(load_board(demo_board_path()), default_ruleset())
     xml = ET.fromstring(junit.junit_for_result(result).encode("utf-8"))

@@ -44,8 +44,8 @@ EXPECTED_DOORS = {
     "ipc2581": "checker.readers.ipc2581:read_ipc2581",
     "board-json": "checker.readers.board_json:load_board",
     "rules": "checker.ruleset:load_ruleset",
-    "waivers": "checker.review:parse_waivers",
-    "baseline": "checker.review:load_baseline",
+    "waivers": "checker.waivers:parse_waivers",
+    "baseline": "checker.baseline:load_baseline",
     "zip": "checker.readers.fab.assemble:load_package",
 }
 

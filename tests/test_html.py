@@ -34,9 +34,10 @@ from checker.report.html import (
     render_html,
     worst_net_pairs,
 )
-from checker.review import Review, Waiver
+from checker.review import Review
 from checker.ruleset import default_ruleset, load_ruleset
 from checker.runner import check_board
+from checker.waivers import Waiver
 
 ARTIFACTS = Path(__file__).parent / "artifacts"
 FIXED_DATE = "2026-01-15T09:30:00Z"

@@ -10,6 +10,7 @@ import stat
 import pytest
 
 from checker import review as rv
+from checker import waivers as wv
 from checker.cli import main
 from checker.errors import WaiverError
 from checker.findings import Finding
@@ -39,7 +40,7 @@ def assert_one_error(err: str, *parts: str) -> None:
 @pytest.fixture(autouse=True)
 def fixed_today(monkeypatch):
     """Expiry is judged on a fixed day, whatever the clock says."""
-    monkeypatch.setenv(rv.TODAY_ENV, TODAY)
+    monkeypatch.setenv(wv.TODAY_ENV, TODAY)
 
 
 @pytest.fixture(scope="module")
@@ -144,7 +145,7 @@ def test_expired_and_unused_waivers_are_reported(tmp_path, capsys, monkeypatch, 
     _, base = demo_report
     target = find(base, "coupled-noise", "SPI_SCK", "AIN3")["id"]
     path = waiver_file(tmp_path, entry(target, extra="    expires: 2026-12-31\n") + entry("0123456789ab"))
-    monkeypatch.setenv(rv.TODAY_ENV, "2027-01-01")
+    monkeypatch.setenv(wv.TODAY_ENV, "2027-01-01")
     code, report = check_json(capsys, "--waivers", str(path))
     assert code == 1
     assert report["summary"]["waived"] == 0
@@ -159,17 +160,17 @@ def test_expired_and_unused_waivers_are_reported(tmp_path, capsys, monkeypatch, 
     assert f"expired {path}:4: id {target}, expired 2026-12-31 (would cover 1 finding; not applied)" in out
     assert f"unused {path}:9: id 0123456789ab matches no finding" in out
     # on its expiry day a waiver still holds
-    monkeypatch.setenv(rv.TODAY_ENV, "2026-12-31")
+    monkeypatch.setenv(wv.TODAY_ENV, "2026-12-31")
     _, report = check_json(capsys, "--waivers", str(path))
     assert report["review"]["expired"] == [] and report["summary"]["waived"] == 1
 
 
 def test_bad_today_variable_exits_2(tmp_path, capsys, monkeypatch, demo_report):
     path = waiver_file(tmp_path, entry("0123456789ab"))
-    monkeypatch.setenv(rv.TODAY_ENV, "tomorrow")
+    monkeypatch.setenv(wv.TODAY_ENV, "tomorrow")
     code, out, err = run(capsys, "demo", "--waivers", str(path))
     assert code == 2 and out == ""
-    assert_one_error(err, rv.TODAY_ENV, "'tomorrow'")
+    assert_one_error(err, wv.TODAY_ENV, "'tomorrow'")
 
 
 def _finding(ident: str, rule: str = "r", aggressor: str = "CLK", victim: str = "AIN1", layers=("TOP",),
@@ -180,20 +181,20 @@ def _finding(ident: str, rule: str = "r", aggressor: str = "CLK", victim: str = 
 
 def test_build_review_precedence_and_injected_today():
     a, b = _finding("aaaaaaaaaaaa"), _finding("bbbbbbbbbbbb", layers=("TOP", "IN1"))
-    by_pattern = rv.Waiver("pattern", "x", dt.date(2026, 1, 1), rule="r", nets=("CLK", "AIN?"), source="w:1")
-    by_id = rv.Waiver("id", "x", dt.date(2026, 1, 1), id="aaaaaaaaaaaa", source="w:9")
-    later = rv.Waiver("later", "x", dt.date(2026, 1, 1), rule="r", nets=("*", "*"), layers="TOP/*",
+    by_pattern = wv.Waiver("pattern", "x", dt.date(2026, 1, 1), rule="r", nets=("CLK", "AIN?"), source="w:1")
+    by_id = wv.Waiver("id", "x", dt.date(2026, 1, 1), id="aaaaaaaaaaaa", source="w:9")
+    later = wv.Waiver("later", "x", dt.date(2026, 1, 1), rule="r", nets=("*", "*"), layers="TOP/*",
                       expires=dt.date(2026, 6, 30), source="w:20")
-    waivers = rv.WaiverFile("w", (by_pattern, by_id, later))
+    waivers = wv.WaiverFile("w", (by_pattern, by_id, later))
     r = rv.build_review([a, b], waivers, on=dt.date(2026, 6, 30))
     assert r.waived == {"aaaaaaaaaaaa": by_id, "bbbbbbbbbbbb": by_pattern}  # an id beats a pattern
     assert r.covers[later] == ["bbbbbbbbbbbb"] and r.expired == [] and r.unused == []
     assert r.verdict([a, b]) == "pass with waivers"
-    r = rv.build_review([a, b], rv.WaiverFile("w", (later, by_id)), on=dt.date(2026, 7, 1))
+    r = rv.build_review([a, b], wv.WaiverFile("w", (later, by_id)), on=dt.date(2026, 7, 1))
     assert r.expired == [later] and r.waived == {"aaaaaaaaaaaa": by_id}
     assert r.failing([a, b]) == [b] and r.verdict([a, b]) == "fail"
-    assert rv.build_review([a], rv.WaiverFile("w", (by_pattern,)), on=dt.date(2026, 1, 1)).unused == []
-    r = rv.build_review([b], rv.WaiverFile("w", (by_id,)), on=dt.date(2026, 1, 1))
+    assert rv.build_review([a], wv.WaiverFile("w", (by_pattern,)), on=dt.date(2026, 1, 1)).unused == []
+    r = rv.build_review([b], wv.WaiverFile("w", (by_id,)), on=dt.date(2026, 1, 1))
     assert r.unused == [by_id] and r.waived == {}
 
 
@@ -258,8 +259,8 @@ def test_waive_appends_and_keeps_the_file_byte_for_byte(tmp_path, capsys, demo_r
                                    "      expires: 2027-06-30\n")
     assert stat.S_IMODE(path.stat().st_mode) == 0o640
     assert os.listdir(tmp_path) == ["waivers.yaml"]  # no temporary file left
-    (*_, added) = rv.load_waivers(path).waivers
-    assert added == rv.Waiver("Input filter: 10 Hz; see #123", "yes", dt.date(2026, 12, 1), id=target,
+    (*_, added) = wv.load_waivers(path).waivers
+    assert added == wv.Waiver("Input filter: 10 Hz; see #123", "yes", dt.date(2026, 12, 1), id=target,
                               expires=dt.date(2027, 6, 30), source=f"{path}:16")
     # the new entry waives the finding in a check
     _, report = check_json(capsys, "--waivers", str(path))
@@ -283,11 +284,11 @@ def test_waive_creates_the_default_file(tmp_path, capsys, monkeypatch):
     code, out, err = run(capsys, "waive", "0123456789ab", "--reason", "Known and accepted.")
     assert code == 0, err
     text = (tmp_path / "waivers.yaml").read_text(encoding="utf-8")
-    assert text == rv.NEW_FILE_HEADER + (
+    assert text == wv.NEW_FILE_HEADER + (
         "  - id: 0123456789ab\n    reason: Known and accepted.\n    author: jdoe\n    date: 2026-12-01\n")
     code, _, err = run(capsys, "waive", "aaaaaaaaaaaa", "--reason", "second")
     assert code == 0, err
-    assert [w.id for w in rv.load_waivers("waivers.yaml").waivers] == ["0123456789ab", "aaaaaaaaaaaa"]
+    assert [w.id for w in wv.load_waivers("waivers.yaml").waivers] == ["0123456789ab", "aaaaaaaaaaaa"]
 
 
 def test_waive_keeps_crlf_line_ends(tmp_path, capsys):
@@ -451,7 +452,7 @@ def test_unreadable_waiver_files_exit_2(tmp_path, capsys):
 
 def test_waiver_error_carries_file_key_path_and_line(tmp_path):
     with pytest.raises(WaiverError) as info:
-        rv.parse_waivers("version: 1\nwaivers:\n  - id: 0123456789ab\n" + GOOD.replace("2026-01-01", "x"), "w.yaml")
+        wv.parse_waivers("version: 1\nwaivers:\n  - id: 0123456789ab\n" + GOOD.replace("2026-01-01", "x"), "w.yaml")
     e = info.value
     assert (e.file, e.key_path, e.line) == ("w.yaml", "waivers[0].date", 6)
     assert str(e) == "w.yaml: waivers[0].date (line 6): 'x' is not a date written YYYY-MM-DD"
@@ -461,7 +462,7 @@ def test_merge_keys_and_quoted_values_are_read():
     text = ("version: 1\nwaivers:\n"
             "  - &who {id: '0123456789ab', reason: \"r\", author: a, date: '2026-01-01'}\n"
             "  - <<: *who\n    id: 1234567890ab\n    reason: other\n")
-    first, second = rv.parse_waivers(text, "w.yaml").waivers
+    first, second = wv.parse_waivers(text, "w.yaml").waivers
     assert first.date == second.date == dt.date(2026, 1, 1) and second.author == "a"
     assert second.id == "1234567890ab" and second.reason == "other" and second.source == "w.yaml:4"
 
@@ -622,7 +623,7 @@ def test_docs_example_is_a_valid_waiver_file(capsys, demo_report, tmp_path):
     example = re.findall(r"```yaml\n(.*?)```", doc, flags=re.S)[0]
     path = tmp_path / "waivers.yaml"
     path.write_text(example, encoding="utf-8")
-    assert len(rv.load_waivers(path).waivers) == 2
+    assert len(wv.load_waivers(path).waivers) == 2
     _, report = check_json(capsys, "--waivers", str(path))
     assert report["summary"]["waived"] == 2 and report["review"]["unused"] == []
 

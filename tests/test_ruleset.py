@@ -526,7 +526,7 @@ def test_missing_file(tmp_path):
 
 
 def test_directory_and_binary_file(tmp_path):
-    assert "is a directory" in load_error(tmp_path).message
+    assert "is a folder, not a rule file" in load_error(tmp_path).message
     path = tmp_path / "rules.yaml"
     path.write_bytes(b"version: 1\n\xff\xfe\n")
     assert "not UTF-8 text" in load_error(path).message

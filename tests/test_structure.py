@@ -23,7 +23,7 @@ PACKAGE = Path(__file__).resolve().parents[1] / "checker"
 LAYERS: list[tuple[str, tuple[str, ...]]] = [
     ("base", ("checker", "checker.errors", "checker.limits", "checker.units", "checker.atomic", "checker.describe",
               "checker.yamldoc", "checker.yamlkeys", "checker.progress", "checker.cores", "checker.bounds",
-              "checker.reportformat", "checker.findings")),
+              "checker.reportformat", "checker.findings", "checker.inputfile")),
     ("model", ("checker.model", "checker.stackup")),
     ("readers", ("checker.readers",)),
     ("finder", ("checker.finder",)),
@@ -34,7 +34,7 @@ LAYERS: list[tuple[str, tuple[str, ...]]] = [
     ("checks", ("checker.checks",)),
     ("rule files", ("checker.ruleset",)),
     ("analysis", ("checker.analysis",)),
-    ("review", ("checker.review", "checker.selection")),
+    ("review", ("checker.review", "checker.waivers", "checker.baseline", "checker.selection")),
     ("report", ("checker.report",)),
     ("session", ("checker.runner", "checker.batch", "checker.netsurvey")),
     ("command line", ("checker.cli", "checker.__main__")),

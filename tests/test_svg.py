@@ -20,9 +20,10 @@ from checker.model import Pieces
 from checker.readers import load_board, read_board_dict
 from checker.report import svg
 from checker.report.svg import finding_number, render_svg, svg_per_layer_group
-from checker.review import Review, Waiver
+from checker.review import Review
 from checker.ruleset import default_ruleset, load_ruleset
 from checker.runner import check_board
+from checker.waivers import Waiver
 
 NS = "{http://www.w3.org/2000/svg}"
 

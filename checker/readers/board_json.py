@@ -61,6 +61,7 @@ from ..bounds import (
     Bound,
 )
 from ..errors import BoardError
+from ..inputfile import decode_utf8, read_bytes
 from ..model import (
     NO_NET,
     Board,
@@ -110,26 +111,14 @@ def load_board(path: str | os.PathLike[str]) -> Board:
     with the file, from a missing file to a self-intersecting region.
     """
     file = os.fspath(path)
-    try:
-        raw = limits.read_file(file)
-    except limits.TooLarge as exc:
-        raise BoardError(file, None, str(exc)) from None
-    except FileNotFoundError:
-        raise BoardError(file, None, "no such file") from None
-    except IsADirectoryError:
-        raise BoardError(file, None, "is a folder, not a board file") from None
-    except OSError as exc:
-        raise BoardError(file, None, f"cannot read the file: {exc.strerror or exc}") from None
+    raw = read_bytes(file, BoardError, "a board file")
     stage = progress.Stage(f"reading {os.path.basename(file)}", total=len(raw))
     with _collector_paused():
         board = _read_fast(raw, file, stage)
         if board is not None:
             return board
         stage.at(len(raw), "reading it again the careful way, to say what is wrong")
-        try:
-            text = raw.decode("utf-8-sig")
-        except UnicodeDecodeError as exc:
-            raise BoardError(file, None, f"not UTF-8 text (bad byte at offset {exc.start})") from None
+        text = decode_utf8(raw, file, BoardError, bom=True)
         if not text.strip():
             raise BoardError(file, None, "the file is empty")
         data, duplicates = _parse_json(text, file)

@@ -19,7 +19,8 @@ import numpy as np
 from .. import __version__, progress
 from ..coupling import KIND_NAMES
 from ..reportformat import REPORT_VERSION
-from ..review import review_dict, waiver_mark
+from ..review import review_dict
+from ..waivers import waiver_mark
 from . import CAUTION
 
 if TYPE_CHECKING:  # the runner renders reports: a type only
