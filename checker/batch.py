@@ -40,7 +40,7 @@ from .atomic import Stopped, refuse_overwriting_inputs, write_atomically
 from .errors import CouplintError, UsageError, bounded
 from .report.json_report import DEFAULT_PAIRS, parse_pairs
 from .report.visible import visible
-from .selection import Selection, apply_selection
+from .selection import Selection
 
 EXIT_PASS, EXIT_FAIL = 0, 1
 
@@ -128,34 +128,17 @@ def _check_one(path: str, rules: str | None, fail_on: str, waivers: str | None, 
     start = time.perf_counter()
     name = board_stem(path)
     try:
-        from .readers import load_board
         from .readers.fab.package import is_package
         from .report import json_report, junit
-        from .ruleset import ruleset_named
-        from .runner import check_board
+        from .session import Request, prepare, run
 
-        ruleset = ruleset_named(rules)
-        if is_package([path]):
-            from .readers.fab.assemble import load_package
-
-            board = load_package([path], stackup=stackup)
-        else:
-            board = load_board(path)
-        name = board.name
-        waiver_file = baseline_report = None
-        if waivers or baseline:  # read every input before the check
-            from .baseline import load_baseline
-            from .waivers import load_waivers
-
-            waiver_file = load_waivers(waivers) if waivers else None
-            baseline_report = load_baseline(baseline) if baseline else None
-        result = check_board(board, ruleset)
-        result.fail_on = fail_on
-        if waiver_file is not None or baseline_report is not None:
-            from .review import build_review
-
-            result.review = build_review(result.findings, waiver_file, baseline_report, on=today)
-        apply_selection(result, Selection.parse(list(only)))
+        # every input is read before the check; --stackup is for the packages of the batch only
+        prepared = prepare(Request(board=(path,), rules=rules, waivers=waivers, baseline=baseline,
+                                   stackup=stackup if is_package([path]) else None, only=only,
+                                   names_checked=False, fail_on=fail_on, today=today))
+        name = prepared.board.name
+        ruleset = prepared.ruleset
+        result = run(prepared)
         failing, waived = junit.result_findings(result)
         by_rule = json_report.summary(result)["findings_by_rule"]
         return BoardOutcome(

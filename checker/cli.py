@@ -32,7 +32,6 @@ from .report import html as html_report
 from .report import json_report
 from .report.visible import visible
 from .review import FAIL_ON
-from .selection import Selection, apply_selection
 from .waivers import DEFAULT_WAIVER_FILE, TODAY_ENV
 
 EXIT_CLEAN, EXIT_FINDINGS, EXIT_BAD_INPUT, EXIT_INTERNAL = 0, 1, 2, 3
@@ -249,54 +248,25 @@ def _dispatch(args: argparse.Namespace) -> int:
     return _check(board_paths, args)
 
 
-def _load(board_paths: list[str], args: argparse.Namespace):
-    """The board from a JSON file or a fabrication package."""
-    from .readers import load_board
-    from .readers.fab.package import is_package
-
-    if len(board_paths) > 1 and all(p.lower().endswith(".json") for p in board_paths):
-        raise UsageError("check takes one board JSON file (or one fabrication package); for several boards use "
-                         "'couplint batch'")
-    package_options = [f"--{k}" for k in ("stackup", "netlist", "layer") if getattr(args, k, None)]
-    if not is_package(board_paths):
-        if package_options:
-            raise UsageError(f"{package_options[0]} is for fabrication packages; {board_paths[0]} is a board "
-                             "JSON file")
-        return load_board(board_paths[0])
-    from .readers.fab.assemble import load_package
-
-    return load_package(board_paths, stackup=getattr(args, "stackup", None), netlist=getattr(args, "netlist", None),
-                        layers=getattr(args, "layer", None))
-
-
 def _check(board_paths: list[str], args: argparse.Namespace) -> int:
     from .analysis import analysis_steps
-    from .baseline import load_baseline
-    from .report import terminal
-    from .review import build_review
-    from .ruleset import ruleset_named
-    from .runner import check_board
-    from .waivers import load_waivers, today
+    from .report.formats import DELIVERABLES, REPORTS, Options
+    from .session import Request, prepare, run
 
-    refuse_shared_outputs([("--out", args.out), ("--svg", args.svg), ("--html", args.html), ("--pdf", args.pdf),
-                           ("--junit", args.junit)])
-    outputs = [p for p in (args.out, args.svg, args.html, args.pdf, args.junit) if p]
+    refuse_shared_outputs([("--out", args.out), *((f"--{name}", getattr(args, name)) for name in DELIVERABLES)])
+    outputs = [p for p in (args.out, *(getattr(args, name) for name in DELIVERABLES)) if p]
     # --rules names a file, or a shipped rule set (--rules default), which is no input file of this run
     rules_file = args.rules if args.rules and os.path.exists(args.rules) else None
     inputs = list(board_paths) + [p for p in (rules_file, args.waivers, args.baseline, getattr(args, "stackup", None),
                                                 getattr(args, "netlist", None)) if p]
     for out in outputs:
         refuse_overwriting_inputs(out, inputs)
-    selection = Selection.parse(args.only)
-    ruleset = ruleset_named(args.rules)
-    board = _load(board_paths, args)
-    if selection is not None:
-        selection.validate([(r.name, r.kind) for r in ruleset.rules], [n.name for n in board.nets],
-                           list(board.stackup.names))
     # every input is read and validated before the (possibly long) check
-    waivers = load_waivers(args.waivers) if args.waivers else None
-    baseline = load_baseline(args.baseline) if args.baseline else None
-    day = today() if waivers is not None else None
+    prepared = prepare(Request(
+        board=tuple(board_paths), rules=args.rules, waivers=args.waivers, baseline=args.baseline,
+        stackup=getattr(args, "stackup", None), netlist=getattr(args, "netlist", None),
+        layers=tuple(getattr(args, "layer", None) or ()), only=tuple(args.only), fail_on=args.fail_on,
+        accurate=args.accurate, what_if=args.what_if))
     err = Console(stderr=True)
     if err.is_terminal:  # a progress bar on stderr; never in pipes or CI logs
         with Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
@@ -312,11 +282,10 @@ def _check(board_paths: list[str], args: argparse.Namespace) -> int:
                 bar.update(task, description=f"{step[0]}: {text}")
 
             with progress.details_to(within):
-                result = check_board(board, ruleset, progress=advance, accurate=args.accurate,
-                                     what_if=args.what_if)
+                result = run(prepared, progress=advance)
     else:  # plain lines (CI logs): a long check says where it is every few seconds
         stage = progress.Stage("checking", unit="steps", scale=1,
-                               total=analysis_steps(board, ruleset) + len(ruleset.rules))
+                               total=analysis_steps(prepared.board, prepared.ruleset) + len(prepared.ruleset.rules))
         at: dict[str, Any] = {"what": "preparing", "done": 0}
 
         def lines(what: str, done: int, total: int) -> None:
@@ -328,26 +297,21 @@ def _check(board_paths: list[str], args: argparse.Namespace) -> int:
             stage.at(at["done"], f"{at['what']}: {text}")
 
         with progress.details_to(within):
-            result = check_board(board, ruleset, progress=lines, accurate=args.accurate, what_if=args.what_if)
-    result.fail_on = args.fail_on
-    result.review = build_review(result.findings, waivers, baseline, on=day)
-    apply_selection(result, selection)
+            result = run(prepared, progress=lines)
 
-    if args.format == "json":
-        emit = lambda handle: json_report.write(result, handle, args.pairs)  # noqa: E731
-    elif args.out:
-        emit = lambda handle: terminal.render(  # noqa: E731
-            result, Console(file=handle, width=140, color_system=None, soft_wrap=True))
-    else:
+    console = None
+    if not args.out and args.format == "text":
         console = Console()
         if not console.is_terminal:  # piped or captured: room for the whole table
             console = Console(width=max(console.width, 132))
-        emit = lambda handle: terminal.render(result, console)  # noqa: E731
-    _write_deliverables(result, args, _files_of(inputs) + ([] if rules_file else [result.analysis.ruleset.path]))
+    options = Options(pairs=args.pairs, cards=getattr(args, "cards", Options.cards), console=console,
+                      inputs=tuple(_files_of(inputs) + ([] if rules_file else [result.analysis.ruleset.path])))
+    _write_deliverables(result, args, options)
+    write_report = REPORTS[args.format]
     if args.out:
-        write_atomically(args.out, emit)
+        write_atomically(args.out, lambda handle: write_report(result, handle, options))
     else:
-        emit(sys.stdout)
+        write_report(result, sys.stdout, options)
     return EXIT_FINDINGS if result.failing() else EXIT_CLEAN
 
 
@@ -367,33 +331,22 @@ def _write_to(handle, content) -> None:
     handle.write(content)
 
 
-def _write_deliverables(result, args: argparse.Namespace, inputs: list[str]) -> None:
-    """The overlay, HTML, PDF and JUnit files asked for: every one is made
-    first, then each is written atomically, so a failure (a PDF library
-    missing) leaves no output of this run behind."""
-    from .report import html, junit, svg
+def _write_deliverables(result, args: argparse.Namespace, options) -> None:
+    """The files asked for (``--svg``, ``--svg-dir``, ``--html``, ``--pdf``,
+    ``--junit``): every one is made first, then each is written atomically,
+    so a failure (a PDF library missing) leaves no output of this run
+    behind."""
+    from .report import svg
+    from .report.formats import DELIVERABLES
 
-    files: list[tuple[str | Path, object, bool]] = []  # (path, content, binary)
-    if args.svg:
-        files.append((args.svg, svg.render_svg(result) if result.findings else svg.render_svg(result, layers=()),
-                      False))
+    files: list[tuple[str | Path, str | bytes]] = [
+        (getattr(args, name), make(result, options)) for name, make in DELIVERABLES.items() if getattr(args, name)]
     if args.svg_dir:
         folder = Path(args.svg_dir)
-        files += [(folder / f"{group}.svg", text, False) for group, text in svg.svg_per_layer_group(result).items()]
-    if args.html or args.pdf:
-        page = html.render_html(result, inputs=inputs, cards=getattr(args, "cards", html.DEFAULT_CARDS))
-        if args.html:
-            files.append((args.html, page, False))
-        if args.pdf:
-            from .report.pdf import html_to_pdf
-
-            files.append((args.pdf, html_to_pdf(page), True))
-    if args.junit:
-        files.append((args.junit, junit.junit_for_result(result), False))
-    if args.svg_dir:
-        Path(args.svg_dir).mkdir(parents=True, exist_ok=True)
-    for path, content, binary in files:
-        write_atomically(path, partial(_write_to, content=content), binary=binary)
+        files += [(folder / f"{group}.svg", text) for group, text in svg.svg_per_layer_group(result).items()]
+        folder.mkdir(parents=True, exist_ok=True)
+    for path, content in files:
+        write_atomically(path, partial(_write_to, content=content), binary=isinstance(content, bytes))
 
 
 def _waive(args: argparse.Namespace) -> int:
@@ -438,6 +391,7 @@ def _survey(args: argparse.Namespace) -> int:
     """``couplint classes`` and ``couplint init`` (:mod:`checker.netsurvey`)."""
     from .netsurvey import starter_rules, survey, survey_lines
     from .ruleset import load_ruleset, ruleset_named
+    from .session import load_board_of
 
     if args.command == "init":
         refuse_overwriting_inputs(args.out, list(args.board) + [p for p in (args.rules, args.stackup, args.netlist)
@@ -449,7 +403,8 @@ def _survey(args: argparse.Namespace) -> int:
             raise UsageError(f"{args.out}: the file exists; couplint init keeps it (give --force to replace it, "
                              "or --out FILE)")
     ruleset = ruleset_named(args.rules)
-    found = survey(_load(args.board, args), ruleset)
+    found = survey(load_board_of(args.board, getattr(args, "stackup", None), getattr(args, "netlist", None),
+                                 getattr(args, "layer", None) or ()), ruleset)
     if args.command == "classes":
         for line in survey_lines(found):
             print(visible(line))
