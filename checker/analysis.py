@@ -55,6 +55,7 @@ from .shielding import (
     split_shielded,
 )
 from .stackup import reference_of, separation_mm
+from .victimnoise import rule_noise
 
 #: Smallest edge-to-edge gap (mm) the edge-coupling closed forms are asked
 #: about. Copper of two nets closer than this on one layer is a short or a
@@ -195,9 +196,11 @@ class Analysis:
     #: work out the extra-spacing what-if answers (``--what-if``): it solves
     #: wider tables, so it is off by default
     what_if: bool = False
-    #: every victim each noise-budget rule looked at, passing or not (the
-    #: rule fills it; the reports list it per victim)
+    #: every victim each noise-budget rule looks at, passing or not (the
+    #: reports list it per victim)
     victim_noise: list[VictimNoise] = field(default_factory=list)
+    #: per noise-budget rule name: the noise it judges (``checker.victimnoise``)
+    noise: dict = field(default_factory=dict, repr=False)
     #: the reference copper that decided shielding (``checker.shielding``)
     reference: ReferenceCopper | None = field(default=None, repr=False)
     #: stretches of traces over gaps in their nearest reference copper
@@ -810,10 +813,14 @@ def _noise(e: NetElectrical, aggressor: np.ndarray, victim: np.ndarray, c12_pf: 
                  e.swing_v[aggressor], e.frequency_hz[aggressor])
 
 
-def analyse(board: Board, ruleset: RuleSet, progress=None, accurate: bool = False) -> Analysis:
+def analyse(board: Board, ruleset: RuleSet, progress=None, accurate: bool = False,
+            what_if: bool = False) -> Analysis:
     """Run the whole physical analysis of ``board`` under ``ruleset``'s
     settings; ``progress(description)``, if given, is called before each of
-    the :func:`analysis_steps` steps."""
+    the :func:`analysis_steps` steps. The noise each noise-budget rule
+    judges is worked out here too (:mod:`checker.victimnoise`), so the rules
+    only read; ``what_if``: the rules also answer what extra spacing would
+    pass (``--what-if``)."""
     notes: list[str] = list(board.notes)  # what the reader had to say about the input comes first
     ref = reference_copper(board, ruleset.settings.reference_nets)
     notes += role_notes(board.stackup, ref, board)
@@ -845,6 +852,9 @@ def analyse(board: Board, ruleset: RuleSet, progress=None, accurate: bool = Fals
     rise = self_rise_pf(board, couplings, models, victims)
     net_pairs = aggregate_net_pairs(board, couplings, electrical, c2g, own, rise)
     gaps = return_gaps(board, ref)  # traces over voids and splits of their reference copper
-    return Analysis(board, ruleset, couplings, net_pairs, electrical, c2g, classes, notes,
-                    layer_pairs, examined, "accurate" if accurate else "fast", models, reference=ref,
-                    islands=islands, return_gaps=gaps, guards=guards)
+    built = Analysis(board, ruleset, couplings, net_pairs, electrical, c2g, classes, notes,
+                     layer_pairs, examined, "accurate" if accurate else "fast", models, what_if=what_if,
+                     reference=ref, islands=islands, return_gaps=gaps, guards=guards)
+    # the noise-budget rules' physics (per-victim noise, long runs, the fraction that would pass)
+    noise = {rule.name: rule_noise(built, rule) for rule in ruleset.rules if rule.kind == "noise-budget"}
+    return replace(built, noise=noise, victim_noise=[v for n in noise.values() for v in n.victims_seen])

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import time
 from dataclasses import dataclass, field
+from typing import NamedTuple
 
 from .analysis import Analysis, analyse, analysis_steps
 from .checks import REGISTRY
@@ -29,9 +30,16 @@ class Result:
     seconds: float
     review: Review = field(default_factory=Review)
     fail_on: str = "warning"
+    #: what the rules had to say besides their findings (``checks.common.Note``)
+    check_notes: list[str] = field(default_factory=list)
     #: ``--only``: the selection the findings were narrowed to, and how many it hid
     selection: Selection | None = None
     unselected: int = 0
+
+    @property
+    def notes(self) -> list[str]:
+        """The analysis's notes, then the rules'."""
+        return list(self.analysis.notes) + list(self.check_notes)
 
     def failing(self) -> list[Finding]:
         return self.review.failing(self.findings, self.fail_on)
@@ -40,21 +48,36 @@ class Result:
         return self.review.verdict(self.findings, self.fail_on)
 
 
-def run_checks(analysis: Analysis, progress=None) -> list[Finding]:
-    """Every rule's findings, worst first."""
+class Checked(NamedTuple):
+    """What the rules found, worst first, and what they noted."""
+
+    findings: list[Finding]
+    notes: list[str]
+
+
+def run_checks(analysis: Analysis, progress=None) -> Checked:
+    """Every rule's findings, worst first, and notes. A rule only reads the
+    analysis: what it yields is all it gives."""
+    from .checks.common import Note
+
     findings: list[Finding] = []
+    notes: list[str] = []
     for rule in analysis.ruleset.rules:
         if progress is not None:
             progress(f"rule {rule.name}")
         module = REGISTRY[rule.kind]
         try:
-            findings.extend(module.check(rule, analysis))
+            for item in module.check(rule, analysis):
+                if isinstance(item, Note):
+                    notes.append(item.text)
+                else:
+                    findings.append(item)
         except CouplintError:
             raise
         except Exception as exc:  # a crashing rule is reported with its name, not a traceback
             raise CheckCrash(f"{analysis.board.path}: rule {rule.name!r} ({rule.kind}) failed: "
                              f"{type(exc).__name__}: {exc}") from exc
-    return sort_findings(findings)
+    return Checked(sort_findings(findings), notes)
 
 
 def check_board(board: Board, ruleset: RuleSet, progress=None, accurate: bool = False,
@@ -73,10 +96,9 @@ def check_board(board: Board, ruleset: RuleSet, progress=None, accurate: bool = 
             progress(description, next(done, total), total)
 
     try:
-        analysis = analyse(board, ruleset, step, accurate)
-        analysis.what_if = what_if
-        findings = run_checks(analysis, step)
+        analysis = analyse(board, ruleset, step, accurate, what_if)
+        findings, notes = run_checks(analysis, step)
     except SolveError as exc:
         raise BoardError(board.path, None, f"a cross-section of this board cannot be solved ({exc}); check the "
                                            "stackup's thicknesses and the copper's widths") from None
-    return Result(analysis, findings, time.perf_counter() - start)
+    return Result(analysis, findings, time.perf_counter() - start, check_notes=notes)

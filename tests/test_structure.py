@@ -30,7 +30,7 @@ LAYERS: list[tuple[str, tuple[str, ...]]] = [
     ("physics", ("checker.physics",)),
     ("analysis parts", ("checker.coupling", "checker.shielding", "checker.occupancy", "checker.islands",
                         "checker.netrelays", "checker.ownruns", "checker.guards", "checker.returnpath",
-                        "checker.longruns")),
+                        "checker.longruns", "checker.victimnoise", "checker.whatif")),
     ("checks", ("checker.checks",)),
     ("rule files", ("checker.ruleset",)),
     ("analysis", ("checker.analysis",)),

@@ -28,8 +28,8 @@ OPTIONS = {
 
 def check(rule, ctx):
     """Yield a finding per net pair whose total C12 exceeds ``max_c12``."""
+    from ..whatif import SPACING_ANSWERS, extra_spacing_mm, shorten_text
     from .common import make_finding, path_text, run_place
-    from .whatif import SPACING_ANSWERS, extra_spacing_mm, shorten_text
 
     np_ = ctx.net_pairs
     c = ctx.couplings

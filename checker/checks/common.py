@@ -12,6 +12,15 @@ from ..coupling import BROADSIDE, EDGE, RELAY
 from ..findings import Finding, finding_id
 
 
+@dataclass(frozen=True)
+class Note:
+    """Something a rule has to say about the board besides its findings
+    (what it could not judge); a check yields it among its findings and the
+    runner gathers it into the result's notes."""
+
+    text: str
+
+
 @dataclass
 class Run:
     """One continuous coupled run: the indices of its coupled rows."""

@@ -66,14 +66,14 @@ def ratios(ctx, rows: np.ndarray, aggressor: np.ndarray, measure: str) -> np.nda
 def check(rule, ctx):
     """Yield a finding per side-by-side run whose spacing ratio falls below
     ``min_ratio`` over more than ``min_length``."""
-    from .common import applicable_rows, iter_runs, make_finding, run_place
+    from .common import Note, applicable_rows, iter_runs, make_finding, run_place
 
     c = ctx.couplings
     measure, min_ratio, min_length = (rule.options[k] for k in ("measure", "min_ratio", "min_length"))
     rows, aggressor = applicable_rows(ctx, rule, c.kind == EDGE)
     value = ratios(ctx, rows, aggressor, measure)
     if measure == "gap/height" and np.isnan(value).any():
-        ctx.notes.append(f"{rule.name}: gap/height skipped on layers without a reference plane")
+        yield Note(f"{rule.name}: gap/height skipped on layers without a reference plane")
     bad = value < min_ratio  # NaN compares False
     rows, aggressor, value = rows[bad], aggressor[bad], value[bad]
     ratio_of = np.full(len(c), np.nan)

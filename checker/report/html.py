@@ -817,7 +817,7 @@ def _baseline(ctx: _Context) -> str:
 
 
 def _notes(result: Result) -> str:
-    notes = sorted(set(result.analysis.notes))
+    notes = sorted(set(result.notes))
     body = ("<ul>\n" + "".join(f"<li>{_e(n)}</li>\n" for n in notes) + "</ul>\n") if notes \
         else "<p>The analysis raised no notes.</p>\n"
     return f'<section id="notes">\n<h2>Analysis notes</h2>\n{body}</section>\n'

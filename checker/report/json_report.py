@@ -308,7 +308,7 @@ def build_report(result: Result) -> dict:
         "victim_noise": victim_noise_rows(result),
         "net_pairs": _NET_PAIRS,
         "quantities": QUANTITIES,
-        "notes": sorted(set(a.notes)),
+        "notes": sorted(set(result.notes)),
         "caution": CAUTION,
     }
 

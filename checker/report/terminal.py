@@ -104,7 +104,7 @@ def render(result: Result, console: Console) -> None:
         console.print(f"{title}: no findings", highlight=False)
     _render_victims(result, console)
     _render_files(a.board, console)
-    for note in sorted(set(a.notes)):
+    for note in sorted(set(result.notes)):
         console.print(f"[dim]note: {escape(visible(note))}[/]", highlight=False)
     _render_review(result, console)
     s = summary(result)

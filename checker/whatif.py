@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..coupling import BROADSIDE
+from .coupling import BROADSIDE
 
 #: bisection steps: 2**-60 of the unit interval, far below any reported digit
 BISECTION_STEPS = 60
@@ -80,8 +80,8 @@ def _wide_model(ctx, kind: int, lo: int, hi: int):
     on the board (beyond them they extrapolate), so a table reaching further
     is solved once per layer group, on first use; accurate mode's direct
     solves answer any spacing as they are."""
-    from ..physics.broadside import BroadsideModel
-    from ..physics.edge import EdgeModel
+    from .physics.broadside import BroadsideModel
+    from .physics.edge import EdgeModel
 
     model = ctx.models[(kind, lo, hi)]
     if ctx.mode == "accurate":
