@@ -29,3 +29,21 @@ def pytest_unconfigure(config) -> None:
         os.environ.pop(_CACHE_ENV, None)
     else:
         os.environ[_CACHE_ENV] = before
+
+
+# --------------------------------------------------------------------------
+# boards the test modules share
+
+import pytest  # noqa: E402
+
+
+@pytest.fixture(scope="module")
+def demo():
+    """The demo board checked with the shipped default rules (one result per
+    test module: a module may set its review without touching another's)."""
+    from checker.cli import demo_board_path
+    from checker.readers import load_board
+    from checker.ruleset import default_ruleset
+    from checker.runner import check_board
+
+    return check_board(load_board(demo_board_path()), default_ruleset())

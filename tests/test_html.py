@@ -23,7 +23,6 @@ import pytest
 
 from checker.cli import demo_board_path
 from checker.errors import InputError, UsageError
-from checker.readers import load_board
 from checker.readers.board_json import read_board_dict
 from checker.report import json_report
 from checker.report.html import (
@@ -104,12 +103,6 @@ class Page(HTMLParser):
         """The card's text with white space collapsed."""
         texts = next(t for fid, _, t in self.cards if fid == finding_id)
         return " ".join("".join(texts).split())
-
-
-@pytest.fixture(scope="module")
-def demo():
-    board = load_board(demo_board_path())
-    return check_board(board, default_ruleset())
 
 
 def demo_html(result, **kwargs) -> str:

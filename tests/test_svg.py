@@ -14,6 +14,8 @@ import xml.etree.ElementTree as ET
 import numpy as np
 import pytest
 import shapely
+from boards import STACKUP, track
+from boards import json_board as make_board
 
 from checker.cli import demo_board_path
 from checker.model import Pieces
@@ -26,14 +28,6 @@ from checker.runner import check_board
 from checker.waivers import Waiver
 
 NS = "{http://www.w3.org/2000/svg}"
-
-STACKUP = [
-    {"copper": "TOP", "role": "signal", "thickness": 0.035},
-    {"dielectric": "pp1", "thickness": 0.2, "er": 4.2},
-    {"copper": "IN1", "role": "signal", "thickness": 0.035},
-    {"dielectric": "pp2", "thickness": 0.2, "er": 4.2},
-    {"copper": "GND", "role": "plane", "thickness": 0.035},
-]
 
 SPACING = textwrap.dedent("""
     version: 1
@@ -54,11 +48,6 @@ SPACING = textwrap.dedent("""
 
 
 @pytest.fixture(scope="module")
-def demo():
-    return check_board(load_board(demo_board_path()), default_ruleset())
-
-
-@pytest.fixture(scope="module")
 def demo_svg(demo):
     return render_svg(demo)
 
@@ -68,21 +57,6 @@ def spacing_rules(tmp_path, aggressors=("CLK*",), victims=("SENSE*",)):
     quote = lambda names: "[" + ", ".join("'" + n.replace("'", "''") + "'" for n in names) + "]"  # noqa: E731
     path.write_text(SPACING.format(aggressors=quote(aggressors), victims=quote(victims)), encoding="utf-8")
     return load_ruleset(path)
-
-
-def make_board(tracks, *, name="t", nets=None, stackup=STACKUP, outline=None, regions=None):
-    names = nets or sorted({t["net"] for t in tracks})
-    data = {"format": "couplint-board", "version": 1, "name": name, "stackup": stackup,
-            "nets": [{"name": n} for n in names], "tracks": tracks}
-    if outline is not None:
-        data["outline"] = outline
-    if regions is not None:
-        data["regions"] = regions
-    return read_board_dict(data, "t.json")
-
-
-def track(layer, net, points, width=0.15):
-    return {"layer": layer, "net": net, "width": width, "points": points}
 
 
 def parse(text: str) -> ET.Element:
