@@ -201,6 +201,9 @@ class Analysis:
     victim_noise: list[VictimNoise] = field(default_factory=list)
     #: per noise-budget rule name: the noise it judges (``checker.victimnoise``)
     noise: dict = field(default_factory=dict, repr=False)
+    #: answers worked out on first use and kept (the what-if tables reaching wider spacings): a cache,
+    #: filling it changes no number of the analysis
+    memo: dict = field(default_factory=dict, repr=False)
     #: the reference copper that decided shielding (``checker.shielding``)
     reference: ReferenceCopper | None = field(default=None, repr=False)
     #: stretches of traces over gaps in their nearest reference copper

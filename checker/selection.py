@@ -14,7 +14,9 @@ widen the selection (either may match); different keys narrow it (each must
 match). A pattern that names nothing the rule set or the board has is an
 error, so a typo cannot pass as a clean board.
 
-The verdict and the exit status cover the findings selected. Waivers are
+The verdict and the exit status cover the findings selected
+(:func:`narrow` makes the narrowed lists; the session builds the result
+from them). Waivers are
 applied to every finding before the selection, so a waiver whose findings
 are all hidden is not reported unused; a baseline's fixed findings are
 narrowed like the current ones.
@@ -22,12 +24,17 @@ narrowed like the current ones.
 
 from __future__ import annotations
 
+import dataclasses
 import re
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 from .errors import UsageError
-from .findings import SEVERITIES
+from .findings import SEVERITIES, Finding
 from .ruleset import compile_pattern
+
+if TYPE_CHECKING:  # a type only
+    from .review import Review
 
 #: the keys ``--only`` takes, and what each matches
 KEYS: dict[str, str] = {
@@ -119,24 +126,21 @@ def _pattern(pattern: str, text: str) -> re.Pattern[str]:
         raise UsageError(f"--only {text}: not a valid regular expression ({exc})") from None
 
 
-def apply_selection(result, selection: Selection | None) -> None:
-    """Narrow ``result`` (its findings and its review's baseline-fixed
-    list) to ``selection``, recording it and how many findings it hid on
-    ``result.selection`` and ``result.unselected``."""
+def narrow(findings: list[Finding], review: Review,
+           selection: Selection | None) -> tuple[list[Finding], Review, int]:
+    """The findings ``selection`` keeps, the review with its baseline-fixed
+    list and statuses narrowed the same way (a new review; the one given is
+    left as it is), and how many findings were hidden."""
     if selection is None:
-        return
+        return list(findings), review, 0
     keep = selection.matcher()
-    before = len(result.findings)
-    result.findings = [f for f in result.findings
-                       if keep(f.rule, f.kind, f.severity, f.aggressor, f.victim, f.layers)]
-    review = result.review
-    review.fixed = [d for d in review.fixed
-                    if keep(str(d.get("rule", "")), str(d.get("kind", "")), str(d.get("severity", "")),
-                            str(d.get("aggressor", "")), str(d.get("victim", "")), list(d.get("layers") or []))]
-    shown = {f.id for f in result.findings}
-    review.status = {k: v for k, v in review.status.items() if k in shown}
-    result.selection = selection
-    result.unselected = before - len(result.findings)
+    kept = [f for f in findings if keep(f.rule, f.kind, f.severity, f.aggressor, f.victim, f.layers)]
+    fixed = [d for d in review.fixed
+             if keep(str(d.get("rule", "")), str(d.get("kind", "")), str(d.get("severity", "")),
+                     str(d.get("aggressor", "")), str(d.get("victim", "")), list(d.get("layers") or []))]
+    shown = {f.id for f in kept}
+    status = {k: v for k, v in review.status.items() if k in shown}
+    return kept, dataclasses.replace(review, fixed=fixed, status=status), len(findings) - len(kept)
 
 
 def selection_note(result) -> str | None:

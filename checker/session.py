@@ -11,7 +11,7 @@ callers differ only in how they report progress and what they write.
 from __future__ import annotations
 
 import datetime as _dt
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from .baseline import Baseline, load_baseline
 from .errors import UsageError
@@ -19,7 +19,7 @@ from .model import Board
 from .review import build_review
 from .ruleset import RuleSet, ruleset_named
 from .runner import Result, check_board
-from .selection import Selection, apply_selection
+from .selection import Selection, narrow
 from .waivers import WaiverFile, load_waivers, today
 
 
@@ -111,12 +111,13 @@ def run(prepared: Prepared, progress=None) -> Result:
     finding, then narrow to the selection. ``progress(step, done, total)``
     as :func:`checker.runner.check_board` calls it."""
     request = prepared.request
-    result = check_board(prepared.board, prepared.ruleset, progress=progress, accurate=request.accurate,
-                         what_if=request.what_if)
-    result.fail_on = request.fail_on
-    result.review = build_review(result.findings, prepared.waivers, prepared.baseline, on=prepared.day)
-    apply_selection(result, prepared.selection)
-    return result
+    checked = check_board(prepared.board, prepared.ruleset, progress=progress, accurate=request.accurate,
+                          what_if=request.what_if)
+    # waivers and baseline are judged on every finding (a hidden finding's waiver is not "unused")
+    review = build_review(checked.findings, prepared.waivers, prepared.baseline, on=prepared.day)
+    findings, review, hidden = narrow(checked.findings, review, prepared.selection)
+    return replace(checked, findings=findings, review=review, fail_on=request.fail_on,
+                   selection=prepared.selection, unselected=hidden)
 
 
 def check(request: Request, progress=None) -> Result:

@@ -87,20 +87,20 @@ def _wide_model(ctx, kind: int, lo: int, hi: int):
     if ctx.mode == "accurate":
         return model
     key = ("what-if", kind, lo, hi)
-    if key not in ctx.models:
+    if key not in ctx.memo:  # a cache the analysis owns: filling it changes no number of the analysis
         c, p = ctx.couplings, ctx.board.pieces
         rows = np.flatnonzero(ctx.net_pairs.row_group == ctx.net_pairs.layer_groups.index((kind, lo, hi)))
         widths_lo = np.where(p.layer[c.a[rows]] == lo, p.width[c.a[rows]], p.width[c.b[rows]])
         widths_hi = np.where(p.layer[c.a[rows]] == lo, p.width[c.b[rows]], p.width[c.a[rows]])
         if kind == BROADSIDE:
             reach = float(np.abs(c.offset_mm[rows]).max()) + MAX_EXTRA_SPACING_MM
-            ctx.models[key] = BroadsideModel(ctx.board.stackup, lo, hi, widths_lo, widths_hi, max_offset_mm=reach)
+            ctx.memo[key] = BroadsideModel(ctx.board.stackup, lo, hi, widths_lo, widths_hi, max_offset_mm=reach)
         else:
             gaps = np.maximum(c.gap_mm[rows], 0.01)
-            ctx.models[key] = EdgeModel(ctx.board.stackup, lo, np.concatenate([widths_lo, widths_hi]),
-                                        max_gap_mm=float(gaps.max()) + MAX_EXTRA_SPACING_MM,
-                                        min_gap_mm=float(gaps.min()))
-    return ctx.models[key]
+            ctx.memo[key] = EdgeModel(ctx.board.stackup, lo, np.concatenate([widths_lo, widths_hi]),
+                                      max_gap_mm=float(gaps.max()) + MAX_EXTRA_SPACING_MM,
+                                      min_gap_mm=float(gaps.min()))
+    return ctx.memo[key]
 
 
 def spacing_text(extra: float | None | bool) -> str:

@@ -56,6 +56,7 @@ def _snapshot(analysis) -> dict:
         table = getattr(analysis, name)
         out[name] = {k: np.array(v, copy=True) for k, v in vars(table).items() if isinstance(v, np.ndarray)}
     out["notes"] = list(analysis.notes)
+    out["models"] = sorted(map(repr, analysis.models))
     out["victim_noise"] = copy.deepcopy(list(getattr(analysis, "victim_noise", [])))
     return out
 
@@ -66,7 +67,7 @@ def checked(request):
 
     _, paths, stackup = request.param
     board = load_board_of(paths, stackup=stackup)
-    analysis = analyse(board, default_ruleset())
+    analysis = analyse(board, default_ruleset(), what_if=True)  # the what-if answers read too
     before = _snapshot(analysis)
     findings, _ = run_checks(analysis)
     return board, analysis, before, findings
@@ -103,6 +104,7 @@ def test_checks_change_nothing_they_are_handed(checked):
         for column in before[table]:
             np.testing.assert_array_equal(before[table][column], after[table][column], err_msg=f"{table}.{column}")
     assert after["notes"] == before["notes"]
+    assert after["models"] == before["models"]
     assert after["victim_noise"] == before["victim_noise"]
 
 

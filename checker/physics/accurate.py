@@ -42,12 +42,15 @@ START_GRID_MM = 0.005
 
 
 def _snap(values: np.ndarray, grid: float) -> np.ndarray:
+    """``values`` (mm) rounded to the nearest multiple of ``grid`` (mm)."""
     return np.round(np.asarray(values, dtype=np.float64) / grid) * grid
 
 
 def _keys(columns: list[np.ndarray], grid: float) -> tuple[np.ndarray, np.ndarray, float]:
-    """Unique rounded rows of ``columns`` and each query's row, coarsening
-    the grid until there are at most ``MAX_SOLVES``."""
+    """Unique rounded rows of ``columns`` (lengths in mm) and each query's
+    row, coarsening the rounding ``grid`` (mm, doubled each time) until
+    there are at most ``MAX_SOLVES``; returns the rows, the index of each
+    query's row, and the grid used."""
     while True:
         snapped = np.stack([_snap(c, grid) for c in columns], axis=1)
         unique, inverse = np.unique(snapped, axis=0, return_inverse=True)
@@ -86,8 +89,9 @@ class _Exact:
 
 
 class ExactBroadside(_Exact):
-    """Drop-in for ``BroadsideModel``: C12'(wa, wb, offset) by direct solves
-    of ``broadside_section`` at each distinct rounded (wa, wb, offset)."""
+    """Drop-in for ``BroadsideModel``: C12'(wa, wb, offset) in F/m (widths
+    and lateral offset in mm) by direct solves of ``broadside_section`` at
+    each distinct rounded (wa, wb, offset)."""
 
     def __init__(self, stackup: Stackup, upper: int, lower: int) -> None:
         super().__init__()
@@ -108,8 +112,9 @@ class ExactBroadside(_Exact):
 
 
 class ExactEdge(_Exact):
-    """Drop-in for ``EdgeModel``: C12'(wa, wb, gap) by direct solves of
-    ``edge_section`` at each distinct rounded (wa, wb, gap)."""
+    """Drop-in for ``EdgeModel``: C12'(wa, wb, gap) in F/m (widths and
+    edge-to-edge gap in mm) by direct solves of ``edge_section`` at each
+    distinct rounded (wa, wb, gap)."""
 
     def __init__(self, stackup: Stackup, layer: int) -> None:
         super().__init__()
@@ -129,8 +134,9 @@ class ExactEdge(_Exact):
 
 
 class ExactGround(_Exact):
-    """Drop-in for ``GroundModel``: C'(w) to the planes by a direct solve of
-    ``ground_section`` at each distinct rounded width."""
+    """Drop-in for ``GroundModel``: C'(w) in F/m of a trace of width w (mm)
+    to the planes, by a direct solve of ``ground_section`` at each distinct
+    rounded width."""
 
     def __init__(self, stackup: Stackup, layer: int) -> None:
         super().__init__()

@@ -616,6 +616,20 @@ def _circle_axis(keys: np.ndarray, hfun, n_min: int) -> np.ndarray:
 
 
 def _build(cs: CrossSection, resolution: float) -> _Grid:
+    """The non-uniform finite-difference grid of ``cs`` (lengths in mm).
+
+    Grid lines: every conductor, slab, block and plane boundary is a key
+    line (a circle gives its centre and extreme lines); between key lines
+    the spacing starts at a fraction of the smallest gap next to copper
+    divided by ``resolution`` squared and grows linearly with the distance
+    to the nearest key line (faster beyond the size of the structure), up to
+    a tenth of the domain divided by ``resolution``, with at least a few
+    lines across each copper thickness (:class:`_Spacing`). Labels: the
+    domain's edge (:func:`domain`) and every plane are ground; each
+    conductor's nodes carry its net (a signal touching ground or another
+    net raises :class:`SolveError`). Permittivity per cell from the slabs,
+    then the blocks it lies in. Raises ``ValueError`` for a resolution that
+    is not positive or a section without conductors."""
     if resolution <= 0:
         raise ValueError(f"resolution must be positive, got {resolution}")
     if not cs.conductors:
