@@ -193,3 +193,12 @@ def test_no_private_name_is_borrowed_across_modules():
 @pytest.mark.parametrize("module", sorted(MODULES))
 def test_every_module_has_a_layer(module):
     layer_of(module)
+
+
+def test_the_contributor_guide_maps_every_module():
+    """DEVELOPERS.md's map of the package names every module file."""
+    guide = (PACKAGE.parent / "DEVELOPERS.md").read_text(encoding="utf-8")
+    missing = [str(path.relative_to(PACKAGE.parent)) for path in sorted(PACKAGE.rglob("*.py"))
+               if path.name not in ("__init__.py", "__main__.py")
+               and not __import__("re").search(rf"(?<![\w.]){__import__('re').escape(path.name)}\b", guide)]
+    assert missing == []
