@@ -354,7 +354,7 @@ def find_couplings(board: Board, ruleset: RuleSet, notes: list[str], progress=No
     layers = _signal_layers(board, ref.is_reference)
     layer_pairs = [(u, l) for n, u in enumerate(layers) for l in layers[n + 1:]]
     tasks = [("broadside", u, l) for u, l in layer_pairs] + [("edge", k, k) for k in layers]
-    tables: list[tuple[int, PairTable, np.ndarray]] = []
+    tables: list[tuple] = []  # (kind, pair table, C12 pF, open fraction, shield layer, guards or None)
     third_budget = SolveBudget(MAX_THIRD_NET_SOLVES)
     searched: list[tuple[int, int]] = []
     covered: list[str] = []
@@ -502,7 +502,7 @@ def _guard_edge_rows(board: Board, ref: ReferenceCopper, ground: np.ndarray, t: 
         credited &= factor < 1.0  # a guard whose solve was skipped is not credited
         gap_net = np.where(credited, p.net[np.maximum(piece, 0)], NO_NET).astype(np.int64)
     # a driven third net in the gap (no resistance given: not a high-impedance node), where no guard counts
-    if driven is not None and len(t):
+    if driven is not None and is_aggressor is not None and len(t):
         # only rows that feed a noise estimate (one net an aggressor, the other a victim node) are
         # worth the solves; elsewhere the third net is left out (the estimate errs high)
         net = p.net.astype(np.int64)
@@ -545,6 +545,7 @@ def _broadside_c12(board: Board, t: PairTable, upper: int, lower: int, search_mm
         return np.zeros(0)
     p = board.pieces
     wa, wb = p.width[t.a], p.width[t.b]
+    model: ExactBroadside | BroadsideModel  # a direct solve of each section, or a field-solved table
     if accurate:
         model = ExactBroadside(board.stackup, upper, lower)
     elif lower - upper > 1:
@@ -592,6 +593,7 @@ def _edge_c12(board: Board, t: PairTable, layer: int, notes: list[str], accurate
             f"{EDGE_GAP_FLOOR_MM} mm or touch (a clearance error); their C12 is taken at {EDGE_GAP_FLOOR_MM} mm")
     gap = np.maximum(t.gap_mm, EDGE_GAP_FLOOR_MM)
     wa, wb = p.width[t.a], p.width[t.b]
+    model: ExactEdge | EdgeModel
     if accurate:
         model = ExactEdge(board.stackup, layer)
         per_m = model.c12_per_m(wa, wb, gap)

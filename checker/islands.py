@@ -199,7 +199,8 @@ def island_links(board: Board, ref: ReferenceCopper, islands: list[Island], sign
     ground = np.zeros(len(islands))
     rows: list[tuple[np.ndarray, np.ndarray, np.ndarray]] = []  # (island, piece, pF)
     if not islands:
-        return IslandLinks(*(np.zeros(0, np.int64) for _ in range(3)), np.zeros(0), ground)
+        z = np.zeros(0, np.int64)
+        return IslandLinks(z, z.copy(), z.copy(), np.zeros(0), ground)
     rects = piece_polygons(signal, live)
     tree = shapely.STRtree(rects)
     lines = shapely.linestrings(np.stack([np.stack([signal.x1[live], signal.x2[live]], 1),
@@ -247,9 +248,9 @@ def island_links(board: Board, ref: ReferenceCopper, islands: list[Island], sign
         gap = np.concatenate([it[4] for it in items])
         if key[0] == "edge":
             wide = 1.0
-            model = EdgeModel(st, key[1], np.concatenate([w, [wide]]), max_gap_mm=float(gap.max()),
-                              min_gap_mm=float(gap.min()))
-            per_m = model.c12_per_m(w, np.full(w.size, wide), gap)
+            edge = EdgeModel(st, key[1], np.concatenate([w, [wide]]), max_gap_mm=float(gap.max()),
+                             min_gap_mm=float(gap.min()))
+            per_m = edge.c12_per_m(w, np.full(w.size, wide), gap)
         else:
             i, k = key[1], key[2]
             wide = max(1.0, 10 * separation_mm(st, i, k))
@@ -261,16 +262,17 @@ def island_links(board: Board, ref: ReferenceCopper, islands: list[Island], sign
                 model.c12_per_m(np.full(w.size, wide), w, 0.0)
         rows.append((owner, live[sel], per_m * length * 1e-3 * 1e12))
     if not rows:
-        return IslandLinks(*(np.zeros(0, np.int64) for _ in range(3)), np.zeros(0), ground)
+        z = np.zeros(0, np.int64)
+        return IslandLinks(z, z.copy(), z.copy(), np.zeros(0), ground)
     owner = np.concatenate([r[0] for r in rows]).astype(np.int64)
     piece = np.concatenate([r[1] for r in rows]).astype(np.int64)
     pf = np.concatenate([r[2] for r in rows])
     net = signal.net[piece].astype(np.int64)
     # one row per (island, net): summed C, and the piece contributing most
     n_nets = int(net.max()) + 1
-    key = owner * n_nets + net
-    order = np.lexsort((-pf, key))
-    uniq, first, inv = np.unique(key[order], return_index=True, return_inverse=True)
+    pair_key = owner * n_nets + net
+    order = np.lexsort((-pf, pair_key))
+    uniq, first, inv = np.unique(pair_key[order], return_index=True, return_inverse=True)
     total = np.bincount(inv, weights=pf[order])
     return IslandLinks(uniq // n_nets, uniq % n_nets, piece[order][first], total, ground)
 
@@ -305,5 +307,6 @@ def relays(links: IslandLinks, n_islands: int, notes: list[str]) -> Relays:
     if not cols["island"]:
         z = np.zeros(0, np.int64)
         return Relays(z, z.copy(), z.copy(), z.copy(), z.copy(), np.zeros(0))
-    return Relays(*(np.concatenate(cols[k]) for k in ("island", "net_a", "net_b", "piece_a", "piece_b")),
-                  np.concatenate(cols["c_pf"]))
+    island, net_a, net_b, piece_a, piece_b, c_pf = (np.concatenate(cols[k]) for k in
+                                                   ("island", "net_a", "net_b", "piece_a", "piece_b", "c_pf"))
+    return Relays(island, net_a, net_b, piece_a, piece_b, c_pf)

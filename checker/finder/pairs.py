@@ -59,7 +59,7 @@ from __future__ import annotations
 from collections import deque
 from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass
-from typing import Callable, ClassVar, Iterator, Sequence
+from typing import Any, Callable, ClassVar, Iterable, Iterator, Sequence
 
 import numpy as np
 
@@ -122,14 +122,15 @@ class PairTable:
     def empty(cls, kind: str, layer_a: int, layer_b: int) -> "PairTable":
         i = np.zeros(0, dtype=np.int32)
         f = np.zeros(0, dtype=np.float64)
-        return cls(kind, layer_a, layer_b, i, i.copy(), f, np.zeros(0, dtype=bool),
-                   *(f.copy() for _ in range(6)))
+        columns: dict[str, Any] = {n: f.copy() for n in cls.COLUMNS}
+        columns.update(a=i, b=i.copy(), parallel=np.zeros(0, dtype=bool))
+        return cls(kind, layer_a, layer_b, **columns)
 
     def take(self, mask_or_index) -> "PairTable":
         """The rows selected by a boolean mask, an index array or a slice."""
         sel = mask_or_index if isinstance(mask_or_index, slice) else np.asarray(mask_or_index)
-        return PairTable(self.kind, self.layer_a, self.layer_b,
-                         *(getattr(self, n)[sel] for n in self.COLUMNS))
+        taken: dict[str, Any] = {n: getattr(self, n)[sel] for n in self.COLUMNS}
+        return PairTable(self.kind, self.layer_a, self.layer_b, **taken)
 
     @classmethod
     def concat(cls, tables: Sequence["PairTable"]) -> "PairTable":
@@ -144,8 +145,8 @@ class PairTable:
         if len(kinds) != 1:
             raise ValueError(f"PairTable.concat: tables of different kinds {sorted(kinds)}")
         t0 = tables[0]
-        return cls(t0.kind, t0.layer_a, t0.layer_b,
-                   *(np.concatenate([getattr(t, n) for t in tables]) for n in cls.COLUMNS))
+        joined: dict[str, Any] = {n: np.concatenate([getattr(t, n) for t in tables]) for n in cls.COLUMNS}
+        return cls(t0.kind, t0.layer_a, t0.layer_b, **joined)
 
 
 
@@ -268,7 +269,8 @@ def find_edge(pieces: Pieces, layer: int, search_mm: float,
         # within a class, and across neighbouring classes only between pieces
         # within parallel_angle_deg of the border between them
         margin = CLASS_DEG / 2 - parallel_angle_deg - ANGLE_TOL_DEG
-        jobs = [(np.flatnonzero(la.cls == i).astype(np.int32), None, CLASS_DEG * i) for i in range(N_CLASSES)]
+        jobs: list[tuple[np.ndarray, np.ndarray | None, float]] = [
+            (np.flatnonzero(la.cls == i).astype(np.int32), None, CLASS_DEG * i) for i in range(N_CLASSES)]
         for i in range(N_CLASSES):
             j = (i + 1) % N_CLASSES
             up = np.flatnonzero((la.cls == i) & (la.off >= margin)).astype(np.int32)
@@ -315,7 +317,7 @@ def _job_chunks(la: _Layer, lb: _Layer, jobs, self_join: bool, cell_mm: float | 
                 yield sa[ia], sb[ib]
 
 
-def _map_chunks(chunks: Iterator[tuple[np.ndarray, np.ndarray]], workers: int | None,
+def _map_chunks(chunks: Iterable[tuple[np.ndarray, np.ndarray]], workers: int | None,
                 measure: Callable[[np.ndarray, np.ndarray], tuple[np.ndarray, ...]]
                 ) -> list[tuple[np.ndarray, ...]]:
     """``measure`` applied to every chunk, results in chunk order. With more
@@ -353,14 +355,14 @@ def _assemble(kind: str, layer_a: int, layer_b: int, la: _Layer, lb: _Layer,
               parts: list[tuple[np.ndarray, ...]]) -> PairTable:
     """One table from the measured chunks, rows sorted by (a, b). Columns are
     joined and reordered one at a time to keep the peak memory low."""
-    parts = [list(p) for p in parts if p[0].size]
-    if not parts:
+    lists: list[list[np.ndarray | None]] = [list(p) for p in parts if p[0].size]
+    if not lists:
         return PairTable.empty(kind, layer_a, layer_b)
 
     def column(k: int) -> np.ndarray:
-        col = np.concatenate([p[k] for p in parts])
-        for p in parts:
-            p[k] = None
+        col = np.concatenate([p[k] for p in lists])
+        for p in lists:
+            p[k] = None  # each chunk's column freed once joined (peak memory)
         return col
 
     ra, rb = la.rank[column(0)], lb.rank[column(1)]  # ranks (int64) follow global index order

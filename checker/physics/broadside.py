@@ -167,6 +167,7 @@ from __future__ import annotations
 
 import math
 import time
+from typing import Protocol
 
 import numpy as np
 from scipy.constants import epsilon_0
@@ -355,7 +356,19 @@ class BroadsideModel:
         return 0.5 * (c0 * d / (epsilon_0 * self.er_eff) - np.minimum(wa, wb))
 
 
-def broadside_c12_pf(model: BroadsideModel, wa, wb, offset_mm, length_mm, angle_deg, parallel) -> np.ndarray:
+class BroadsideC12(Protocol):
+    """What :func:`broadside_c12_pf` asks of a broadside model: C12' (F/m)
+    of two widths at an offset (mm), the layers' separation (mm) and
+    effective permittivity. :class:`BroadsideModel` (tables) and
+    ``accurate.ExactBroadside`` (direct solves) both answer it."""
+
+    separation_mm: float
+    er_eff: float
+
+    def c12_per_m(self, wa, wb, offset) -> np.ndarray: ...
+
+
+def broadside_c12_pf(model: BroadsideC12, wa, wb, offset_mm, length_mm, angle_deg, parallel) -> np.ndarray:
     """Mutual capacitance C12 (pF) of each piece pair on the model's layers.
 
     Parameters (all broadcast together)
