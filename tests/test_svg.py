@@ -703,3 +703,67 @@ def test_traces_as_an_image_look_like_the_traces_as_vectors(tmp_path, monkeypatc
     # the copper covers nearly the same pixels (edges differ by antialiasing)
     assert (ia & ib).sum() / (ia | ib).sum() > 0.6
     assert np.abs(a - b).mean() < 3.0
+
+
+def test_a_close_up_names_both_nets_on_their_copper_without_overlap(tmp_path):
+    """A broadside pair stacked on two layers: both nets named in the
+    picture (a print keeps it), the aggressor's label above, the victim's
+    below, a text height or more apart."""
+    b = make_board([track("TOP", "CLK_A", [[0, 5], [10, 5]]), track("IN1", "SENSE_B", [[0, 5], [10, 5]])],
+                   outline=[[-5, 0], [15, 0], [15, 10], [-5, 10]])
+    rules = tmp_path / "r.yaml"
+    rules.write_text(textwrap.dedent("""
+        version: 1
+        net_classes:
+          fast: {nets: ["CLK*"]}
+          quiet: {nets: ["SENSE*"]}
+        rules:
+          - {name: cross, kind: crossing-angle, aggressor: fast, victim: quiet, min_angle: 60 deg, max_length: 1 mm}
+    """), encoding="utf-8")
+    result = check_board(b, load_ruleset(rules))
+    (f,) = result.findings
+    root = parse(render_svg(result, view=(f.bbox[0] - 2, f.bbox[1] - 2, f.bbox[2] + 2, f.bbox[3] + 2), only=f.id))
+    labels = {g.get("data-net"): g for g in root.iter(NS + "g") if g.get("data-role") == "net-label"}
+    assert set(labels) == {"CLK_A", "SENSE_B"}
+    texts = {net: [t for t in g.iter(NS + "text")] for net, g in labels.items()}
+    assert [t.text for t in texts["CLK_A"]] == ["CLK_A (aggressor)"] * 2  # the halo copy and the text
+    y_agg, y_vic = float(texts["CLK_A"][1].get("y")), float(texts["SENSE_B"][1].get("y"))
+    size = float(texts["CLK_A"][1].get("font-size"))
+    assert y_vic - y_agg >= size  # SVG y grows downwards: the aggressor's label is above
+    assert texts["CLK_A"][1].get("fill") == svg.OKABE_ITO["black"]
+    assert texts["CLK_A"][0].get("stroke") == svg.BACKGROUND  # the white halo under it
+
+
+def test_report_close_ups_draw_only_the_findings_layers(demo):
+    from checker.report.html import render_html
+
+    page = render_html(demo, inputs=[], cards=len(demo.findings))
+    cards = re.findall(r'<article class="card[^"]*" id="f-([0-9a-f]{12})".*?</article>', page, re.S)
+    bodies = re.findall(r'<article class="card[^"]*" id="f-[0-9a-f]{12}".*?</article>', page, re.S)
+    by_id = {f.id: f for f in demo.findings}
+    assert len(cards) == len(demo.findings)
+    for fid, body in zip(cards, bodies):
+        drawn = set(re.findall(r'data-layer="([^"]+)" data-role="(?:traces|regions)"', body))
+        assert drawn and drawn <= set(by_id[fid].layers), (fid, drawn, by_id[fid].layers)
+
+
+def test_a_close_up_draws_the_vias_in_view(demo):
+    """The demo board's vias: every one whose pad meets a close-up's view is
+    drawn there as a ring, none outside it, none in the whole-board picture."""
+    from checker.report.html import picture_view
+
+    v = demo.analysis.board.vias
+    assert len(v)
+    f = demo.findings[0]
+    view = picture_view(f.bbox)
+    root = parse(render_svg(demo, view=view, only=f.id))
+    frame_margin = svg.MARGIN * max(view[2] - view[0], view[3] - view[1]) * svg.TEXT_PX / 960
+    x0, y0, x1, y1 = view[0] - frame_margin, view[1] - frame_margin, view[2] + frame_margin, view[3] + frame_margin
+    inside = [(float(x), float(y)) for x, y, p in zip(v.x, v.y, v.pad)
+              if x + p / 2 >= x0 and x - p / 2 <= x1 and y + p / 2 >= y0 and y - p / 2 <= y1]
+    (group,) = [g for g in root.iter(NS + "g") if g.get("data-role") == "vias"]
+    rings = {(float(c.get("cx")), float(c.get("cy"))) for c in group.iter(NS + "circle")
+             if c.get("fill") == svg.BACKGROUND}
+    assert rings == {(round(x, 3), round(y, 3)) for x, y in inside} and rings
+    whole = parse(render_svg(demo))
+    assert not [g for g in whole.iter(NS + "g") if g.get("data-role") == "vias"]

@@ -695,7 +695,8 @@ def _card(ctx: _Context, f) -> str:
         view = (f.at[0] - half, f.at[1] - half, f.at[0] + half, f.at[1] + half)
         caption = (f'<figcaption class="fine">The worst spot, {CLOSE_UP_MAX_MM:g} mm across; the finding '
                    "extends beyond it (see Extent and the board overlay).</figcaption>")
-    picture = ctx.svg(view=view, only=f.id, width_px=480, compact_legend=True)
+    # the finding's own layers (a neighbouring layer's copper would only hide what couples)
+    picture = ctx.svg(view=view, only=f.id, layers=f.layers, width_px=480, compact_legend=True)
     return (
         f'<article class="card card-{css[3:]}" id="f-{_e(f.id)}" data-finding-id="{_e(f.id)}">\n'
         f'<header><span class="num">{_e(ctx.number(f.id))}</span> '

@@ -645,12 +645,15 @@ def _net_labels(board: Board, f: Finding, per_layer: list[tuple[int, np.ndarray]
     spots: list[tuple[float, float, float]] = []
     for i, (name, role, x, y, ux, uy) in enumerate(anchors):
         nx, ny = -uy, ux
+        if ny < 0 or (ny == 0 and nx < 0):
+            nx, ny = -nx, -ny  # "up" (or right) off the copper
         if len(anchors) == 2:  # off the copper, away from the other net's label
             ox, oy = anchors[1 - i][2], anchors[1 - i][3]
-            if (x - ox) * nx + (y - oy) * ny < 0:
+            apart = (x - ox) * nx + (y - oy) * ny
+            if abs(apart) < 1.5 * size:  # stacked or close (a broadside pair): the aggressor above, the victim below
+                apart = 1.0 if role == "aggressor" else -1.0
+            if apart < 0:
                 nx, ny = -nx, -ny
-        elif ny < 0:
-            nx, ny = -nx, -ny
         lx = min(max(x + nx * size, frame.vx0 + 4 * size), frame.vx1 - 4 * size)
         ly = min(max(y + ny * size, frame.vy0 + size), frame.vy1 - size)
         where = f'x="{_f(lx)}" y="{_f(frame.sy(ly) + 0.35 * size)}" font-size="{_f(size)}" text-anchor="middle"'
