@@ -67,6 +67,7 @@ a note says so.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 import shapely
@@ -317,11 +318,12 @@ def grounding(board: Board, is_ref_net: np.ndarray, chains: list[np.ndarray], fr
             key = (_WORSE[state], gap)
             if worst is None or key > worst[0]:
                 worst = (key, state, gap, line.interpolate(mid))
+        assert worst is not None  # a guard has at least one stretch
         _, state, gap, xy = worst
-        for key, val in (("source", int(p.source[mine[0]])), ("layer", k), ("net", int(p.net[mine[0]])),
-                         ("length_mm", total), ("state", state), ("max_gap_mm", gap), ("limit_mm", limit),
-                         ("x", xy.x), ("y", xy.y), ("points", points)):
-            cols[key].append(val)
+        for column, val in (("source", int(p.source[mine[0]])), ("layer", k), ("net", int(p.net[mine[0]])),
+                            ("length_mm", total), ("state", state), ("max_gap_mm", gap), ("limit_mm", limit),
+                            ("x", xy.x), ("y", xy.y), ("points", points)):
+            cols[column].append(val)
     if not cols["source"]:
         return out
     return Guards(np.array(cols["source"], np.int64), np.array(cols["layer"], np.int64),
@@ -335,6 +337,7 @@ def guard_section(stackup, layer: int, wa: float, wb: float, gap: float, wg: flo
     whose centre lies ``pos`` mm from trace a's edge, clipped to the gap."""
     cs = edge_section(stackup, layer, wa, wb, gap)
     a = cs.conductors[0]
+    assert isinstance(a, Conductor)  # edge sections are made of rectangles
     x0 = max(a.x1 + pos - wg / 2, a.x1 + 1e-4)
     x1 = min(a.x1 + pos + wg / 2, a.x1 + gap - 1e-4)
     guard = Conductor(x0, x1, a.y0, a.y1, GROUND)
@@ -374,7 +377,8 @@ def guard_factors(board: Board, t, layer: int, guard_piece: np.ndarray, covered:
     if budget is not None:
         budget.left -= uniq.shape[0]
     st = board.stackup
-    with_g = [guard_section(st, layer, *(max(v, GRID_MM) for v in u[:4]), max(u[4], 0.0)) for u in uniq]
+    with_g = [guard_section(st, layer, max(u[0], GRID_MM), max(u[1], GRID_MM), max(u[2], GRID_MM),
+                            max(u[3], GRID_MM), max(u[4], 0.0)) for u in uniq]
     without = [edge_section(st, layer, max(u[0], GRID_MM), max(u[1], GRID_MM), max(u[2], GRID_MM)) for u in uniq]
     solved, _ = solve_shared(with_g + without, GUARD_RESOLUTION, richardson=True)
     def c12(r) -> float:
@@ -390,5 +394,6 @@ def concat_guards(tables: list[Guards]) -> Guards:
     """One ``Guards`` table of several (rows in order)."""
     if not tables:
         return Guards.empty()
-    return Guards(*(np.concatenate([getattr(t, k) for t in tables]) if k != "state"
-                    else [s for t in tables for s in t.state] for k in Guards.__dataclass_fields__))
+    columns: dict[str, Any] = {k: (np.concatenate([getattr(t, k) for t in tables]) if k != "state"
+                                   else [s for t in tables for s in t.state]) for k in Guards.__dataclass_fields__}
+    return Guards(**columns)

@@ -43,6 +43,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Any, cast
 from xml.sax.saxutils import escape, quoteattr
 
 import numpy as np
@@ -475,7 +476,8 @@ def _nets_of(index: dict[str, int], f: Finding | None) -> set[int]:
     return {index[n] for n in (f.aggressor, f.victim) if n in index}
 
 
-def _regions(board: Board, drawn: list[int], frame: _Frame, strong_nets: set[int] = frozenset()) -> list[str]:
+def _regions(board: Board, drawn: list[int], frame: _Frame,
+             strong_nets: set[int] | frozenset[int] = frozenset()) -> list[str]:
     """Pours (and, fainter, planes) of the drawn layers as light fills with
     their holes, bottom layer first. Small copper (pads: at most
     :data:`PAD_MAX_MM2`) of ``strong_nets`` is drawn at copper strength, so a
@@ -805,10 +807,10 @@ def _context(analysis, shown: list[Finding], frame: _Frame, rows_of: _RowFinder)
                        f'<title>{_text(what)}</title></path>')
     if islands:
         kinds.append("island")
-    g = getattr(analysis, "guards", None)
+    g: Any = getattr(analysis, "guards", None)  # checker.guards.Guards, or None for an analysis without them
     p = board.pieces
     stitches: list[str] = []
-    for k in sorted(guards):
+    for k in (sorted(guards) if g is not None else []):
         mine = np.flatnonzero(p.source == g.source[k])
         d = "".join(f"M{a} {b}L{e} {h}" for a, b, e, h in zip(_fs(p.x1[mine]), _fs(p.y1[mine]), _fs(p.x2[mine]),
                                                                _fs(p.y2[mine]), strict=True))
@@ -938,7 +940,8 @@ class _RowFinder:
             return (EDGE,)
         rule = self.rules.get(f.rule)
         coupling = rule.options.get("coupling") if rule is not None else None
-        return {"edge": (EDGE,), "broadside": (BROADSIDE,)}.get(coupling, (BROADSIDE, EDGE))
+        by_option: dict[str, tuple[int, ...]] = {"edge": (EDGE,), "broadside": (BROADSIDE,)}
+        return by_option.get(str(coupling), (BROADSIDE, EDGE))
 
     def __call__(self, f: Finding) -> np.ndarray:
         ia, iv = self.net.get(f.aggressor), self.net.get(f.victim)
@@ -1093,7 +1096,8 @@ def _faint_bands(findings: list[Finding], faint_ids: set[str], rows_of: _RowFind
     return out
 
 
-def _stretches_merged(analysis, findings: list[Finding], rows_of, frame: _Frame, waived) -> list[str]:
+def _stretches_merged(analysis, findings: list[Finding], rows_of, frame: _Frame,
+                      waived) -> tuple[list[str], list[str]]:
     """The stretches of many findings (a clustered overview) by look
     (severity, waived) instead of one group per finding: the same picture
     in a fraction of the bytes. Up to :data:`MERGED_VECTOR_BANDS` bands,
@@ -1457,14 +1461,14 @@ class _Legend:
             elif kind == "text":
                 out.append(f'<text x="{_f(x)}" y="{base}" font-size="{fs}">{_text(str(value))}</text>')
             elif kind == "layer":
-                colour, name, role = value  # type: ignore[misc]
+                colour, name, role = cast(tuple[str, str, str], value)
                 out.append(f'<line x1="{_f(x + 0.2 * u)}" y1="{_f(mid)}" x2="{_f(x + 1.8 * u)}" y2="{_f(mid)}" '
                            f'stroke="{colour}" stroke-opacity="{COPPER_OPACITY}" stroke-width="{_f(0.5 * u)}" '
                            f'stroke-linecap="round"/>')
                 out.append(f'<text x="{_f(x + 2.4 * u)}" y="{base}" font-size="{fs}" '
                            f'data-role="layer-name">{_text(f"{name} ({role})")}</text>')
             elif kind == "marker":
-                sev, waived, label = value  # type: ignore[misc]
+                sev, waived, label = cast(tuple[str, bool, str], value)
                 out.extend(_marker(sev, waived, x + 0.9 * u, mid, 0.6 * u, fr))
                 out.append(f'<text x="{_f(x + 2.2 * u)}" y="{base}" font-size="{fs}">{_text(label)}</text>')
             elif kind == "band":
@@ -1486,7 +1490,7 @@ class _Legend:
                            f'font-weight="bold" text-anchor="middle" fill="{BACKGROUND}">12</text>')
                 out.append(f'<text x="{_f(x + 2.6 * u)}" y="{base}" font-size="{fs}">{_text(str(value))}</text>')
             elif kind == "context":
-                what, label = value  # type: ignore[misc]
+                what, label = cast(tuple[str, str], value)
                 out.extend(_context_swatch(what, x + 0.1 * u, mid, u, fr))
                 out.append(f'<text x="{_f(x + 2.2 * u)}" y="{base}" font-size="{fs}">{_text(str(label))}</text>')
             elif kind == "scale":
