@@ -16,6 +16,7 @@ from __future__ import annotations
 import dataclasses
 import math
 from collections import Counter
+from typing import Any, cast
 
 import numpy as np
 import shapely
@@ -25,7 +26,7 @@ from scipy.spatial import cKDTree
 from shapely.geometry.polygon import orient
 
 from ...errors import FabError
-from ...model import NO_NET, Board, Net, Pieces, Region, Stackup, Vias
+from ...model import NO_NET, Board, LayerRole, Net, Pieces, Region, Stackup, Vias
 from .layer import NET_UNKNOWN, DrillFile, GerberLayer, JobStackup, Netlist
 
 #: Two copper objects closer than this (mm) touch (coordinates are exact to
@@ -84,7 +85,7 @@ def _with_roles(job: JobStackup, given_roles: dict[int, str | None], file_names:
         elif from_file and job.roles_given and from_file != layer.role and not given:
             notes.append(f"layer {layer.name}: role {from_file} from {file_names[number]} (TF.FileFunction), "
                          f"not {layer.role} as the stackup file says")
-        layers.append(dataclasses.replace(layer, role=role))
+        layers.append(dataclasses.replace(layer, role=cast(LayerRole, role)))
     if assumed:
         notes.append(f"layer role not given for {', '.join(assumed)} (no TF.FileFunction type, no stackup role): "
                      "taken as mixed (a hint for reports only: planes and shielding follow each layer's "
@@ -213,10 +214,11 @@ class _Builder:
             self.notes.append(f"drill file(s) without TF.FileFunction span ({', '.join(through)}): holes taken as "
                               "plated through the whole board")
         out = {k: (np.concatenate(v) if v and k not in ("function", "where") else v) for k, v in cols.items()}
-        for k in ("x", "y", "d"):
-            out[k] = np.asarray(out[k], dtype=np.float64) if len(out[k]) else np.zeros(0)
-        for k in ("first", "last"):
-            out[k] = np.asarray(out[k], dtype=np.int64) if len(out[k]) else np.zeros(0, dtype=np.int64)
+        for column in ("x", "y", "d"):
+            out[column] = np.asarray(out[column], dtype=np.float64) if len(out[column]) else np.zeros(0)
+        for column in ("first", "last"):
+            out[column] = (np.asarray(out[column], dtype=np.int64) if len(out[column])
+                           else np.zeros(0, dtype=np.int64))
         return out
 
     def _connect(self, piece_nets: list[np.ndarray], shape_nets: list[np.ndarray], holes: dict) -> None:
@@ -290,14 +292,15 @@ class _Builder:
         """Name the components that need a name from the netlist's test points:
         a point names every component whose copper on the point's access layer
         (any layer for A00) it lies on; each point votes once per component."""
+        assert self.netlist is not None  # called only with a netlist
         points = [p for p in self.netlist.points if p.net is not None]
         if not points:
             return
         xy = np.array([(p.x, p.y) for p in points], dtype=np.float64)
         access = np.array([0 if p.access is None else p.access for p in points], dtype=np.int64)
-        net_names = sorted({p.net for p in points})
+        net_names = sorted({str(p.net) for p in points})
         net_of = {name: k for k, name in enumerate(net_names)}
-        point_net = np.array([net_of[p.net] for p in points], dtype=np.int64)
+        point_net = np.array([net_of[str(p.net)] for p in points], dtype=np.int64)
         pairs = []
         for i, (geoms, radius, node) in enumerate(geoms_of):
             mine = np.flatnonzero((access == 0) | (access == self.numbers[i]))
@@ -329,7 +332,11 @@ class _Builder:
         are unconnected copper."""
         if not todo.any():
             return
-        comp, layer, x, y = [], [], [], []
+        # per layer, then joined into arrays below
+        comp: Any = []
+        layer: Any = []
+        x: Any = []
+        y: Any = []
         term_comp, term_key = [label[hole0:]], [_keys(holes["x"], holes["y"])]
         for i, gl in enumerate(self.layers):
             p0, s0 = offsets[i]
@@ -468,6 +475,7 @@ class _Builder:
                 if is_via[h] and s.function in (None, "ViaPad") and _is_round(s.polygon):
                     used.add((i, k))  # the via's round pad stands for it; any other shape stays copper
         d = holes["d"][keep]
+        assert self.hole_nets is not None  # _connect named the holes
         vias = Vias(holes["x"][keep].astype(np.float64), holes["y"][keep].astype(np.float64), d.astype(np.float64),
                     np.maximum(pad_size[keep], d).astype(np.float64), holes["first"][keep].astype(np.int32),
                     holes["last"][keep].astype(np.int32), self.hole_nets[keep].astype(np.int32))
