@@ -206,6 +206,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 import scipy.sparse as sp
@@ -387,10 +388,10 @@ def _fill(a: float, b: float, sing: np.ndarray, spacing: "_Spacing") -> np.ndarr
     def h_at(x: float) -> float:
         return spacing.h(min(x - s_left, s_right - x))
 
-    cuts = {a, b, 0.5 * (s_left + s_right)}
+    cut_set = {a, b, 0.5 * (s_left + s_right)}
     for d in spacing.breaks():
-        cuts.update((s_left + d, s_right - d))
-    cuts = sorted(c for c in cuts if a <= c <= b and math.isfinite(c))
+        cut_set.update((s_left + d, s_right - d))
+    cuts = sorted(c for c in cut_set if a <= c <= b and math.isfinite(c))
     # per piece: start, h at start, slope dh/dx, integral of 1/h so far
     pieces = []
     total = 0.0
@@ -575,14 +576,14 @@ def _circle_clearances(
                     raise SolveError(f"signal conductor {c} touches {what}")
         out.append(min((g for g, net in gaps if net != c.net), default=math.inf))
     if enclosure is not None:
-        gaps = [enclosure.r - math.hypot(o.cx - enclosure.cx, o.cy - enclosure.cy) - o.r for o in circles]
-        gaps += [
+        inner = [enclosure.r - math.hypot(o.cx - enclosure.cx, o.cy - enclosure.cy) - o.r for o in circles]
+        inner += [
             enclosure.r - max(math.hypot(x - enclosure.cx, y - enclosure.cy)
                               for x in (o.x0, o.x1) for y in (o.y0, o.y1))
             for o in cs.conductors
             if isinstance(o, Conductor)
         ]
-        out.append(min(gaps, default=math.inf))
+        out.append(min(inner, default=math.inf))
     return out
 
 
@@ -591,11 +592,11 @@ def _density_fill(a: float, b: float, hfun, n_min: int) -> np.ndarray:
 
     The integral is taken by the trapezoid rule on sample points marched at
     an eighth of the local spacing (h changes by under 10 % per step)."""
-    xs = [a]
-    while xs[-1] < b:
-        xs.append(xs[-1] + hfun(xs[-1]) / 8.0)
-    xs[-1] = b
-    xs = np.array(xs)
+    marched = [a]
+    while marched[-1] < b:
+        marched.append(marched[-1] + hfun(marched[-1]) / 8.0)
+    marched[-1] = b
+    xs = np.array(marched)
     if xs.size < 3:
         xs = np.linspace(a, b, 9)
     inv = 1.0 / np.array([hfun(v) for v in xs])
@@ -644,9 +645,9 @@ def _build(cs: CrossSection, resolution: float) -> _Grid:
             raise ValueError(f"conductor {c} needs x0 <= x1 and y0 <= y1")
         if c.x0 == c.x1 and c.y0 == c.y1:
             raise ValueError(f"conductor {c} is a point")
-    for c in circles + ([enclosure] if enclosure else []):
-        if not c.r > 0:
-            raise ValueError(f"circle {c} needs r > 0")
+    for o in circles + ([enclosure] if enclosure else []):
+        if not o.r > 0:
+            raise ValueError(f"circle {o} needs r > 0")
     if enclosure is not None and enclosure.net != GROUND:
         raise ValueError("a circular box is ground: its net must be GROUND")
     nets = sorted({c.net for c in cs.conductors if c.net != GROUND})
@@ -762,27 +763,27 @@ def _build(cs: CrossSection, resolution: float) -> _Grid:
         dx, dy = x[:, None] - enclosure.cx, y[None, :] - enclosure.cy
         label[dx * dx + dy * dy >= (enclosure.r - tol) ** 2] = GROUND
     # ground first, then signals, so that a signal touching ground is caught
-    for c in sorted(cs.conductors, key=lambda c: c.net):
-        if isinstance(c, Circle):
-            dx, dy = x[:, None] - c.cx, y[None, :] - c.cy
-            inside = dx * dx + dy * dy <= (c.r + tol) ** 2
-            if c.net != GROUND:
-                clash = label[inside & (label != _FREE) & (label != c.net)]
+    for cond in sorted(cs.conductors, key=lambda o: o.net):
+        if isinstance(cond, Circle):
+            dx, dy = x[:, None] - cond.cx, y[None, :] - cond.cy
+            inside = dx * dx + dy * dy <= (cond.r + tol) ** 2
+            if cond.net != GROUND:
+                clash = label[inside & (label != _FREE) & (label != cond.net)]
                 if clash.size:
                     what = ("ground (a plane, the box or a ground conductor)" if clash[0] == GROUND
                             else f"net {clash[0]}")
-                    raise SolveError(f"signal conductor {c} touches {what}")
-            label[inside] = c.net
+                    raise SolveError(f"signal conductor {cond} touches {what}")
+            label[inside] = cond.net
             continue
-        i0, i1 = index(x, c.x0), index(x, c.x1)
-        j0, j1 = index(y, c.y0), index(y, c.y1)
+        i0, i1 = index(x, cond.x0), index(x, cond.x1)
+        j0, j1 = index(y, cond.y0), index(y, cond.y1)
         block = label[i0 : i1 + 1, j0 : j1 + 1]
-        if c.net != GROUND:
-            clash = block[(block != _FREE) & (block != c.net)]
+        if cond.net != GROUND:
+            clash = block[(block != _FREE) & (block != cond.net)]
             if clash.size:
                 what = "ground (a plane, the box or a ground conductor)" if clash[0] == GROUND else f"net {clash[0]}"
-                raise SolveError(f"signal conductor {c} touches {what}")
-        block[...] = c.net
+                raise SolveError(f"signal conductor {cond} touches {what}")
+        block[...] = cond.net
 
     yc = 0.5 * (y[:-1] + y[1:])
     er_rows = np.ones(ny - 1)
@@ -861,7 +862,11 @@ def _cut_edges(grid: _Grid, circles: list[Circle], enclosure: Circle | None) -> 
     def net_id(k: int) -> int:
         return ground_id if k == GROUND else nx * ny + int(k)
 
-    cut, la, lb, le, lf = [], [], [], [], []
+    cut: list[int] = []
+    la: list[Any] = []  # node or conductor id at each link's ends (ints; None never reaches a link)
+    lb: list[Any] = []
+    le: list[int] = []
+    lf: list[float] = []
     starts = np.concatenate(([0], np.nonzero(np.diff(e_all))[0] + 1, [e_all.size]))
     for s0, s1 in zip(starts[:-1], starts[1:]):
         e = int(e_all[s0])
@@ -880,8 +885,9 @@ def _cut_edges(grid: _Grid, circles: list[Circle], enclosure: Circle | None) -> 
         solids.sort()
         cut.append(e)
         # walk the free stretches between solids
-        left_end, left_t, reach = na, 0.0, -1.0
-        left_net = None
+        left_end: int | None = na
+        left_t, reach = 0.0, -1.0
+        left_net: int | None = None
         if lab[na] != _FREE:
             left_end = None
         for t0, t1, net in solids:

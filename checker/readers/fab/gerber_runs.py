@@ -165,20 +165,20 @@ class PointChunks:
                 out_x[at:at + len(x)] = x
                 out_y[at:at + len(y)] = y
             if runs:
-                texts, at, lines, start, x0, y0, div_x, div_y, simple = zip(*runs)
-                at = np.array(at, dtype=np.int64)
-                lines = np.array(lines, dtype=np.int64)
-                start = np.array(start, dtype=bool)
-                x0 = np.array(x0, dtype=np.float64)
-                y0 = np.array(y0, dtype=np.float64)
-                x, y = _parse_runs(b"".join(texts), lines, x0, y0, np.repeat(div_x, lines), np.repeat(div_y, lines),
-                                   self.negate_after, all(simple))
+                texts, at_, lines_, start_, x0_, y0_, div_x, div_y, simple = zip(*runs)
+                run_at = np.array(at_, dtype=np.int64)
+                lines = np.array(lines_, dtype=np.int64)
+                start = np.array(start_, dtype=bool)
+                x0 = np.array(x0_, dtype=np.float64)
+                y0 = np.array(y0_, dtype=np.float64)
+                rx, ry = _parse_runs(b"".join(texts), lines, x0, y0, np.repeat(div_x, lines),
+                                     np.repeat(div_y, lines), self.negate_after, all(simple))
                 first = np.cumsum(lines) - lines
-                dest = np.repeat(at + start - first, lines) + np.arange(len(x))
-                out_x[dest] = x
-                out_y[dest] = y
-                out_x[at[start]] = x0[start]
-                out_y[at[start]] = y0[start]
+                dest = np.repeat(run_at + start - first, lines) + np.arange(len(rx))
+                out_x[dest] = rx
+                out_y[dest] = ry
+                out_x[run_at[start]] = x0[start]
+                out_y[run_at[start]] = y0[start]
             if self.arcs:
                 _place_arcs(self.arcs, out_x, out_y)
             out = out_x, out_y
