@@ -902,23 +902,10 @@ class _RowFinder:
         direction along and across, half length and half width (unpadded),
         and the finding it belongs to (position in ``findings``)."""
         if self._bands is None:
-            c = self.a.couplings
-            p = self.a.board.pieces
             rows_per = [self(f) for f in findings]
             rows = np.concatenate(rows_per) if rows_per else np.zeros(0, np.int64)
             owner = np.repeat(np.arange(len(findings)), [r.size for r in rows_per]) if rows_per else rows
-            ia, ib = c.a[rows], c.b[rows]
-            dx, dy = p.x2[ia] - p.x1[ia], p.y2[ia] - p.y1[ia]
-            norm = np.hypot(dx, dy)
-            zero = norm == 0
-            norm[zero] = 1.0
-            ux, uy = np.where(zero, 1.0, dx / norm), np.where(zero, 0.0, dy / norm)
-            cover = np.maximum(p.width[ia], p.width[ib]) / 2
-            self._bands = {
-                "owner": owner, "cx": c.x[rows], "cy": c.y[rows], "ux": ux, "uy": uy,
-                "half_l": np.maximum(c.length_mm[rows], 0.0) / 2,
-                "half_w": np.where(c.parallel[rows], np.abs(c.offset_mm[rows]) / 2 + cover, cover),
-            }
+            self._bands = {"owner": owner, **_band_axes(self.a, rows)}
         return self._bands
 
     def _pairs(self, f: Finding, ia: int, iv: int) -> np.ndarray:
@@ -965,12 +952,11 @@ class _RowFinder:
         return np.sort(rows[keep])
 
 
-def _row_quads(analysis, rows: np.ndarray, pad: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Per row, the four corners (x, y arrays of shape (n, 4)) of the band it
-    couples over: along piece a, centred on the coupling spot, the coupled
-    length long and wide enough to cover both pieces, grown by ``pad`` on
-    every side (so it shows around the copper drawn over it); and the
-    extent (xmin, ymin, xmax, ymax) of all of them."""
+def _band_axes(analysis, rows: np.ndarray) -> dict[str, np.ndarray]:
+    """Per coupled row, the band it couples over, unpadded: its centre (the
+    coupling spot ``cx``, ``cy``), the unit direction of piece a (``ux``,
+    ``uy``; x for a piece of no length), half the coupled length
+    (``half_l``) and half the width that covers both pieces (``half_w``)."""
     c = analysis.couplings
     p = analysis.board.pieces
     ia, ib = c.a[rows], c.b[rows]
@@ -978,16 +964,29 @@ def _row_quads(analysis, rows: np.ndarray, pad: float) -> tuple[np.ndarray, np.n
     norm = np.hypot(dx, dy)
     zero = norm == 0
     norm[zero] = 1.0
-    ux, uy = np.where(zero, 1.0, dx / norm), np.where(zero, 0.0, dy / norm)
-    nx, ny = -uy, ux
-    half_l = np.maximum(c.length_mm[rows], 0.0) / 2 + pad
-    cover = np.maximum(p.width[ia], p.width[ib]) / 2 + pad
-    half_w = np.where(c.parallel[rows], np.abs(c.offset_mm[rows]) / 2 + cover, cover)
-    cx, cy = c.x[rows], c.y[rows]
+    cover = np.maximum(p.width[ia], p.width[ib]) / 2
+    return {"cx": c.x[rows], "cy": c.y[rows],
+            "ux": np.where(zero, 1.0, dx / norm), "uy": np.where(zero, 0.0, dy / norm),
+            "half_l": np.maximum(c.length_mm[rows], 0.0) / 2,
+            "half_w": np.where(c.parallel[rows], np.abs(c.offset_mm[rows]) / 2 + cover, cover)}
+
+
+def _corners(cx, cy, ux, uy, half_l, half_w) -> tuple[np.ndarray, np.ndarray]:
+    """The four corners (x, y arrays of shape (n, 4)) of bands centred on
+    (cx, cy), ``half_l`` along (ux, uy) and ``half_w`` across."""
     sl = np.array([1, 1, -1, -1])
     sw = np.array([1, -1, -1, 1])
-    xs = cx[:, None] + ux[:, None] * half_l[:, None] * sl + nx[:, None] * half_w[:, None] * sw
-    ys = cy[:, None] + uy[:, None] * half_l[:, None] * sl + ny[:, None] * half_w[:, None] * sw
+    ux, uy, hl, hw = ux[:, None], uy[:, None], half_l[:, None], half_w[:, None]
+    return cx[:, None] + ux * hl * sl - uy * hw * sw, cy[:, None] + uy * hl * sl + ux * hw * sw
+
+
+def _row_quads(analysis, rows: np.ndarray, pad: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Per row, the four corners (x, y arrays of shape (n, 4)) of the band it
+    couples over (:func:`_band_axes`), grown by ``pad`` on every side (so it
+    shows around the copper drawn over it); and the extent (xmin, ymin,
+    xmax, ymax) of all of them."""
+    b = _band_axes(analysis, rows)
+    xs, ys = _corners(b["cx"], b["cy"], b["ux"], b["uy"], b["half_l"] + pad, b["half_w"] + pad)
     extent = np.array([xs.min(), ys.min(), xs.max(), ys.max()]) if rows.size else np.zeros(0)
     return xs, ys, extent
 
@@ -1010,13 +1009,11 @@ def _stretch_shapes(analysis, f: Finding, rows: np.ndarray, frame: _Frame, faint
                 & (ys.max(axis=1) >= frame.vy0) & (ys.min(axis=1) <= frame.vy1))
         xs, ys = xs[seen], ys[seen]
         g = frame.per_mm
-        if not with_path:
-            pass
-        elif len(xs) > MERGE_BANDS_ABOVE:
+        if with_path and len(xs) > MERGE_BANDS_ABOVE:
             # many bands (a victim summed over dozens of aggressors): one outline of them, to a quarter pixel
             shape = shapely.union_all(shapely.polygons(np.stack([xs, ys], axis=-1)))
             d = _polygon_path(shapely.simplify(shape, REGION_TOLERANCE_PX * frame.px(), preserve_topology=False), g)
-        else:
+        elif with_path:
             # each band: its first corner, then the steps to the other three (whole grid steps, as in _ring)
             qx, qy = np.rint(xs * g), np.rint(ys * g)
             hx, hy = _gs(qx[:, 0], g), _gs(qy[:, 0], g)
@@ -1076,10 +1073,7 @@ def _faint_bands(findings: list[Finding], faint_ids: set[str], rows_of: _RowFind
     sel = np.flatnonzero(near & wanted[t["owner"]]) if near.size else near
     if not sel.size:
         return []
-    ux, uy = t["ux"][sel, None], t["uy"][sel, None]
-    sl, sw = np.array([1, 1, -1, -1]), np.array([1, -1, -1, 1])
-    xs = t["cx"][sel, None] + ux * hl[sel, None] * sl - uy * hw[sel, None] * sw
-    ys = t["cy"][sel, None] + uy * hl[sel, None] * sl + ux * hw[sel, None] * sw
+    xs, ys = _corners(t["cx"][sel], t["cy"][sel], t["ux"][sel], t["uy"][sel], hl[sel], hw[sel])
     by_look: dict[str, list[int]] = {}
     for i, o in enumerate(t["owner"][sel].tolist()):
         f = findings[o]
